@@ -1,0 +1,62 @@
+"""Exceptions raised by mesastrain.
+
+Every error a user can cause carries a one-line message that names what was
+wrong and what is allowed. The command line prints that line and exits with
+status 2; nothing else in the package prints tracebacks for user errors.
+"""
+
+from __future__ import annotations
+
+
+class MesastrainError(Exception):
+    """Base class of every error raised on purpose by mesastrain."""
+
+
+class CaseError(MesastrainError):
+    """An invalid case file or case value.
+
+    Parameters
+    ----------
+    key : str
+        Dotted/indexed path of the offending key, e.g. ``"layer[2].thickness"``.
+        Empty for errors about the file as a whole.
+    message : str
+        What is wrong and what is allowed.
+    source : str, optional
+        The file the case came from, prefixed to the message when given.
+    """
+
+    def __init__(self, key: str, message: str, source: str | None = None):
+        self.key = key
+        self.message = message
+        self.source = source
+        super().__init__(self._line())
+
+    def _line(self) -> str:
+        where = f"{self.source}: " if self.source else ""
+        what = f"{self.key}: " if self.key else ""
+        return f"{where}{what}{self.message}"
+
+    def with_source(self, source: str) -> "CaseError":
+        """Return a copy that names the case file."""
+        return type(self)(self.key, self.message, source)
+
+
+class MaterialError(MesastrainError):
+    """An unknown material name or an alloy fraction that is not allowed."""
+
+
+class OrientationError(MesastrainError):
+    """Miller indices that do not define a valid sample frame."""
+
+
+class MeshError(MesastrainError):
+    """A geometry or mesh request that cannot be meshed."""
+
+
+class SolverError(MesastrainError):
+    """The linear solve failed (no convergence, singular system, NaN/Inf)."""
+
+
+class ResourceError(MesastrainError):
+    """A case that would need more memory or time than allowed."""

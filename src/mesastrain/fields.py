@@ -1,0 +1,175 @@
+"""Strain and stress recovered from the displacement.
+
+Definitions (sample frame unless a name says ``crystal``)
+--------------------------------------------------------
+total strain
+    eps = sym(grad u), measured from the reference lattice (the substrate's).
+elastic strain
+    eps_el = eps - eps0 = C^-1 sigma: the lattice strain of each material
+    relative to its own relaxed lattice. This is what the outputs call
+    ``strain``.
+stress
+    sigma = C : eps_el, in MPa (positive in tension).
+von Mises
+    sqrt(3/2 s:s) with s the deviatoric stress, MPa.
+hydrostatic
+    tr(sigma)/3, MPa (negative in compression).
+
+Element values are quadrature averages over each element; nodal values are
+the volume-weighted average of the elements around each node (a smoothed
+field for viewing; probes and cuts are evaluated exactly in their element).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from .assembly import CHUNK, Discretisation
+from .crystal import voigt_to_full
+
+GPA_TO_MPA = 1000.0
+
+
+@dataclass(frozen=True)
+class Fields:
+    """Recovered fields on a mesh.
+
+    Attributes
+    ----------
+    displacement : ndarray (nnodes, 3)
+        Displacement at the mesh vertices, nm.
+    cell_strain, cell_total_strain, cell_stress : ndarray (nelems, 3, 3)
+        Element averages: elastic strain, total strain, stress (MPa).
+    node_strain, node_stress : ndarray (nnodes, 3, 3)
+        Smoothed nodal elastic strain and stress (MPa).
+    cell_volume : ndarray (nelems,)
+        nm^3.
+    """
+
+    displacement: np.ndarray
+    cell_strain: np.ndarray
+    cell_total_strain: np.ndarray
+    cell_stress: np.ndarray
+    node_strain: np.ndarray
+    node_stress: np.ndarray
+    cell_volume: np.ndarray
+
+
+def von_mises(sig: np.ndarray) -> np.ndarray:
+    """Von Mises equivalent stress of tensors (..., 3, 3), same unit."""
+    s = sig - np.trace(sig, axis1=-2, axis2=-1)[..., None, None] * np.eye(3) / 3.0
+    return np.sqrt(1.5 * np.einsum("...ij,...ij->...", s, s))
+
+
+def hydrostatic(sig: np.ndarray) -> np.ndarray:
+    """Mean normal stress tr(sigma)/3 of tensors (..., 3, 3)."""
+    return np.trace(sig, axis1=-2, axis2=-1) / 3.0
+
+
+def principal(sig: np.ndarray) -> np.ndarray:
+    """Principal values of symmetric tensors (..., 3, 3), descending."""
+    return np.linalg.eigvalsh(sig)[..., ::-1]
+
+
+def _sym(g: np.ndarray) -> np.ndarray:
+    return 0.5 * (g + np.swapaxes(g, -1, -2))
+
+
+def recover(disc: Discretisation, u: np.ndarray, group: np.ndarray,
+            stiffness: np.ndarray, eigenstrain: np.ndarray, nnodes: int,
+            element_vertices: np.ndarray) -> Fields:
+    """Element and nodal strain/stress from the displacement vector.
+
+    Parameters
+    ----------
+    disc : Discretisation
+    u : ndarray (ndofs,)
+        Displacement, nm, node-major (3 per scalar dof).
+    group, stiffness, eigenstrain
+        As in :func:`mesastrain.assembly.assemble` (GPa).
+    nnodes : int
+        Number of mesh vertices (the first scalar dofs are the vertices).
+    element_vertices : ndarray (8, nelems)
+        Vertex indices of each element (mesh.t).
+    """
+    C = voigt_to_full(np.asarray(stiffness, dtype=float))
+    eig = np.asarray(eigenstrain, dtype=float)
+    nel = disc.element_dofs.shape[1]
+    U = u.reshape(-1, 3)
+    tot = np.empty((nel, 3, 3))
+    vol = np.empty(nel)
+    for start in range(0, nel, CHUNK):
+        sl = slice(start, min(start + CHUNK, nel))
+        g = disc.gradients(sl)                           # (n,q,a,3)
+        w = disc.weights(sl)                             # (n,q)
+        ue = U[disc.element_dofs[:, sl].T]               # (n,a,3)
+        grad = np.einsum("nqaj,nai->nqij", g, ue)        # du_i/dx_j
+        v = w.sum(axis=1)
+        tot[sl] = np.einsum("nq,nqij->nij", w, _sym(grad)) / v[:, None, None]
+        vol[sl] = v
+    el = tot - eig[group]
+    sig = np.einsum("nijkl,nkl->nij", C[group], el) * GPA_TO_MPA
+    # smoothed nodal values: volume-weighted average of surrounding elements
+    verts = element_vertices
+    wsum = np.bincount(verts.ravel(), weights=np.repeat(vol[None, :], verts.shape[0], 0).ravel(),
+                       minlength=nnodes)
+
+    def to_nodes(cell: np.ndarray) -> np.ndarray:
+        flat = cell.reshape(nel, -1) * vol[:, None]
+        out = np.empty((nnodes, flat.shape[1]))
+        for k in range(flat.shape[1]):
+            out[:, k] = np.bincount(verts.ravel(), weights=np.tile(flat[:, k], verts.shape[0]),
+                                    minlength=nnodes)
+        return (out / wsum[:, None]).reshape((nnodes,) + cell.shape[1:])
+
+    disp = U[:nnodes].copy()
+    return Fields(displacement=disp, cell_strain=el, cell_total_strain=tot, cell_stress=sig,
+                  node_strain=to_nodes(el), node_stress=to_nodes(sig), cell_volume=vol)
+
+
+def evaluate_at_points(disc: Discretisation, u: np.ndarray, elements: np.ndarray,
+                       points: np.ndarray, group: np.ndarray, stiffness: np.ndarray,
+                       eigenstrain: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Exact elastic strain and stress at points inside known elements.
+
+    Parameters
+    ----------
+    disc : Discretisation
+    u : ndarray (ndofs,)
+    elements : ndarray of int (npts,)
+        Element containing each point.
+    points : ndarray (npts, 3), nm
+    group, stiffness, eigenstrain : as for :func:`recover`
+
+    Returns
+    -------
+    strain : ndarray (npts, 3, 3)
+        Elastic strain (sample frame).
+    stress : ndarray (npts, 3, 3)
+        Stress, MPa.
+    displacement : ndarray (npts, 3)
+        nm.
+    """
+    mesh = disc.basis.mesh
+    elem = disc.basis.elem
+    mapping = mesh.mapping()
+    x = np.asarray(points, dtype=float).T[:, :, None]            # (3, npts, 1)
+    X = mapping.invF(x, tind=elements)                            # (3, npts, 1)
+    invDF = mapping.invDF(X, tind=elements)                       # (3,3,npts,1)
+    Xf = X[:, :, 0]
+    U = u.reshape(-1, 3)
+    ue = U[disc.element_dofs[:, elements].T]                      # (npts, a, 3)
+    grad = np.zeros((len(elements), 3, 3))
+    disp = np.zeros((len(elements), 3))
+    for a in range(disc.nloc):
+        phi, dphi = elem.lbasis(Xf, a)                            # (npts,), (3, npts)
+        dx = np.einsum("ijp,ip->jp", invDF[:, :, :, 0], dphi)     # (3, npts)
+        grad += np.einsum("pi,jp->pij", ue[:, a, :], dx)
+        disp += phi[:, None] * ue[:, a, :]
+    tot = _sym(grad)
+    C = voigt_to_full(np.asarray(stiffness, dtype=float))
+    el = tot - np.asarray(eigenstrain)[group[elements]]
+    sig = np.einsum("nijkl,nkl->nij", C[group[elements]], el) * GPA_TO_MPA
+    return el, sig, disp

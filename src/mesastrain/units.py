@@ -1,0 +1,202 @@
+"""Lengths and temperatures as written in case files.
+
+A case file gives a length either as a bare number, read in nanometres, or as
+a string with a unit: ``"40 nm"``, ``"2 um"`` (also ``"2 µm"``), ``"0.5 mm"``
+or ``"3.2 A"`` (also ``"3.2 Å"``, Angstrom). Metres are deliberately not
+accepted: a wafer-scale unit in a nanometre model is almost always a typo.
+
+A temperature is a bare number in degrees Celsius, or a string ``"700 C"``,
+``"700 °C"``, ``"700 degC"`` or ``"973.15 K"``. The parsed value is always in
+kelvin.
+
+Booleans are never numbers here (TOML ``true`` is rejected), nor are NaN or
+infinity. Every failure raises :class:`mesastrain.errors.CaseError` naming
+the case-file key it came from.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from decimal import Decimal
+
+from .errors import CaseError
+
+__all__ = ["LENGTH_UNITS", "TEMPERATURE_UNITS", "is_number", "parse_length",
+           "parse_temperature", "show_value"]
+
+#: Length units accepted in strings, and their size in nanometres.
+LENGTH_UNITS = {
+    "nm": 1.0,
+    "um": 1.0e3,
+    "\u00b5m": 1.0e3,   # MICRO SIGN
+    "\u03bcm": 1.0e3,   # GREEK SMALL LETTER MU
+    "mm": 1.0e6,
+    "A": 0.1,           # Angstrom
+    "\u00c5": 0.1,      # LATIN CAPITAL LETTER A WITH RING ABOVE
+    "\u212b": 0.1,      # ANGSTROM SIGN
+}
+
+#: Temperature units accepted in strings: name -> offset added to get kelvin.
+TEMPERATURE_UNITS = {
+    "C": 273.15,
+    "\u00b0C": 273.15,
+    "degC": 273.15,
+    "K": 0.0,
+}
+
+#: 0 degrees Celsius in kelvin (SI Brochure, BIPM, 9th ed. 2019: T/K = t/degC + 273.15).
+ZERO_CELSIUS = 273.15
+
+_NUMBER_WITH_UNIT = re.compile(
+    r"^\s*(?P<num>[+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?)\s*(?P<unit>\S.*?)?\s*$")
+
+_LENGTH_EXAMPLES = 'give a number in nm or a string such as "40 nm", "2 um", "0.5 mm"'
+_LENGTH_ALLOWED = "allowed units: nm, um (µm), mm, A (Å)"
+_TEMPERATURE_EXAMPLES = 'give a number in degrees Celsius or a string such as "700 C", "973 K"'
+_TEMPERATURE_ALLOWED = "allowed units: C (°C, degC), K"
+
+
+def show_value(value) -> str:
+    """Render a case-file value the way it would be written in TOML.
+
+    Parameters
+    ----------
+    value : object
+        A value as produced by :mod:`tomllib`.
+
+    Returns
+    -------
+    str
+        Strings in double quotes, ``true``/``false`` for booleans, lists in
+        brackets, ``a table`` for dicts, numbers as Python prints them.
+    """
+    if isinstance(value, bool):
+        return "true" if value else "false"
+    if isinstance(value, str):
+        escaped = value.replace("\\", "\\\\").replace('"', '\\"')
+        return f'"{escaped}"'
+    if isinstance(value, (list, tuple)):
+        return "[" + ", ".join(show_value(v) for v in value) + "]"
+    if isinstance(value, dict):
+        return "a table"
+    if value is None:
+        return "nothing"
+    return str(value)
+
+
+def is_number(value) -> bool:
+    """True for an int or float that is not a bool (TOML ``true`` is not a number)."""
+    return isinstance(value, (int, float)) and not isinstance(value, bool)
+
+
+def _split(value: str):
+    """Split ``"40 nm"`` into (Decimal("40"), "nm"); None when it does not look like that."""
+    m = _NUMBER_WITH_UNIT.match(value)
+    if m is None:
+        return None
+    return Decimal(m.group("num")), m.group("unit")
+
+
+def _scaled(number: Decimal, factor: float, offset: float = 0.0) -> float:
+    """number * factor + offset in exact decimal arithmetic, then rounded once to float.
+
+    So "3.2 A" gives exactly the float 0.32 and 20 C exactly 293.15 K.
+    """
+    return float(number * Decimal(repr(factor)) + Decimal(repr(offset)))
+
+
+def parse_length(value, key: str) -> float:
+    """Read a case-file length.
+
+    Parameters
+    ----------
+    value : int, float or str
+        A number (nm) or a string with a unit: ``"40 nm"``, ``"2 um"``,
+        ``"2 µm"``, ``"0.5 mm"``, ``"3.2 A"``, ``"3.2 Å"``. The sign is kept;
+        callers check positivity.
+    key : str
+        Case-file key path, used in the error.
+
+    Returns
+    -------
+    float
+        The length in nm.
+
+    Raises
+    ------
+    CaseError
+        Booleans, non-finite numbers, strings without a unit or with a unit
+        not in :data:`LENGTH_UNITS`, and any other type.
+    """
+    if is_number(value):
+        if not math.isfinite(value):
+            raise CaseError(key, f"{show_value(value)} is not a finite length; {_LENGTH_EXAMPLES}")
+        return float(value)
+    if isinstance(value, str):
+        parts = _split(value)
+        if parts is None:
+            raise CaseError(key, f"'{value}' is not a length; {_LENGTH_EXAMPLES}")
+        number, unit = parts
+        if unit is None:
+            raise CaseError(key, f"'{value}' has no unit; write {value.strip()} (a number, nm) "
+                                 f"or a string with a unit, {_LENGTH_ALLOWED}")
+        if unit not in LENGTH_UNITS:
+            if unit in ("m", "cm", "pm", "km", "in", "ft"):
+                raise CaseError(key, f"'{value}': unit '{unit}' is not accepted; {_LENGTH_ALLOWED}")
+            raise CaseError(key, f"'{value}' is not a length; {_LENGTH_EXAMPLES}")
+        nm = _scaled(number, LENGTH_UNITS[unit])
+        if not math.isfinite(nm):
+            raise CaseError(key, f"'{value}' is not a finite length; {_LENGTH_EXAMPLES}")
+        return nm
+    raise CaseError(key, f"{show_value(value)} is not a length; {_LENGTH_EXAMPLES}")
+
+
+def parse_temperature(value, key: str) -> float:
+    """Read a case-file temperature.
+
+    Parameters
+    ----------
+    value : int, float or str
+        A number in degrees Celsius, or a string ``"700 C"``, ``"700 °C"``,
+        ``"700 degC"`` or ``"973.15 K"``.
+    key : str
+        Case-file key path, used in the error.
+
+    Returns
+    -------
+    float
+        The absolute temperature in kelvin (> 0).
+
+    Raises
+    ------
+    CaseError
+        Booleans, non-finite numbers, strings without an accepted unit, other
+        types, and temperatures at or below absolute zero.
+    """
+    if is_number(value):
+        if not math.isfinite(value):
+            raise CaseError(key, f"{show_value(value)} is not a finite temperature; "
+                                 f"{_TEMPERATURE_EXAMPLES}")
+        kelvin = _scaled(Decimal(repr(float(value))), 1.0, ZERO_CELSIUS)
+    elif isinstance(value, str):
+        parts = _split(value)
+        if parts is None:
+            raise CaseError(key, f"'{value}' is not a temperature; {_TEMPERATURE_EXAMPLES}")
+        number, unit = parts
+        if unit is None:
+            raise CaseError(key, f"'{value}' has no unit; write {value.strip()} (a number, "
+                                 f"degrees Celsius) or a string with a unit, "
+                                 f"{_TEMPERATURE_ALLOWED}")
+        if unit not in TEMPERATURE_UNITS:
+            raise CaseError(key, f"'{value}': unit '{unit}' is not accepted; "
+                                 f"{_TEMPERATURE_ALLOWED}")
+        kelvin = _scaled(number, 1.0, TEMPERATURE_UNITS[unit])
+        if not math.isfinite(kelvin):
+            raise CaseError(key, f"'{value}' is not a finite temperature; {_TEMPERATURE_EXAMPLES}")
+    else:
+        raise CaseError(key, f"{show_value(value)} is not a temperature; {_TEMPERATURE_EXAMPLES}")
+    if not kelvin > 0.0:
+        raise CaseError(key, f"{show_value(value)} is {kelvin:g} K, at or below absolute zero; "
+                             f"give a temperature above 0 K (-273.15 C)")
+    return kelvin
