@@ -105,7 +105,8 @@ def test_check_text(small_case, capsys):
 def test_check_counts_match_the_mesh(small_case, tmp_path):
     # the estimate counts unknowns without meshing; it must agree with the real mesh
     from mesastrain.casefile import load_case
-    from mesastrain.pipeline import estimate, run_case
+    from mesastrain.pipeline import run_case
+    from mesastrain.sizing import estimate
     for order in (1, 2):
         text = SMALL.replace("order = 1", f"order = {order}").replace("size = 25", "size = 50")
         p = tmp_path / f"o{order}.toml"

@@ -1,7 +1,6 @@
 """The demo case runs, its fields.vtu opens with pyvista, and a picture renders offscreen."""
 
 import json
-import os
 from pathlib import Path
 
 import numpy as np

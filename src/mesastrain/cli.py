@@ -73,7 +73,8 @@ def results_table(summary: dict) -> str:
 
 def cmd_run(args) -> int:
     from .export import jsonable
-    from .pipeline import CAUTION, run_case, summary_of, write_result
+    from .output import CAUTION, summary_of, write_result
+    from .pipeline import run_case
 
     case = _load(args.case)
     out = Path(args.out) if args.out else Path(Path(args.case).stem + "-results")
@@ -97,7 +98,7 @@ def cmd_run(args) -> int:
 # check
 # --------------------------------------------------------------------------
 def cmd_check(args) -> int:
-    from .pipeline import available_memory_gb, estimate
+    from .sizing import available_memory_gb, estimate
 
     case = _load(args.case)
     est = estimate(case)
