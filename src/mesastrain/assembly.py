@@ -95,7 +95,8 @@ def _vector_dofs(element_dofs: np.ndarray) -> np.ndarray:
 
 
 def assemble(disc: Discretisation, group: np.ndarray, stiffness: np.ndarray,
-             eigenstrain: np.ndarray) -> tuple[sp.csr_matrix, np.ndarray]:
+             eigenstrain: np.ndarray, cell_eigenstrain: np.ndarray | None = None
+             ) -> tuple[sp.csr_matrix, np.ndarray]:
     """Assemble the stiffness matrix and the eigenstrain load vector.
 
     Parameters
@@ -107,6 +108,9 @@ def assemble(disc: Discretisation, group: np.ndarray, stiffness: np.ndarray,
         Voigt stiffness of each group in the sample frame, GPa.
     eigenstrain : ndarray (ngroups, 3, 3)
         Stress-free strain of each group in the sample frame.
+    cell_eigenstrain : ndarray (nelems, 3, 3), optional
+        Extra stress-free strain per element (sample frame), added to the
+        group's (e.g. a dislocation's eigenstrain slab).
 
     Returns
     -------
@@ -144,7 +148,10 @@ def assemble(disc: Discretisation, group: np.ndarray, stiffness: np.ndarray,
         data[sl] = Ke.reshape(n, nloc, nloc, 3, 3).transpose(0, 1, 3, 2, 4).reshape(n, nd, nd)
         # load: f[a,i] = sum_q w dN_a/dx_j sigma0_ij
         gsum = gw.sum(axis=1)                                       # (n,a,3)
-        fe = np.einsum("naj,nij->nai", gsum, sigma0[grp]).reshape(n, nd)
+        s0 = sigma0[grp]
+        if cell_eigenstrain is not None:
+            s0 = s0 + np.einsum("nijkl,nkl->nij", C[grp], cell_eigenstrain[sl])
+        fe = np.einsum("naj,nij->nai", gsum, s0).reshape(n, nd)
         np.add.at(f, vdofs[sl].ravel(), fe.ravel())
     rows = np.repeat(vdofs, nd, axis=1).ravel()
     cols = np.tile(vdofs, (1, nd)).ravel()

@@ -8,6 +8,7 @@ nothing written.
 from __future__ import annotations
 
 import argparse
+import importlib
 import json
 import logging
 import sys
@@ -19,6 +20,11 @@ from .errors import MesastrainError
 
 EXIT_USAGE = 2
 EXIT_INTERRUPTED = 130
+
+#: Modules that add a subcommand: each has ``add_command(subparsers)``, which adds a parser
+#: with ``set_defaults(func=...)``; ``func(args)`` returns the exit status and raises
+#: MesastrainError for user errors.
+EXTRA_COMMANDS: list[str] = []
 
 
 def _err(msg: str) -> None:
@@ -162,6 +168,9 @@ def build_parser() -> argparse.ArgumentParser:
 
     m = sub.add_parser("materials", help="list the material database with sources")
     m.set_defaults(func=cmd_materials)
+
+    for name in EXTRA_COMMANDS:
+        importlib.import_module(f"mesastrain.{name}").add_command(sub)
     return p
 
 

@@ -79,7 +79,7 @@ def _sym(g: np.ndarray) -> np.ndarray:
 
 def recover(disc: Discretisation, u: np.ndarray, group: np.ndarray,
             stiffness: np.ndarray, eigenstrain: np.ndarray, nnodes: int,
-            element_vertices: np.ndarray) -> Fields:
+            element_vertices: np.ndarray, cell_eigenstrain: np.ndarray | None = None) -> Fields:
     """Element and nodal strain/stress from the displacement vector.
 
     Parameters
@@ -93,6 +93,8 @@ def recover(disc: Discretisation, u: np.ndarray, group: np.ndarray,
         Number of mesh vertices (the first scalar dofs are the vertices).
     element_vertices : ndarray (8, nelems)
         Vertex indices of each element (mesh.t).
+    cell_eigenstrain : ndarray (nelems, 3, 3), optional
+        Extra per-element eigenstrain, as in :func:`mesastrain.assembly.assemble`.
     """
     C = voigt_to_full(np.asarray(stiffness, dtype=float))
     eig = np.asarray(eigenstrain, dtype=float)
@@ -110,6 +112,8 @@ def recover(disc: Discretisation, u: np.ndarray, group: np.ndarray,
         tot[sl] = np.einsum("nq,nqij->nij", w, _sym(grad)) / v[:, None, None]
         vol[sl] = v
     el = tot - eig[group]
+    if cell_eigenstrain is not None:
+        el = el - cell_eigenstrain
     sig = np.einsum("nijkl,nkl->nij", C[group], el) * GPA_TO_MPA
     # smoothed nodal values: volume-weighted average of surrounding elements
     verts = element_vertices
@@ -131,7 +135,8 @@ def recover(disc: Discretisation, u: np.ndarray, group: np.ndarray,
 
 def evaluate_at_points(disc: Discretisation, u: np.ndarray, elements: np.ndarray,
                        points: np.ndarray, group: np.ndarray, stiffness: np.ndarray,
-                       eigenstrain: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+                       eigenstrain: np.ndarray, cell_eigenstrain: np.ndarray | None = None
+                       ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Exact elastic strain and stress at points inside known elements.
 
     Parameters
@@ -141,7 +146,7 @@ def evaluate_at_points(disc: Discretisation, u: np.ndarray, elements: np.ndarray
     elements : ndarray of int (npts,)
         Element containing each point.
     points : ndarray (npts, 3), nm
-    group, stiffness, eigenstrain : as for :func:`recover`
+    group, stiffness, eigenstrain, cell_eigenstrain : as for :func:`recover`
 
     Returns
     -------
@@ -171,5 +176,7 @@ def evaluate_at_points(disc: Discretisation, u: np.ndarray, elements: np.ndarray
     tot = _sym(grad)
     C = voigt_to_full(np.asarray(stiffness, dtype=float))
     el = tot - np.asarray(eigenstrain)[group[elements]]
+    if cell_eigenstrain is not None:
+        el = el - cell_eigenstrain[elements]
     sig = np.einsum("nijkl,nkl->nij", C[group[elements]], el) * GPA_TO_MPA
     return el, sig, disp

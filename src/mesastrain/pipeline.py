@@ -87,6 +87,7 @@ class Result:
     disc: Discretisation
     u: np.ndarray = field(repr=False)
     fields: Fields = field(repr=False)
+    cell_eigenstrain: np.ndarray | None = field(default=None, repr=False)
     solver: SolverReport = None
     probes: list = field(default_factory=list)
     timings: dict = field(default_factory=dict)
@@ -136,12 +137,17 @@ class Result:
                                  f"(x in [{sm.xs[0]:g}, {sm.xs[-1]:g}], y in [{sm.ys[0]:g}, "
                                  f"{sm.ys[-1]:g}], z in [{sm.zs[0]:g}, {sm.zs[-1]:g}] nm)")
         strain, stress, disp = evaluate_at_points(self.disc, self.u, elems, pts, self.mesh.layer,
-                                                  self.stiffness, self.eigenstrain)
+                                                  self.stiffness, self.eigenstrain,
+                                                  self.cell_eigenstrain)
         return strain, stress, disp, self.mesh.layer[elems]
 
 
 #: Derived-quantity providers run after every solve, in order.
 DERIVED: list[Callable[[Result], Derived]] = []
+
+#: Extra eigenstrain sources: ``source(case, layers, mesh) -> (nelems, 3, 3) or None``,
+#: sample frame, added to the regions' eigenstrains (e.g. misfit dislocations).
+EIGENSTRAIN_SOURCES: list[Callable] = []
 
 
 def _boundary_dofs(disc, bounds) -> np.ndarray:
@@ -199,8 +205,13 @@ def run_case(case: Case, progress=None, max_memory_gb: float | None = None,
         f"{disc.ndofs:,} unknowns")
     stiff = np.array([lm.stiffness_sample for lm in layers])
     eig = np.array([lm.eigenstrain_sample for lm in layers])
+    extra = None
+    for source in EIGENSTRAIN_SOURCES:
+        e = source(case, layers, sm)
+        if e is not None:
+            extra = e if extra is None else extra + e
     t = time.perf_counter()
-    K, f = assemble(disc, sm.layer, stiff, eig)
+    K, f = assemble(disc, sm.layer, stiff, eig, extra)
     timings["assembly"] = time.perf_counter() - t
     say(f"assembly: {K.nnz:,} nonzeros in {timings['assembly']:.1f} s")
     fixed = _boundary_dofs(disc, ((sm.xs[0], sm.xs[-1]), (sm.ys[0], sm.ys[-1]), sm.zs[0]))
@@ -213,11 +224,11 @@ def run_case(case: Case, progress=None, max_memory_gb: float | None = None,
         f"{timings['solve']:.1f} s")
     del K
     t = time.perf_counter()
-    fl = recover(disc, u, sm.layer, stiff, eig, sm.nnodes, sm.mesh.t)
+    fl = recover(disc, u, sm.layer, stiff, eig, sm.nnodes, sm.mesh.t, extra)
     if not (np.all(np.isfinite(fl.cell_stress)) and np.all(np.isfinite(fl.displacement))):
         raise SolverError("the recovered fields contain NaN or Inf; nothing was written")
-    res = Result(case=case, layers=layers, mesh=sm, disc=disc, u=u, fields=fl, solver=rep,
-                 timings=timings)
+    res = Result(case=case, layers=layers, mesh=sm, disc=disc, u=u, fields=fl,
+                 cell_eigenstrain=extra, solver=rep, timings=timings)
     res.probes.extend(evaluate_probes(res))
     timings["recovery"] = time.perf_counter() - t
     if derive:
