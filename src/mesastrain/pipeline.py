@@ -187,6 +187,9 @@ def run_case(case: Case, progress=None, max_memory_gb: float | None = None,
     SolverError
         The solve failed or produced non-finite values.
     """
+    from .plugins import register
+
+    register()
     say = progress or (lambda msg: None)
     timings = {}
     est = estimate(case)

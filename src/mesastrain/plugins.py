@@ -1,0 +1,31 @@
+"""Registration of the optional stages: derived quantities and extra eigenstrain sources.
+
+:func:`register` fills :data:`mesastrain.pipeline.DERIVED` and
+:data:`mesastrain.pipeline.EIGENSTRAIN_SOURCES` once, in a fixed order (so runs
+are deterministic). Add a provider by importing it here and appending it in
+``_providers`` below; keep the order stable.
+"""
+
+from __future__ import annotations
+
+_done = False
+
+
+def _providers():
+    """(derived providers, eigenstrain sources), in run order."""
+    derived = []
+    sources = []
+    return derived, sources
+
+
+def register() -> None:
+    """Register every provider once (idempotent)."""
+    global _done
+    if _done:
+        return
+    from . import pipeline
+
+    derived, sources = _providers()
+    pipeline.DERIVED.extend(d for d in derived if d not in pipeline.DERIVED)
+    pipeline.EIGENSTRAIN_SOURCES.extend(s for s in sources if s not in pipeline.EIGENSTRAIN_SOURCES)
+    _done = True
