@@ -11,7 +11,9 @@ import argparse
 import importlib
 import json
 import logging
+import signal
 import sys
+import threading
 import time
 from pathlib import Path
 
@@ -174,20 +176,31 @@ def build_parser() -> argparse.ArgumentParser:
     return p
 
 
+def _terminate(signum, frame):
+    """SIGTERM ends a run like Ctrl-C: cleanly, nothing half-written."""
+    raise KeyboardInterrupt
+
+
 def main(argv=None) -> int:
     """Entry point; returns the exit status."""
     parser = build_parser()
     args = parser.parse_args(argv)
     logging.basicConfig(level=logging.INFO if args.verbose else logging.WARNING,
                         format="%(name)s: %(message)s")
+    previous = None
+    if threading.current_thread() is threading.main_thread():
+        previous = signal.signal(signal.SIGTERM, _terminate)
     try:
         return args.func(args)
     except MesastrainError as exc:
         _err(str(exc))
         return EXIT_USAGE
     except KeyboardInterrupt:
-        _err("interrupted; nothing was written")
+        _err("interrupted; nothing was written (an earlier result in --out is unchanged)")
         return EXIT_INTERRUPTED
     except MemoryError:
         _err("ran out of memory; coarsen the mesh (mesh.size, mesh.edge_size); nothing was written")
         return EXIT_USAGE
+    finally:
+        if previous is not None:
+            signal.signal(signal.SIGTERM, previous)

@@ -39,6 +39,7 @@ def layer_summary(lm: LayerModel) -> dict:
         "misfit": lm.misfit,
         "eigenstrain": lm.eigenstrain_crystal,
         "eigenstrain_sample": lm.eigenstrain_sample,
+        "thermal_eigenstrain": getattr(lm, "thermal_eigenstrain", None),
         "stiffness_sample": lm.stiffness_sample,
         "sample_axes_in_crystal": lm.frame.R,
         "source": list(mat.sources),
@@ -79,7 +80,8 @@ def summary_of(res: Result) -> dict:
             "frames": "sample: z = wafer normal (up), x = substrate x_axis; crystal: cube axes "
                       "(hexagonal: x = a1, z = c)",
             "strain": "elastic (lattice) strain relative to each material's relaxed lattice",
-            "eigenstrain": "stress-free strain relative to the substrate's lattice, = (a - a_eff)/a",
+            "eigenstrain": "stress-free strain relative to the substrate's lattice, = (a - a_eff)/a, "
+                           "plus thermal_eigenstrain (crystal axes) when [thermal] is given",
             "misfit": "(a_eff - a)/a: in-plane lattice strain of the blanket layer",
             "stress_sign": "positive in tension",
             "vtu_tensor_order": "XX, YY, ZZ, XY, YZ, XZ",
@@ -176,6 +178,9 @@ def write_result(res: Result, out: Path, overwrite: bool = False) -> Path:
         raise CaseError("--out", f"{out} already exists; pass --overwrite to replace it")
     parent = out.resolve().parent
     parent.mkdir(parents=True, exist_ok=True)
+    # leftovers of a run killed while writing (never visible as a result)
+    for stale in parent.glob(f".{out.name}.partial-*"):
+        shutil.rmtree(stale, ignore_errors=True)
     tmp = Path(tempfile.mkdtemp(prefix=f".{out.name}.partial-", dir=parent))
     try:
         write_json(tmp / "summary.json", summary_of(res))
