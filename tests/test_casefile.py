@@ -160,8 +160,10 @@ def test_good_blanket_defaults():
     assert case.pattern == Pattern("none", None, None, None, None)
     assert not case.pattern.patterned
     assert case.thermal is None
+    # default order 1 on structured hexahedra (casefile.default_order: chosen by
+    # benchmarks/time_to_accuracy.py)
     assert (case.mesh.size, case.mesh.edge_size, case.mesh.order, case.mesh.growth,
-            case.mesh.substrate_depth) == (None, None, 2, 1.3, None)
+            case.mesh.substrate_depth) == (None, None, 1, 1.3, None)
     assert (case.solver.method, case.solver.tolerance, case.solver.max_iterations) == \
         ("auto", 1e-8, 2000)
     assert case.probes == () and case.cuts == ()

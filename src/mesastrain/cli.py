@@ -26,7 +26,7 @@ EXIT_INTERRUPTED = 130
 #: Modules that add a subcommand: each has ``add_command(subparsers)``, which adds a parser
 #: with ``set_defaults(func=...)``; ``func(args)`` returns the exit status and raises
 #: MesastrainError for user errors.
-EXTRA_COMMANDS: list[str] = []
+EXTRA_COMMANDS: list[str] = ["sweep", "shift_to_stress", "verify", "view"]
 
 
 def _err(msg: str) -> None:
@@ -91,12 +91,23 @@ def cmd_run(args) -> int:
         return EXIT_USAGE
     progress = _Progress(sys.stderr.isatty() or args.progress)
     progress(f"case {args.case}: {case.title}")
-    res = run_case(case, progress=progress, max_memory_gb=args.max_memory)
+    study = None
+    if getattr(args, "convergence", False) or getattr(case.mesh, "convergence", None):
+        from .convergence import study as convergence_study
+
+        res, study = convergence_study(case, progress=progress, max_memory_gb=args.max_memory)
+    else:
+        res = run_case(case, progress=progress, max_memory_gb=args.max_memory)
     progress("writing results")
     write_result(res, out, overwrite=args.overwrite)
     summary = jsonable(summary_of(res))
     if not args.quiet:
         print(results_table(summary))
+        if study is not None:
+            from .convergence import table as convergence_table
+
+            print()
+            print(convergence_table(study))
         print(f"results in {out}/ (summary.json, fields.vtu)")
         print(CAUTION)
     return 0
@@ -161,6 +172,9 @@ def build_parser() -> argparse.ArgumentParser:
     r.add_argument("--progress", action="store_true",
                    help="show progress even when stderr is not a terminal")
     r.add_argument("-q", "--quiet", action="store_true", help="no result table")
+    r.add_argument("--convergence", action="store_true",
+                   help="also solve with element sizes / 1.5 and / 2.25 and report how the "
+                        "headline figures move (observed order, verdict)")
     r.set_defaults(func=cmd_run)
 
     c = sub.add_parser("check", help="validate a case and estimate its size, memory and time")

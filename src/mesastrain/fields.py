@@ -15,8 +15,9 @@ von Mises
 hydrostatic
     tr(sigma)/3, MPa (negative in compression).
 
-Element values are quadrature averages over each element; nodal values are
-the volume-weighted average of the elements around each node (a smoothed
+Element values are averages over each element (exact for the mean of the
+strain, which is linear in the displacement); nodal values are the
+volume-weighted average of the elements around each node (a smoothed
 field for viewing; probes and cuts are evaluated exactly in their element).
 """
 
@@ -25,6 +26,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
+import scipy.sparse as sp
 
 from .assembly import CHUNK, Discretisation
 from .crystal import voigt_to_full
@@ -77,10 +79,51 @@ def _sym(g: np.ndarray) -> np.ndarray:
     return 0.5 * (g + np.swapaxes(g, -1, -2))
 
 
+def nodal_average_matrix(element_vertices: np.ndarray, volume: np.ndarray,
+                         nnodes: int) -> sp.csr_matrix:
+    """Sparse operator from element values to volume-weighted nodal averages.
+
+    Parameters
+    ----------
+    element_vertices : ndarray of int (nv, nelems)
+    volume : ndarray (nelems,)
+        Element volumes (the weights), nm^3.
+    nnodes : int
+
+    Returns
+    -------
+    csr_matrix (nnodes, nelems)
+        Row v holds vol_e / sum(vol) over the elements e around vertex v.
+    """
+    verts = np.asarray(element_vertices)
+    nv, nel = verts.shape
+    rows = verts.ravel()
+    cols = np.tile(np.arange(nel), nv)
+    vals = np.tile(np.asarray(volume, dtype=float), nv)
+    S = sp.csr_matrix((vals, (rows, cols)), shape=(nnodes, nel))
+    wsum = np.asarray(S.sum(axis=1)).ravel()
+    wsum[wsum == 0] = 1.0
+    return sp.diags(1.0 / wsum) @ S
+
+
+def _stress_of(C: np.ndarray, group: np.ndarray, el: np.ndarray) -> np.ndarray:
+    """sigma = C[group] : el, one contraction per material group (GPa)."""
+    sig = np.empty_like(el)
+    for g in np.unique(group):
+        m = group == g
+        sig[m] = np.einsum("ijkl,nkl->nij", C[g], el[m])
+    return sig
+
+
 def recover(disc: Discretisation, u: np.ndarray, group: np.ndarray,
             stiffness: np.ndarray, eigenstrain: np.ndarray, nnodes: int,
             element_vertices: np.ndarray, cell_eigenstrain: np.ndarray | None = None) -> Fields:
     """Element and nodal strain/stress from the displacement vector.
+
+    Element averages use the element-mean shape-function gradients (one
+    contraction per element; closed form on brick meshes). Nodal values are a
+    sparse averaging operator applied to the element values. Memory: the
+    returned arrays plus one chunk of temporaries.
 
     Parameters
     ----------
@@ -91,46 +134,36 @@ def recover(disc: Discretisation, u: np.ndarray, group: np.ndarray,
         As in :func:`mesastrain.assembly.assemble` (GPa).
     nnodes : int
         Number of mesh vertices (the first scalar dofs are the vertices).
-    element_vertices : ndarray (8, nelems)
+    element_vertices : ndarray (nv, nelems)
         Vertex indices of each element (mesh.t).
     cell_eigenstrain : ndarray (nelems, 3, 3), optional
         Extra per-element eigenstrain, as in :func:`mesastrain.assembly.assemble`.
     """
     C = voigt_to_full(np.asarray(stiffness, dtype=float))
     eig = np.asarray(eigenstrain, dtype=float)
+    group = np.asarray(group)
     nel = disc.element_dofs.shape[1]
     U = u.reshape(-1, 3)
     tot = np.empty((nel, 3, 3))
     vol = np.empty(nel)
     for start in range(0, nel, CHUNK):
         sl = slice(start, min(start + CHUNK, nel))
-        g = disc.gradients(sl)                           # (n,q,a,3)
-        w = disc.weights(sl)                             # (n,q)
+        gbar, v = disc.mean_gradients(sl)                # (n,a,3), (n,)
         ue = U[disc.element_dofs[:, sl].T]               # (n,a,3)
-        grad = np.einsum("nqaj,nai->nqij", g, ue)        # du_i/dx_j
-        v = w.sum(axis=1)
-        tot[sl] = np.einsum("nq,nqij->nij", w, _sym(grad)) / v[:, None, None]
+        grad = np.matmul(ue.transpose(0, 2, 1), gbar)    # du_i/dx_j, element mean
+        tot[sl] = _sym(grad)
         vol[sl] = v
     el = tot - eig[group]
     if cell_eigenstrain is not None:
-        el = el - cell_eigenstrain
-    sig = np.einsum("nijkl,nkl->nij", C[group], el) * GPA_TO_MPA
-    # smoothed nodal values: volume-weighted average of surrounding elements
-    verts = element_vertices
-    wsum = np.bincount(verts.ravel(), weights=np.repeat(vol[None, :], verts.shape[0], 0).ravel(),
-                       minlength=nnodes)
-
-    def to_nodes(cell: np.ndarray) -> np.ndarray:
-        flat = cell.reshape(nel, -1) * vol[:, None]
-        out = np.empty((nnodes, flat.shape[1]))
-        for k in range(flat.shape[1]):
-            out[:, k] = np.bincount(verts.ravel(), weights=np.tile(flat[:, k], verts.shape[0]),
-                                    minlength=nnodes)
-        return (out / wsum[:, None]).reshape((nnodes,) + cell.shape[1:])
-
+        el -= cell_eigenstrain
+    sig = _stress_of(C, group, el)
+    sig *= GPA_TO_MPA
+    S = nodal_average_matrix(element_vertices, vol, nnodes)
+    node_strain = (S @ el.reshape(nel, 9)).reshape(nnodes, 3, 3)
+    node_stress = (S @ sig.reshape(nel, 9)).reshape(nnodes, 3, 3)
     disp = U[:nnodes].copy()
     return Fields(displacement=disp, cell_strain=el, cell_total_strain=tot, cell_stress=sig,
-                  node_strain=to_nodes(el), node_stress=to_nodes(sig), cell_volume=vol)
+                  node_strain=node_strain, node_stress=node_stress, cell_volume=vol)
 
 
 def evaluate_at_points(disc: Discretisation, u: np.ndarray, elements: np.ndarray,

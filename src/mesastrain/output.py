@@ -190,6 +190,10 @@ def write_result(res: Result, out: Path, overwrite: bool = False) -> Path:
         for d in res.derived:
             for name, writer in d.files.items():
                 writer(tmp / name)
+        if getattr(res.case.output, "report", False):   # last: it embeds the files above
+            from .report import write_report
+
+            write_report(tmp)
         if out.exists():
             old = Path(tempfile.mkdtemp(prefix=f".{out.name}.old-", dir=parent))
             os.replace(out, old / out.name)

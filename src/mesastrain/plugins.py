@@ -13,8 +13,23 @@ _done = False
 
 def _providers():
     """(derived providers, eigenstrain sources), in run order."""
+    from .device import derive as device_readouts
+
     derived = []
     sources = []
+    derived.append(device_readouts)      # band edges, Raman shift, piezoresistance
+    from .bow import derive as wafer_bow
+    from .cuts import derive as line_cuts
+    from .readouts import derive as engineering_readouts
+
+    derived.append(engineering_readouts)  # relaxation, corners, tractions, energy, h_c
+    derived.append(wafer_bow)             # free-standing blanket wafer: FE, Stoney, laminate
+    derived.append(line_cuts)             # [[cut]] -> CSV + PNG
+    from .misfit import derive as misfit_dislocations
+    from .misfit import eigenstrain_source as dislocation_sheets
+
+    derived.append(misfit_dislocations)   # dislocation contribution, overlay, relaxation
+    sources.append(dislocation_sheets)    # [[dislocations]] -> eigenstrain sheets
     return derived, sources
 
 

@@ -12,21 +12,104 @@ from .solve import choose_method
 
 # geometry and mesh sizes
 # --------------------------------------------------------------------------
-def geometry_of(case: Case) -> tuple[StackGeometry, GridSpacing]:
-    """Modelled geometry and element sizes from the case and its defaults."""
+def mesh_kind(case: Case) -> str:
+    """Which mesher a case uses.
+
+    Returns
+    -------
+    str
+        ``"structured"`` (blanket stacks and rectangles, with or without
+        sloped sidewalls: graded hexahedra), ``"section"`` (a stripe: the x-z
+        cross-section in generalized plane strain), ``"gmsh"`` (disks,
+        polygons, rectangles with rounded corners: tetrahedra) or ``"file"``
+        (an imported mesh).
+    """
+    pat = case.pattern
+    shape = pat.shape
+    if shape == "stripe":
+        return "section"
+    if shape == "mesh":
+        return "file"
+    if shape in ("disk", "polygon"):
+        return "gmsh"
+    if shape == "rectangle" and getattr(pat, "corner_radius", None):
+        return "gmsh"
+    return "structured"
+
+
+def pattern_taper(case: Case) -> float:
+    """Horizontal offset of the feature's foot relative to its top edge, nm.
+
+    ``etch_depth / tan(sidewall_angle)`` (:func:`mesastrain.outline.taper_of`):
+    positive for sidewalls that slope outward toward the etch floor (angle
+    < 90 degrees), negative for an undercut, 0 for vertical sidewalls.
+    """
+    from .outline import taper_of
+
+    return taper_of(case.pattern) if case.pattern.patterned else 0.0
+
+
+def pattern_pitch(case: Case) -> tuple:
+    """(px, py) of a periodic array in nm, None per axis for an isolated feature."""
+    pitch = getattr(case.pattern, "pitch", None)
+    if pitch is None:
+        return (None, None)
+    return tuple(pitch)
+
+
+def auto_mirrors(case: Case) -> tuple:
+    """Mirror axes chosen automatically (:func:`mesastrain.symmetry.decide`)."""
+    from .model import build_layers
+    from .symmetry import decide
+
+    return decide(case, build_layers(case)).mirrors
+
+
+def refinement_of(case: Case) -> float:
+    """The ``mesh.refine`` factor (1 when the case does not set it)."""
+    return float(getattr(case.mesh, "refine", None) or 1.0)
+
+
+def geometry_of(case: Case, mirrors: tuple | None = None) -> tuple[StackGeometry, GridSpacing]:
+    """Modelled geometry and element sizes from the case and its defaults.
+
+    Parameters
+    ----------
+    case : Case
+    mirrors : tuple of int, optional
+        Mirror axes of the model; None decides automatically
+        (:mod:`mesastrain.symmetry`).
+
+    Notes
+    -----
+    ``width``/``length`` are the feature's size at its top surface. With a
+    sloped sidewall the grid is built for the foot at the etch floor, wider
+    by ``2 * taper``. ``mesh.refine`` = r divides every element size and the
+    grading slope (growth - 1), so the size h(x) at every point is divided
+    by r: a uniform refinement, as a convergence study needs.
+    """
     pat = case.pattern
     stack = case.stack_thickness
     thick = [lay.thickness for lay in case.layers]
     patterned = pat.shape != "none"
     order = case.mesh.order
+    taper = pattern_taper(case)
+    pitch = pattern_pitch(case)
+    margin_y = None
     if patterned:
-        W, L = pat.width, pat.length
+        W, L = pat.width, (pat.length if pat.length is not None else pat.width)
         etch = pat.etch_depth
         if etch > stack:                    # etched into the substrate
             thick.append(etch - stack)
         feature = max(W, L)
         margin = pat.margin if pat.margin is not None else max(0.5 * feature, 4.0 * etch)
+        if pitch[0] is not None:
+            margin = max(0.0, 0.5 * (pitch[0] - W) - taper)
+            if pitch[1] is not None:
+                margin_y = max(0.0, 0.5 * (pitch[1] - L) - taper)
         depth_default = max(1.5 * feature, 4.0 * etch)
+        if pitch[0] is not None:
+            depth_default = max(1.5 * max(q for q in pitch if q is not None), 4.0 * etch)
     else:
         W = L = None
         etch = 0.0
@@ -41,12 +124,34 @@ def geometry_of(case: Case) -> tuple[StackGeometry, GridSpacing]:
         lateral_cap = case.mesh.size or max(size, min(W, L) / (16.0 if order == 1 else 8.0))
     else:
         lateral_cap = size
+    refine = refinement_of(case)
+    size, edge, lateral_cap = size / refine, edge / refine, lateral_cap / refine
+    if patterned:
+        if mirrors is None:
+            mirrors = auto_mirrors(case)
+        periodic = tuple(a for a in (0, 1) if pitch[a] is not None)
+    else:
+        mirrors, periodic = (), ()
+        if refine != 1.0:   # the blanket column is two elements wide; refine it in z only
+            lateral_cap = size
+        if getattr(case, "dislocations", ()):
+            # misfit dislocations in a blanket film: a periodic cell of whole line spacings
+            from .misfit import blanket_cell
+
+            (W, L), lateral_cap = blanket_cell(case, lateral_cap)
+            size, edge = min(size, 2.0 * lateral_cap), min(edge, lateral_cap)
+            margin, margin_y, periodic = 0.0, 0.0, (0, 1)
+            depth = case.mesh.substrate_depth or min(case.substrate.thickness,
+                                                     max(depth, 1.5 * max(W, L)))
     geom = StackGeometry(interfaces=tuple(case.interfaces), substrate_depth=float(depth),
-                         half_width=None if W is None else W / 2.0,
-                         half_length=None if L is None else L / 2.0,
-                         etch_depth=float(etch), margin=float(margin))
+                         half_width=None if W is None else W / 2.0 + taper,
+                         half_length=None if L is None else L / 2.0 + taper,
+                         etch_depth=float(etch), margin=float(margin),
+                         margin_y=None if margin_y is None else float(margin_y),
+                         mirrors=tuple(mirrors), periodic=periodic, taper=float(taper))
     return geom, GridSpacing(size=float(size), edge_size=float(edge),
-                             growth=float(case.mesh.growth), lateral_cap=float(lateral_cap))
+                             growth=1.0 + (float(case.mesh.growth) - 1.0) / refine,
+                             lateral_cap=float(lateral_cap), refine=refine)
 
 
 def count_unknowns(xs, ys, zs, keep: np.ndarray, order: int) -> tuple[int, int, int]:
@@ -89,7 +194,12 @@ def keep_mask(geom: StackGeometry, xs, ys, zs) -> np.ndarray:
 
 @dataclass(frozen=True)
 class Estimate:
-    """Size, memory and time expected for a case before solving."""
+    """Size, memory and time expected for a case before solving.
+
+    ``unknowns`` counts the whole body of the result; ``solved_unknowns`` the
+    part that is solved when a mirror-symmetric half or quarter stands for it
+    (None: the same).
+    """
 
     nodes: int
     elements: int
@@ -98,38 +208,175 @@ class Estimate:
     method: str
     memory_gb: float
     seconds: float
+    solved_unknowns: int | None = None
 
     def to_dict(self) -> dict:
-        return {"nodes": self.nodes, "elements": self.elements, "unknowns": self.unknowns,
-                "order": self.order, "solver": self.method,
-                "memory_gb": round(self.memory_gb, 3), "seconds": round(self.seconds, 1)}
+        out = {"nodes": self.nodes, "elements": self.elements, "unknowns": self.unknowns,
+               "order": self.order, "solver": self.method,
+               "memory_gb": round(self.memory_gb, 3), "seconds": round(self.seconds, 1)}
+        if self.solved_unknowns is not None and self.solved_unknowns != self.unknowns:
+            out["solved_unknowns"] = self.solved_unknowns
+        return out
+
+
+# resource model of assembly + solve + recovery (measured by benchmarks/solver_scaling.py
+# on a 2-core machine; see README "Performance")
+#: Bytes per stored nonzero at the peak of the run: the matrix (12), its condensed
+#: copy (12), the Galerkin product A P while the first coarse level is formed (~12)
+#: and the single-precision finest level (4), plus the coarse levels.
+BYTES_PER_NONZERO = 44.0
+#: Bytes per element matrix entry kept for assembly (the int32 scatter map).
+BYTES_PER_ELEMENT_ENTRY = 4.0
+#: Bytes per unknown (vectors, coordinates, fields, mesh).
+BYTES_PER_UNKNOWN = 400.0
+#: Memory of the interpreter and libraries, bytes.
+BASE_BYTES = 2.5e8
+#: Seconds per stored nonzero: assembly (pattern, element matrices, scatter).
+ASSEMBLY_S_PER_NONZERO = 1.0e-7
+#: Seconds per nonzero for the multigrid setup (Galerkin products, conversions).
+SETUP_S_PER_NONZERO = 6.0e-8
+#: Seconds per nonzero and iteration (one double and ~3 single-precision passes).
+ITERATION_S_PER_NONZERO = 6.0e-9
+#: Conjugate-gradient iterations expected with geometric multigrid, per element order.
+ITERATIONS = {1: 16, 2: 55}
+#: Smoothed aggregation (meshes that are not structured bricks): memory per nonzero
+#: (matrix, condensed copy, hierarchy), setup seconds per nonzero, iterations.
+AMG_BYTES_PER_NONZERO = 48.0
+AMG_SETUP_S_PER_NONZERO = 3.0e-7
+AMG_ITERATIONS = 60
+#: Seconds per unknown: mesh, boundary conditions, recovery, probes.
+OTHER_S_PER_UNKNOWN = 4.0e-6
+#: Direct solver (SuperLU): seconds ~ DIRECT_S * n^DIRECT_EXP (3-D elasticity, measured
+#: from 2.7k to 11k unknowns); memory grows like the factor, ~n^1.5.
+DIRECT_S, DIRECT_EXP = 2.5e-9, 2.3
+DIRECT_BYTES, DIRECT_MEM_EXP = 3.0e3, 1.5
+
+
+def pattern_nonzeros(keep: np.ndarray, order: int) -> int:
+    """Stored nonzeros of the vector stiffness matrix of a structured grid.
+
+    Exact for order 1 (scalar dofs p, q are coupled when a kept cell holds
+    both, counted over the 27 grid offsets); for order 2 the interior count of
+    64 neighbours per scalar dof scaled by the boundary deficit of order 1.
+    """
+    nx, ny, nz = keep.shape
+    k = np.zeros((nx + 2, ny + 2, nz + 2), dtype=bool)
+    k[1:-1, 1:-1, 1:-1] = keep
+    allowed = {0: (-1, 0), 1: (0,), -1: (-1,)}
+    pairs = 0
+    for dx in (-1, 0, 1):
+        for dy in (-1, 0, 1):
+            for dz in (-1, 0, 1):
+                conn = np.zeros((nx + 1, ny + 1, nz + 1), dtype=bool)
+                for cx in allowed[dx]:
+                    for cy in allowed[dy]:
+                        for cz in allowed[dz]:
+                            conn |= k[cx + 1:cx + 2 + nx, cy + 1:cy + 2 + ny, cz + 1:cz + 2 + nz]
+                if dx or dy or dz:
+                    # q = p + d must be a grid point: shift the mask so both ends exist
+                    sx = slice(max(0, -dx), nx + 1 - max(0, dx))
+                    sy = slice(max(0, -dy), ny + 1 - max(0, dy))
+                    sz = slice(max(0, -dz), nz + 1 - max(0, dz))
+                    pairs += int(conn[sx, sy, sz].sum())
+                else:
+                    pairs += int(conn.sum())
+    if order == 1:
+        return 9 * pairs
+    verts = count_unknowns(np.zeros(nx + 1), np.zeros(ny + 1), np.zeros(nz + 1), keep, 1)[0]
+    scalar = count_unknowns(np.zeros(nx + 1), np.zeros(ny + 1), np.zeros(nz + 1), keep, 2)[2] // 3
+    deficit = pairs / (27.0 * verts)
+    return int(9 * 64 * scalar * deficit)
+
+
+def resources(unknowns: int, nonzeros: int, elements: int, nloc: int, order: int,
+              method: str, multigrid: str = "geometric") -> tuple[float, float]:
+    """Peak memory (GB) and wall time (s) of assembly + solve + recovery.
+
+    Parameters
+    ----------
+    unknowns, nonzeros : int
+        Size and stored nonzeros of the stiffness matrix.
+    elements, nloc : int
+        Elements and scalar dofs per element.
+    order : int
+    method : {"direct", "iterative"}
+    multigrid : {"geometric", "algebraic"}
+        Preconditioner of the iterative solve: geometric on structured brick
+        meshes, smoothed aggregation on the others.
+    """
+    n, nnz = float(unknowns), float(nonzeros)
+    mem = (BASE_BYTES + BYTES_PER_UNKNOWN * n + BYTES_PER_ELEMENT_ENTRY * elements * nloc ** 2)
+    secs = ASSEMBLY_S_PER_NONZERO * nnz + OTHER_S_PER_UNKNOWN * n
+    if method == "direct":
+        mem += 12.0 * nnz + DIRECT_BYTES * n ** DIRECT_MEM_EXP
+        secs += DIRECT_S * n ** DIRECT_EXP
+    elif multigrid == "geometric":
+        mem += BYTES_PER_NONZERO * nnz
+        secs += (SETUP_S_PER_NONZERO + ITERATIONS.get(order, 55) * ITERATION_S_PER_NONZERO) * nnz
+    else:
+        mem += AMG_BYTES_PER_NONZERO * nnz
+        secs += (AMG_SETUP_S_PER_NONZERO + AMG_ITERATIONS * ITERATION_S_PER_NONZERO) * nnz
+    return mem / 1e9, secs
 
 
 def estimate(case: Case) -> Estimate:
     """Estimate unknowns, peak memory and wall time without building the mesh.
 
-    Memory: the element-matrix array and its COO indices during assembly
-    dominate (24 bytes per entry, held once more while summing), plus the
-    matrix, its condensed copy and the multigrid hierarchy (about 40 bytes
-    per stored nonzero). Time: rates measured on a 2-core machine
-    (benchmarks/); a rough guide, not a promise.
+    Unknowns and stored nonzeros are counted exactly on the structured grid
+    the mesher will build (only the mirrored part when symmetry is used).
+    Memory and time follow :func:`resources`, whose constants were measured
+    with ``benchmarks/solver_scaling.py`` on a 2-core machine: a guide within
+    about 30 %, not a promise.
     """
+    kind = mesh_kind(case)
+    if kind != "structured":
+        return estimate_other_kind(case, kind)
     geom, spacing = geometry_of(case)
     xs, ys, zs = axis_coordinates(geom, spacing)
-    keep = keep_mask(geom, xs, ys, zs)
     order = case.mesh.order
+    # the result holds the whole body (a half/quarter model is unfolded after the solve):
+    # report its counts, but size memory and time by the part that is solved
+    whole = count_unknowns(xs, ys, zs, keep_mask(geom, xs, ys, zs), order)
+    if 0 in geom.mirrors:                    # only the non-negative side is meshed
+        xs = xs[xs >= 0.0]
+    if 1 in geom.mirrors:
+        ys = ys[ys >= 0.0]
+    keep = keep_mask(geom, xs, ys, zs)
     nodes, nel, n = count_unknowns(xs, ys, zs, keep, order)
-    nd = 24 if order == 1 else 81
-    entries = nel * nd * nd
-    nnz_per_row = 81 if order == 1 else 200
+    nnz = pattern_nonzeros(keep, order)
+    method = choose_method(case.solver.method, n, getattr(case.solver, "direct_limit", None))
+    mem, secs = resources(n, nnz, nel, 8 if order == 1 else 27, order, method)
+    return Estimate(*whole, order, method, mem, secs, solved_unknowns=n)
+
+
+def estimate_from_counts(case: Case, nodes: int, elements: int, scalar_dofs: int,
+                         dofs_per_element: int, nnz_per_row: int) -> Estimate:
+    """An :class:`Estimate` from mesh counts, with the memory and time rules of :func:`estimate`.
+
+    Used for the meshes that are not structured hexahedra (cross-sections,
+    tetrahedra), where the counts come from the mesher's own estimate.
+    """
+    n = 3 * int(scalar_dofs)
     nnz = n * nnz_per_row
-    mem = (entries * 24 * 1.6 + nnz * 40 + 2e8) / 1e9
-    method = choose_method(case.solver.method, n)
-    if method == "direct":
-        secs = 1.0 + 2e-9 * n ** 1.8
-    else:
-        secs = 1.0 + n * (6e-5 if order == 1 else 2.5e-4)
-    return Estimate(nodes, nel, n, order, method, mem, secs)
+    method = choose_method(case.solver.method, n, getattr(case.solver, "direct_limit", None))
+    mem, secs = resources(n, nnz, int(elements), int(dofs_per_element), case.mesh.order, method,
+                          multigrid="algebraic")
+    return Estimate(int(nodes), int(elements), n, case.mesh.order, method, mem, secs)
+
+
+def estimate_other_kind(case: Case, kind: str) -> Estimate:
+    """Size estimate of a cross-section, gmsh or imported mesh (see :func:`mesh_kind`)."""
+    if kind == "section":
+        from .section2d import estimate_section
+
+        return estimate_section(case)
+    if kind == "gmsh":
+        from .geometry import estimate_shape
+
+        return estimate_shape(case)
+    from .meshfile import estimate_file
+
+    return estimate_file(case)
 
 
 def available_memory_gb() -> float:
