@@ -119,6 +119,23 @@ def test_stress_criterion_keeps_iterating_after_the_residual(system, reference):
     assert strict.energy_error <= 1e-7
 
 
+def test_more_smoothing_sweeps_give_the_same_solution(system, reference):
+    disc, group, K, f, fixed = system
+    free = np.ones(K.shape[0], bool)
+    free[fixed] = False
+    H = mg.Hierarchy(K, mg.restrict_spaces(K.coarse_spaces(), free), np.float32, keep=free,
+                     sweeps=(3, 2))
+    from mesastrain.solve import _FreePart
+
+    idx = np.flatnonzero(free)
+    x, it, rel, err = pcg(_FreePart(K, idx), f[idx], H, 1e-10, 1e-8, 200)
+    u = np.zeros(K.shape[0])
+    u[idx] = x
+    assert energy_error(K, u, reference, fixed) < 1e-7
+    one = solve_condensed(K, f, fixed, method="iterative", tol=1e-10, stress_tol=1e-8)[1]
+    assert it <= one.iterations
+
+
 def test_quadratic_elements_use_a_trilinear_coarse_level():
     disc, group, K, f, fixed = held_system(order=2, nx=6, ny=5, nz=6)
     u_d, _ = solve_condensed(K, f, fixed, method="direct")
