@@ -18,34 +18,13 @@ import numpy as np
 import pytest
 
 from mesastrain.cli import main
+from small_cases import SMALL_MESA
 
 HERE = Path(__file__).resolve().parent
 BAD = sorted((HERE / "data" / "bad").glob("*.toml"))
 GOOD = HERE / "data" / "good_blanket.toml"
 
-SMALL = """
-title = "robustness"
-[substrate]
-material = "Si"
-thickness = "50 um"
-normal = [0, 0, 1]
-x_axis = [1, 1, 0]
-[[layer]]
-material = "SiGe"
-x = 0.2
-thickness = "20 nm"
-[pattern]
-shape = "rectangle"
-width = "200 nm"
-etch_depth = "30 nm"
-[mesh]
-order = 1
-size = 25
-edge_size = 10
-[[probe]]
-name = "centre"
-at = [0, 0, 10]
-"""
+SMALL = SMALL_MESA
 
 
 def expectation(path: Path):
