@@ -470,8 +470,8 @@ def build_pattern(element_dofs: np.ndarray, nscalar: int) -> Pattern:
     cols_s = np.concatenate(row_cols) if row_cols else np.zeros(0, dtype=np.int64)
     del row_cols, inc_e, inc_a
     p_of = ed.T                                                      # (nel, nloc)
-    return _finish_pattern(deg, cols_s, lambda ptr_s: (9 * ptr_s[p_of])[:, :, None]
-                           + 3 * pos_local.astype(np.int64))
+    pos_local *= 3
+    return _finish_pattern(deg, cols_s, lambda ptr9: ptr9[p_of][:, :, None] + pos_local)
 
 
 def _finish_pattern(deg: np.ndarray, cols_s: np.ndarray, base_of) -> Pattern:
@@ -483,8 +483,9 @@ def _finish_pattern(deg: np.ndarray, cols_s: np.ndarray, base_of) -> Pattern:
         Neighbours of each scalar dof (itself included).
     cols_s : ndarray
         The sorted neighbour lists, concatenated in dof order.
-    base_of : callable(ptr_s) -> ndarray (nelems, nloc, nloc)
-        Block positions 9 ptr_s[p] + 3 rank(q in row p) of every element pair.
+    base_of : callable(9 ptr_s) -> ndarray (nelems, nloc, nloc)
+        Block positions 9 ptr_s[p] + 3 rank(q in row p) of every element pair,
+        given 9 ptr_s in the index type.
     """
     nscalar = deg.size
     ptr_s = np.zeros(nscalar + 1, dtype=np.int64)
@@ -492,7 +493,9 @@ def _finish_pattern(deg: np.ndarray, cols_s: np.ndarray, base_of) -> Pattern:
     nnz = 9 * int(ptr_s[-1])
     itype = _index_dtype(max(nnz, 3 * nscalar))
     # block base: 9 ptr_s[p] + 3 rank  (row 3p starts at 9 ptr_s[p]; column block 3 rank)
-    block_base = base_of(ptr_s).astype(itype)
+    block_base = base_of((9 * ptr_s).astype(itype))
+    if block_base.dtype != itype:
+        block_base = block_base.astype(itype)
     row_stride = (3 * deg).astype(itype)
     # vector CSR structure: each scalar row p gives 3 rows with the same columns
     indptr = np.empty(3 * nscalar + 1, dtype=itype)
@@ -500,19 +503,22 @@ def _finish_pattern(deg: np.ndarray, cols_s: np.ndarray, base_of) -> Pattern:
     rowlen = np.repeat(3 * deg, 3)
     np.cumsum(rowlen, out=indptr[1:])
     indices = np.empty(nnz, dtype=itype)
+    cols3 = cols_s.astype(itype, copy=False)
     node_chunk = max(1, CHUNK_ENTRIES // max(9 * int(deg.max()), 1))
     for p0 in range(0, nscalar, node_chunk):
         p1 = min(nscalar, p0 + node_chunk)
-        d = deg[p0:p1]
-        seg = (3 * cols_s[ptr_s[p0]:ptr_s[p1]][:, None] + np.arange(3)).ravel()  # (3 sum d)
-        seg_start = 3 * (ptr_s[p0:p1] - ptr_s[p0])
-        # each node's segment, three times (one per component row)
+        d = deg[p0:p1].astype(itype)
+        seg = (3 * cols3[ptr_s[p0]:ptr_s[p1]][:, None] + np.arange(3, dtype=itype)).ravel()
+        seg_start = (3 * (ptr_s[p0:p1] - ptr_s[p0])).astype(itype)
+        # each node's segment, three times (one per component row): output position j of
+        # row r reads seg[j - out_start[r] + seg_start[r]]
         lens = np.repeat(3 * d, 3)
-        starts = np.repeat(seg_start, 3)
-        total = int(lens.sum())
-        offs = np.arange(total) - np.repeat(np.cumsum(lens) - lens, lens)
+        out_start = np.cumsum(lens, dtype=itype) - lens
+        total = int(out_start[-1] + lens[-1])
+        src = np.arange(total, dtype=itype)
+        src += np.repeat(np.repeat(seg_start, 3) - out_start, lens)
         out0 = 9 * int(ptr_s[p0])
-        indices[out0:out0 + total] = seg[np.repeat(starts, lens) + offs]
+        indices[out0:out0 + total] = seg[src]
     return Pattern(indptr=indptr, indices=indices, block_base=block_base,
                    row_stride=row_stride)
 

@@ -80,7 +80,7 @@ def _sym(g: np.ndarray) -> np.ndarray:
 
 
 def nodal_average_matrix(element_vertices: np.ndarray, volume: np.ndarray,
-                         nnodes: int) -> sp.csr_matrix:
+                         nnodes: int) -> sp.csc_matrix:
     """Sparse operator from element values to volume-weighted nodal averages.
 
     Parameters
@@ -92,18 +92,20 @@ def nodal_average_matrix(element_vertices: np.ndarray, volume: np.ndarray,
 
     Returns
     -------
-    csr_matrix (nnodes, nelems)
-        Row v holds vol_e / sum(vol) over the elements e around vertex v.
+    csc_matrix (nnodes, nelems)
+        Row v holds vol_e / sum(vol) over the elements e around vertex v. Built
+        as the transpose of an element-by-vertex CSR matrix, which needs no
+        sorting or conversion.
     """
     verts = np.asarray(element_vertices)
     nv, nel = verts.shape
-    rows = verts.ravel()
-    cols = np.tile(np.arange(nel), nv)
-    vals = np.tile(np.asarray(volume, dtype=float), nv)
-    S = sp.csr_matrix((vals, (rows, cols)), shape=(nnodes, nel))
-    wsum = np.asarray(S.sum(axis=1)).ravel()
+    vol = np.asarray(volume, dtype=float)
+    wsum = np.bincount(verts.ravel(), weights=np.tile(vol, nv), minlength=nnodes)
     wsum[wsum == 0] = 1.0
-    return sp.diags(1.0 / wsum) @ S
+    cols = verts.T.ravel()
+    vals = np.repeat(vol, nv) / wsum[cols]
+    E = sp.csr_matrix((vals, cols, np.arange(0, nv * nel + 1, nv)), shape=(nel, nnodes))
+    return E.T
 
 
 def _stress_of(C: np.ndarray, group: np.ndarray, el: np.ndarray) -> np.ndarray:

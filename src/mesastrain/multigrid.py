@@ -12,7 +12,7 @@ geometric, for structured brick meshes (:func:`grid_hierarchy`)
     material interface, a free surface or an etch boundary are never removed.
     Semi-coarsening: a line is removed only where the two grid intervals next
     to it are short (below a threshold chosen per level so that every level
-    has at most about a quarter of the nodes of the one above). The short
+    has at most about half the nodes of the one above). The short
     intervals of a cell are its strongly coupled directions, so thin, tall and
     flat cells are coarsened along their strong directions first, which keeps
     point Gauss-Seidel an effective smoother on anisotropic cells (semi-
@@ -47,6 +47,7 @@ COARSEST_UNKNOWNS = 2500
 #: Each geometric level aims at no more than this fraction of the nodes above it
 #: (gentle semi-coarsening: 0.25 needs 3x the iterations on the graded stack meshes).
 LEVEL_REDUCTION = 0.5
+
 
 # --------------------------------------------------------------------------
 # tensor grids of brick meshes
@@ -391,10 +392,13 @@ def split_triangles(M: sp.csr_matrix, dtype, keep: np.ndarray | None = None
     rows_kept = np.arange(n) if keep is None else np.flatnonzero(keep)
     m = rows_kept.size
     itype = np.int32 if max(M.nnz, n) < 2**31 - 1 else np.int64
-    newidx = None
+    newidx = newrow = None
     if keep is not None:
-        newidx = np.full(n, -1, dtype=itype)
+        # dropped columns map to the largest index and dropped rows to -1, so that the
+        # one test column <= row also removes them
+        newidx = np.full(n, np.iinfo(itype).max, dtype=itype)
         newidx[rows_kept] = np.arange(m, dtype=itype)
+        newrow = np.where(keep, newidx, -1).astype(itype)
     lo_cnt = np.zeros(n, dtype=np.int64)
     cols_parts, vals_parts = [], []
     per_row = max(1, M.nnz // max(n, 1))
@@ -413,9 +417,7 @@ def split_triangles(M: sp.csr_matrix, dtype, keep: np.ndarray | None = None
             low = cols <= np.repeat(np.arange(r0, r1, dtype=cols.dtype), lens)
         else:
             cols = newidx[cols]
-            rows = np.repeat(newidx[r0:r1], lens)
-            low = (cols <= rows) & (cols >= 0) & (rows >= 0)
-            del rows
+            low = cols <= np.repeat(newrow[r0:r1], lens)
         nz = lens > 0
         seg = (M.indptr[r0:r1] - a)[nz]
         lo_cnt[r0:r1][nz] = np.add.reduceat(low, seg, dtype=np.int64)
@@ -449,10 +451,12 @@ class Hierarchy:
     Smoothing is one forward Gauss-Seidel sweep before and one backward sweep
     after the coarse correction (a symmetric preconditioner). Each level keeps
     its operator split into lower and upper triangles (both with the
-    diagonal): starting from zero, the forward sweep only needs the lower
-    triangle and leaves the residual -U x, and the backward sweep needs
-    b - L x and the upper triangle. A level then costs two passes over its
-    operator instead of three (sweep, residual, sweep).
+    diagonal, the upper one the transpose of the lower): starting from zero,
+    the forward sweep only needs the lower triangle and leaves the residual
+    -U x, and the backward sweep needs b - L x and the upper triangle. A level
+    then costs two passes over its operator instead of three (sweep, residual,
+    sweep). Coarse operators are formed from the lower triangle as
+    M + M^T - P^T D P with M = P^T (L + D) P.
 
     Parameters
     ----------
@@ -486,25 +490,26 @@ class Hierarchy:
         self.nnz, self.sizes = [A.nnz], [n0]
         op, mask = A, keep
         for lev, P in enumerate(Ps):
+            lower, upper, diag = split_triangles(op, self.dtype, mask)
+            Pl = _csr(P, self.dtype)
+            Rl = _csr(P.T, self.dtype)
             if coarse_ops is not None:
                 Ac = sp.csr_matrix(coarse_ops[lev])
             else:
-                # (P^T A) P: the first product has the coarse number of rows, which is
-                # cheaper than P^T (A P); in the cycle's precision (half the traffic)
-                Pf = P if mask is None else _expand_rows(P, mask)
-                Pf = Pf.astype(self.dtype, copy=False)
-                Ac = (Pf.T.tocsr() @ op.astype(self.dtype, copy=False)) @ Pf
-                del Pf
-            # scipy's product has no duplicates; Gauss-Seidel and the split do not need
-            # sorted columns, so the coarse operators are left unsorted
-            lower, upper, diag = split_triangles(op, self.dtype, mask)
+                # Galerkin product from the lower triangle: with M = P^T (L + D) P,
+                # P^T A P = M + M^T - P^T D P (exactly symmetric; half the product work
+                # of P^T A P and no single-precision copy of A)
+                M = Rl @ (lower @ Pl)
+                Ac = (M + M.T).tocsr()
+                del M
+                Ac -= Rl @ sp.csr_matrix(Pl.multiply(diag[:, None]))
             if lev == 0:
                 self.nnz[0] = lower.nnz + upper.nnz - diag.size
             self.LD.append(lower)
             self.DU.append(upper)
             self.d.append(diag)
-            self.P.append(_csr(P, self.dtype))
-            self.R.append(_csr(P.T, self.dtype))
+            self.P.append(Pl)
+            self.R.append(Rl)
             self.nnz.append(Ac.nnz)
             self.sizes.append(Ac.shape[0])
             op, mask = Ac.astype(self.dtype, copy=False), None

@@ -219,37 +219,34 @@ class Estimate:
         return out
 
 
-# resource model of assembly + solve + recovery (measured by benchmarks/solver_scaling.py
-# on a 2-core machine; see README "Performance")
-#: Bytes per stored nonzero at the peak of the run: the matrix (12), its condensed
-#: copy (12), the Galerkin product A P while the first coarse level is formed (~12)
-#: and the single-precision finest level (4), plus the coarse levels.
-BYTES_PER_NONZERO = 44.0
-#: Bytes per element matrix entry kept for assembly (the int32 scatter map).
-BYTES_PER_ELEMENT_ENTRY = 4.0
-#: Bytes per unknown (vectors, coordinates, fields, mesh).
-BYTES_PER_UNKNOWN = 400.0
-#: Memory of the interpreter and libraries, bytes.
-BASE_BYTES = 2.5e8
-#: Seconds per stored nonzero: assembly (pattern, element matrices, scatter).
+# resource model of mesh + assembly + solve + recovery, measured with
+# benchmarks/solver_scaling.py (demo mesa, 30k-1M unknowns) and time_to_accuracy.py
+# (27-node elements) on a 2-core machine; see README "Performance"
+#: Peak memory: bytes per stored nonzero (the matrix 12, its single-precision triangles 8,
+#: the coarse levels ~8 and the transient Galerkin products), per unknown, and the base.
+BYTES_PER_NONZERO = 36.0
+BYTES_PER_UNKNOWN = 60.0
+BASE_BYTES = 1.0e8
+#: Seconds per stored nonzero: assembly (symbolic pattern, element matrices, scatter).
 ASSEMBLY_S_PER_NONZERO = 1.0e-7
-#: Seconds per nonzero for the multigrid setup (Galerkin products, conversions).
-SETUP_S_PER_NONZERO = 6.0e-8
-#: Seconds per nonzero and iteration (one double and ~3 single-precision passes).
-ITERATION_S_PER_NONZERO = 6.0e-9
-#: Conjugate-gradient iterations expected with geometric multigrid, per element order.
-ITERATIONS = {1: 16, 2: 55}
-#: Smoothed aggregation (meshes that are not structured bricks): memory per nonzero
-#: (matrix, condensed copy, hierarchy), setup seconds per nonzero, iterations.
-AMG_BYTES_PER_NONZERO = 48.0
-AMG_SETUP_S_PER_NONZERO = 3.0e-7
-AMG_ITERATIONS = 60
-#: Seconds per unknown: mesh, boundary conditions, recovery, probes.
-OTHER_S_PER_UNKNOWN = 4.0e-6
-#: Direct solver (SuperLU): seconds ~ DIRECT_S * n^DIRECT_EXP (3-D elasticity, measured
-#: from 2.7k to 11k unknowns); memory grows like the factor, ~n^1.5.
-DIRECT_S, DIRECT_EXP = 2.5e-9, 2.3
-DIRECT_BYTES, DIRECT_MEM_EXP = 3.0e3, 1.5
+#: Seconds per nonzero for the multigrid setup (Galerkin products, triangle split).
+SETUP_S_PER_NONZERO = 1.2e-7
+#: Seconds per nonzero and iteration, and iterations, per element order (geometric multigrid).
+ITERATION_S_PER_NONZERO = {1: 8.0e-9, 2: 5.0e-9}
+ITERATIONS = {1: 16, 2: 80}
+#: Smoothed aggregation (meshes that are not structured bricks): memory per nonzero,
+#: setup seconds per nonzero, iterations (cost per iteration as for order 2).
+AMG_BYTES_PER_NONZERO = 44.0
+AMG_SETUP_S_PER_NONZERO = 2.5e-7
+AMG_ITERATIONS = 40
+#: Seconds per solved unknown (mesh, supports) and per unknown of the whole body
+#: (unfolding a mirrored model, recovery, probes).
+MESH_S_PER_UNKNOWN = 1.2e-6
+RECOVERY_S_PER_UNKNOWN = 1.5e-6
+#: Direct solver (SuperLU on the condensed system, 3-D elasticity, measured from 30k to
+#: 127k unknowns): seconds = DIRECT_S n^DIRECT_EXP, bytes = DIRECT_BYTES n^DIRECT_MEM_EXP.
+DIRECT_S, DIRECT_EXP = 2.4e-7, 1.73
+DIRECT_BYTES, DIRECT_MEM_EXP = 2.3e3, 1.22
 
 
 def pattern_nonzeros(keep: np.ndarray, order: int) -> int:
@@ -289,33 +286,41 @@ def pattern_nonzeros(keep: np.ndarray, order: int) -> int:
 
 
 def resources(unknowns: int, nonzeros: int, elements: int, nloc: int, order: int,
-              method: str, multigrid: str = "geometric") -> tuple[float, float]:
-    """Peak memory (GB) and wall time (s) of assembly + solve + recovery.
+              method: str, multigrid: str = "geometric",
+              whole_unknowns: int | None = None) -> tuple[float, float]:
+    """Peak memory (GB) and wall time (s) of mesh + assembly + solve + recovery.
 
     Parameters
     ----------
     unknowns, nonzeros : int
-        Size and stored nonzeros of the stiffness matrix.
+        Size and stored nonzeros of the stiffness matrix that is solved.
     elements, nloc : int
-        Elements and scalar dofs per element.
+        Elements and scalar dofs per element (kept for callers; the measured
+        per-nonzero rates already include the per-element work).
     order : int
     method : {"direct", "iterative"}
     multigrid : {"geometric", "algebraic"}
         Preconditioner of the iterative solve: geometric on structured brick
         meshes, smoothed aggregation on the others.
+    whole_unknowns : int, optional
+        Unknowns of the whole body when a mirrored part is solved (recovery
+        works on the whole body).
     """
     n, nnz = float(unknowns), float(nonzeros)
-    mem = (BASE_BYTES + BYTES_PER_UNKNOWN * n + BYTES_PER_ELEMENT_ENTRY * elements * nloc ** 2)
-    secs = ASSEMBLY_S_PER_NONZERO * nnz + OTHER_S_PER_UNKNOWN * n
+    whole = float(whole_unknowns or unknowns)
+    mem = BASE_BYTES + BYTES_PER_UNKNOWN * max(n, whole / 4.0)
+    secs = (ASSEMBLY_S_PER_NONZERO * nnz + MESH_S_PER_UNKNOWN * n
+            + RECOVERY_S_PER_UNKNOWN * whole)
+    per_it = ITERATION_S_PER_NONZERO.get(order, ITERATION_S_PER_NONZERO[2])
     if method == "direct":
         mem += 12.0 * nnz + DIRECT_BYTES * n ** DIRECT_MEM_EXP
         secs += DIRECT_S * n ** DIRECT_EXP
     elif multigrid == "geometric":
         mem += BYTES_PER_NONZERO * nnz
-        secs += (SETUP_S_PER_NONZERO + ITERATIONS.get(order, 55) * ITERATION_S_PER_NONZERO) * nnz
+        secs += (SETUP_S_PER_NONZERO + ITERATIONS.get(order, ITERATIONS[2]) * per_it) * nnz
     else:
         mem += AMG_BYTES_PER_NONZERO * nnz
-        secs += (AMG_SETUP_S_PER_NONZERO + AMG_ITERATIONS * ITERATION_S_PER_NONZERO) * nnz
+        secs += (AMG_SETUP_S_PER_NONZERO + AMG_ITERATIONS * per_it) * nnz
     return mem / 1e9, secs
 
 
@@ -323,10 +328,10 @@ def estimate(case: Case) -> Estimate:
     """Estimate unknowns, peak memory and wall time without building the mesh.
 
     Unknowns and stored nonzeros are counted exactly on the structured grid
-    the mesher will build (only the mirrored part when symmetry is used).
-    Memory and time follow :func:`resources`, whose constants were measured
-    with ``benchmarks/solver_scaling.py`` on a 2-core machine: a guide within
-    about 30 %, not a promise.
+    the mesher will build (only the mirrored part is solved when symmetry is
+    used). Memory and time follow :func:`resources`, whose constants were
+    measured with ``benchmarks/solver_scaling.py`` on a 2-core machine: a guide
+    within about 30 %, not a promise (other jobs on the machine slow it down).
     """
     kind = mesh_kind(case)
     if kind != "structured":
@@ -345,7 +350,8 @@ def estimate(case: Case) -> Estimate:
     nodes, nel, n = count_unknowns(xs, ys, zs, keep, order)
     nnz = pattern_nonzeros(keep, order)
     method = choose_method(case.solver.method, n, getattr(case.solver, "direct_limit", None))
-    mem, secs = resources(n, nnz, nel, 8 if order == 1 else 27, order, method)
+    mem, secs = resources(n, nnz, nel, 8 if order == 1 else 27, order, method,
+                          whole_unknowns=whole[2])
     return Estimate(*whole, order, method, mem, secs, solved_unknowns=n)
 
 

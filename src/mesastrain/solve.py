@@ -43,8 +43,10 @@ from .errors import SolverError
 
 log = logging.getLogger(__name__)
 
-#: Up to this many free unknowns "auto" uses the direct solver (SuperLU); above it
-#: the multigrid-preconditioned iteration is faster (benchmarks/solver_crossover.py).
+#: Up to this many free unknowns "auto" uses the direct solver (SuperLU); above it the
+#: multigrid-preconditioned iteration is faster. Measured on the demo mesa: about equal at
+#: 2,700 unknowns, SuperLU 7x slower at 5,500 and 20-70x slower from 30,000 to 127,000
+#: (benchmarks/solver_scaling.py, "direct x").
 DIRECT_LIMIT = 3000
 
 #: Default relative energy-norm (stress) error at which the iteration may stop.
