@@ -33,7 +33,7 @@ from .meshing import Boundary, StackMesh, build_stack_mesh
 from .model import LayerModel, build_layers
 from .periodic import reduce_dofs, reduce_system, tie_faces
 from .sizing import available_memory_gb, estimate, geometry_of, mesh_kind
-from .solve import SolverReport, solve_condensed
+from .solve import SolverReport, solve_condensed, solver_options
 from .symmetry import Symmetry, reflect_points, reflect_tensors
 from .symmetry import decide as decide_symmetry
 from .unfold import unfold_model
@@ -229,14 +229,12 @@ def solve_model(K, f, disc: Discretisation, boundary: Boundary, solver, progress
     fixed = support_dofs(disc.doflocs, boundary)
     modes = rigid_body_modes(disc.doflocs)
     if not boundary.periodic:
-        return solve_condensed(K, f, fixed, modes, method=solver.method, tol=solver.tolerance,
-                               maxiter=solver.max_iterations, progress=progress)
+        return solve_condensed(K, f, fixed, modes, progress=progress, **solver_options(solver))
     ties = tie_faces(disc.doflocs, boundary.periodic)
     Kr, fr, P = reduce_system(K, f, ties)
     rows = (ties.independent[:, None] * 3 + np.arange(3)).ravel()
-    ur, rep = solve_condensed(Kr, fr, reduce_dofs(fixed, ties), modes[rows],
-                              method=solver.method, tol=solver.tolerance,
-                              maxiter=solver.max_iterations, progress=progress)
+    ur, rep = solve_condensed(Kr, fr, reduce_dofs(fixed, ties), modes[rows], progress=progress,
+                              **solver_options(solver))
     return P @ ur, rep
 
 
