@@ -1006,16 +1006,10 @@ def report_section(summary: dict, folder) -> str | None:
 
 
 def _register_report_section() -> None:
-    """Put :func:`report_section` into the report, after the probes section if there is one."""
-    try:
-        from . import report
-    except ImportError:          # no report module: nothing to register with
-        return
-    if report_section in report.SECTIONS:
-        return
-    names = [getattr(f, "__name__", "") for f in report.SECTIONS]
-    at = names.index("section_probes") + 1 if "section_probes" in names else len(names)
-    report.SECTIONS.insert(at, report_section)
+    """Put :func:`report_section` into the report, after the probes section."""
+    from .report import add_section
+
+    add_section(report_section)
 
 
 _register_report_section()

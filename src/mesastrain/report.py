@@ -469,6 +469,22 @@ SECTIONS.extend([section_inputs, section_stack, section_headline, section_bow, s
                  section_convergence, section_pictures])
 
 
+def add_section(section: Callable[[dict, Path], str | None], after: str = "section_probes") -> None:
+    """Add a report section once, right after the section named ``after`` (or at the end).
+
+    Parameters
+    ----------
+    section : callable(summary, folder) -> str or None
+        Returns an HTML fragment, or None to leave the section out.
+    after : str
+        ``__name__`` of the section it follows.
+    """
+    if section in SECTIONS:
+        return
+    names = [getattr(f, "__name__", "") for f in SECTIONS]
+    SECTIONS.insert(names.index(after) + 1 if after in names else len(SECTIONS), section)
+
+
 # --------------------------------------------------------------------------
 # the whole report
 # --------------------------------------------------------------------------
