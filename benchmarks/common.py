@@ -41,7 +41,7 @@ def peak_rss_gb() -> float:
 
 def demo_case(order: int = 1, refine: float = 1.0, path: Path = DEMO):
     """The demo mesa case with the element order and the ``mesh.refine`` factor set."""
-    from mesastrain.casefile import load_case
+    from mesastrain.case.parse import load_case
 
     case = load_case(path)
     mesh = dataclasses.replace(case.mesh, order=int(order), refine=float(refine))
@@ -51,7 +51,7 @@ def demo_case(order: int = 1, refine: float = 1.0, path: Path = DEMO):
 def unknowns_of(case) -> int:
     """Exact unknowns solved for a structured case (the mirrored part), counted without
     meshing."""
-    from mesastrain.sizing import estimate
+    from mesastrain.run.resources import estimate
 
     e = estimate(case)
     return e.unknowns if e.solved_unknowns is None else e.solved_unknowns
@@ -108,9 +108,9 @@ def matvec_bytes(nnz: int, n: int) -> int:
 
 def build_model(case):
     """Layers, symmetry, mesh object and discretisation as :func:`pipeline.run_case` does."""
-    from mesastrain.discretisation import discretise_mesh
-    from mesastrain.model import build_layers
-    from mesastrain.pipeline import build_model_mesh, decide_symmetry
+    from mesastrain.fem.discretisation import discretise_mesh
+    from mesastrain.model.regions import build_layers
+    from mesastrain.run.pipeline import build_model_mesh, decide_symmetry
 
     layers = build_layers(case)
     sym = decide_symmetry(case, layers)
@@ -125,10 +125,10 @@ def run_stages(case, solver_method: str = "iterative", probes=None) -> dict:
     Returns a dict of sizes, seconds, solver statistics and the peak memory
     after each stage; ``probes`` (npts, 3) are evaluated exactly when given.
     """
-    from mesastrain.assembly import assemble, rigid_body_modes
-    from mesastrain.fields import evaluate_at_points, recover
-    from mesastrain.pipeline import support_dofs
-    from mesastrain.solve import solve_condensed
+    from mesastrain.fem.assembly import assemble, rigid_body_modes
+    from mesastrain.fem.fields import evaluate_at_points, recover
+    from mesastrain.run.pipeline import support_dofs
+    from mesastrain.fem.solve import solve_condensed
 
     out = {}
     t = time.perf_counter()
@@ -171,7 +171,7 @@ def run_stages(case, solver_method: str = "iterative", probes=None) -> dict:
     # recovery as pipeline.run_case does it: unfold a half/quarter model, recover, probes
     t = time.perf_counter()
     if getattr(sm, "mirrors", ()):
-        from mesastrain.unfold import unfold_model
+        from mesastrain.mesh.unfold import unfold_model
 
         sm, disc, u = unfold_model(sm, disc, u)
     nverts = int(getattr(sm, "solve_nnodes", sm.nnodes))

@@ -62,9 +62,9 @@ def child_direct(refine: float, order: int) -> dict:
     """SuperLU on the condensed system of the same case (timed alone)."""
     import scipy.sparse.linalg as spla
 
-    from mesastrain.assembly import assemble
-    from mesastrain.pipeline import support_dofs
-    from mesastrain.solve import condense
+    from mesastrain.fem.assembly import assemble
+    from mesastrain.run.pipeline import support_dofs
+    from mesastrain.fem.solve import condense
     from common import build_model
 
     case = demo_case(order, refine)

@@ -17,10 +17,10 @@ from pathlib import Path
 
 import numpy as np
 
-from mesastrain.casefile import DEFAULT_CUT_COMPONENTS, FIELD_COMPONENTS
-from mesastrain.cuts import components, plot_cut, write_cut_csv
-from mesastrain.export import from_vtk6
-from mesastrain.render import load
+from mesastrain.case.parse import DEFAULT_CUT_COMPONENTS, FIELD_COMPONENTS
+from mesastrain.derived.cuts import components, plot_cut, write_cut_csv
+from mesastrain.io.export import from_vtk6
+from mesastrain.io.render import load
 
 
 def main(argv=None) -> int:

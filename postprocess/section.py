@@ -13,7 +13,7 @@ import argparse
 import sys
 from pathlib import Path
 
-from mesastrain.render import render_section
+from mesastrain.io.render import render_section
 
 
 def main(argv=None) -> int:

@@ -16,8 +16,8 @@ import argparse
 import sys
 from pathlib import Path
 
-from mesastrain.casefile import FIELD_COMPONENTS
-from mesastrain.render import render_map
+from mesastrain.case.parse import FIELD_COMPONENTS
+from mesastrain.io.render import render_map
 
 
 def main(argv=None) -> int:

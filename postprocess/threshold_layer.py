@@ -17,8 +17,8 @@ from pathlib import Path
 
 import numpy as np
 
-from mesastrain.casefile import FIELD_COMPONENTS
-from mesastrain.render import load, render_layer
+from mesastrain.case.parse import FIELD_COMPONENTS
+from mesastrain.io.render import load, render_layer
 
 
 def main(argv=None) -> int:

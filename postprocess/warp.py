@@ -13,8 +13,8 @@ import argparse
 import sys
 from pathlib import Path
 
-from mesastrain.casefile import FIELD_COMPONENTS
-from mesastrain.render import render_warped
+from mesastrain.case.parse import FIELD_COMPONENTS
+from mesastrain.io.render import render_warped
 
 
 def main(argv=None) -> int:

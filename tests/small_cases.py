@@ -1,4 +1,8 @@
-"""Small case files shared by the end-to-end tests (our own scenarios; solve in seconds)."""
+"""Small case files and fixtures shared by the tests (our own scenarios; solve in seconds)."""
+
+import numpy as np
+
+from mesastrain.physics.crystal import voigt_to_full
 
 #: A 200 nm square Si0.8Ge0.2 mesa on Si(001), <110> edges, coarse mesh, one probe.
 SMALL_MESA = """
@@ -24,3 +28,28 @@ edge_size = 10
 name = "centre"
 at = [0, 0, 10]
 """
+
+
+def rotated_cubic(c11, c12, c44, angle_deg, axis=(1.0, 1.0, 1.0)):
+    """Cubic stiffness (GPa) rotated by an angle about an axis, as a Voigt matrix."""
+    from mesastrain.physics.crystal import full_to_voigt
+
+    a = np.asarray(axis, float) / np.linalg.norm(axis)
+    t = np.radians(angle_deg)
+    K = np.array([[0, -a[2], a[1]], [a[2], 0, -a[0]], [-a[1], a[0], 0]])
+    R = np.eye(3) + np.sin(t) * K + (1 - np.cos(t)) * K @ K
+    c6 = np.zeros((6, 6))
+    c6[:3, :3] = c12
+    c6[np.arange(3), np.arange(3)] = c11
+    c6[3, 3] = c6[4, 4] = c6[5, 5] = c44
+    C = voigt_to_full(c6)
+    Cr = np.einsum("ia,jb,kc,ld,abcd->ijkl", R, R, R, R, C)
+    return full_to_voigt(Cr)
+
+
+#: Si (C11, C12, C44 = 165.8, 63.9, 79.6 GPa; Hopcroft et al., J. MEMS 19, 2010) and a
+#: stiffer second material, both rotated off the cube axes so every coupling is present.
+STIFF = np.stack([rotated_cubic(165.8, 63.9, 79.6, 37.0),
+                  rotated_cubic(190.0, 70.0, 60.0, -23.0, axis=(1.0, -2.0, 0.5))])
+EIG = np.stack([np.zeros((3, 3)),
+                np.array([[-0.012, 0.001, 0.0], [0.001, -0.010, 0.002], [0.0, 0.002, 0.004]])])

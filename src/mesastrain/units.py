@@ -20,7 +20,7 @@ import math
 import re
 from decimal import Decimal
 
-from .errors import CaseError
+from mesastrain.errors import CaseError
 
 __all__ = ["LENGTH_UNITS", "TEMPERATURE_UNITS", "is_number", "parse_length",
            "parse_temperature", "show_value"]

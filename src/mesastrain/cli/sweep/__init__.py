@@ -1,0 +1,1 @@
+"""cli.sweep layer of mesastrain."""

@@ -1,0 +1,1 @@
+"""derived layer of mesastrain."""

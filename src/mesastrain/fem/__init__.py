@@ -1,0 +1,1 @@
+"""fem layer of mesastrain."""

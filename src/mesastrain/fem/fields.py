@@ -1,0 +1,217 @@
+"""Strain and stress recovered from the displacement.
+
+Definitions (sample frame unless a name says ``crystal``)
+--------------------------------------------------------
+total strain
+    eps = sym(grad u), measured from the reference lattice (the substrate's).
+elastic strain
+    eps_el = eps - eps0 = C^-1 sigma: the lattice strain of each material
+    relative to its own relaxed lattice. This is what the outputs call
+    ``strain``.
+stress
+    sigma = C : eps_el, in MPa (positive in tension).
+von Mises
+    sqrt(3/2 s:s) with s the deviatoric stress, MPa.
+hydrostatic
+    tr(sigma)/3, MPa (negative in compression).
+
+Element values are averages over each element (exact for the mean of the
+strain, which is linear in the displacement); nodal values are the
+volume-weighted average of the elements around each node (a smoothed
+field for viewing; probes and cuts are evaluated exactly in their element).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import scipy.sparse as sp
+
+from mesastrain.fem.assembly import CHUNK, Discretisation
+from mesastrain.physics.crystal import voigt_to_full
+
+GPA_TO_MPA = 1000.0
+
+
+@dataclass(frozen=True)
+class Fields:
+    """Recovered fields on a mesh.
+
+    Attributes
+    ----------
+    displacement : ndarray (nnodes, 3)
+        Displacement at the mesh vertices, nm.
+    cell_strain, cell_total_strain, cell_stress : ndarray (nelems, 3, 3)
+        Element averages: elastic strain, total strain, stress (MPa).
+    node_strain, node_stress : ndarray (nnodes, 3, 3)
+        Smoothed nodal elastic strain and stress (MPa).
+    cell_volume : ndarray (nelems,)
+        nm^3.
+    """
+
+    displacement: np.ndarray
+    cell_strain: np.ndarray
+    cell_total_strain: np.ndarray
+    cell_stress: np.ndarray
+    node_strain: np.ndarray
+    node_stress: np.ndarray
+    cell_volume: np.ndarray
+
+
+def von_mises(sig: np.ndarray) -> np.ndarray:
+    """Von Mises equivalent stress of tensors (..., 3, 3), same unit."""
+    s = sig - np.trace(sig, axis1=-2, axis2=-1)[..., None, None] * np.eye(3) / 3.0
+    return np.sqrt(1.5 * np.einsum("...ij,...ij->...", s, s))
+
+
+def hydrostatic(sig: np.ndarray) -> np.ndarray:
+    """Mean normal stress tr(sigma)/3 of tensors (..., 3, 3)."""
+    return np.trace(sig, axis1=-2, axis2=-1) / 3.0
+
+
+def principal(sig: np.ndarray) -> np.ndarray:
+    """Principal values of symmetric tensors (..., 3, 3), descending."""
+    return np.linalg.eigvalsh(sig)[..., ::-1]
+
+
+def _sym(g: np.ndarray) -> np.ndarray:
+    return 0.5 * (g + np.swapaxes(g, -1, -2))
+
+
+def nodal_average_matrix(element_vertices: np.ndarray, volume: np.ndarray,
+                         nnodes: int) -> sp.csc_matrix:
+    """Sparse operator from element values to volume-weighted nodal averages.
+
+    Parameters
+    ----------
+    element_vertices : ndarray of int (nv, nelems)
+    volume : ndarray (nelems,)
+        Element volumes (the weights), nm^3.
+    nnodes : int
+
+    Returns
+    -------
+    csc_matrix (nnodes, nelems)
+        Row v holds vol_e / sum(vol) over the elements e around vertex v. Built
+        as the transpose of an element-by-vertex CSR matrix, which needs no
+        sorting or conversion.
+    """
+    verts = np.asarray(element_vertices)
+    nv, nel = verts.shape
+    vol = np.asarray(volume, dtype=float)
+    wsum = np.bincount(verts.ravel(), weights=np.tile(vol, nv), minlength=nnodes)
+    wsum[wsum == 0] = 1.0
+    cols = verts.T.ravel()
+    vals = np.repeat(vol, nv) / wsum[cols]
+    E = sp.csr_matrix((vals, cols, np.arange(0, nv * nel + 1, nv)), shape=(nel, nnodes))
+    return E.T
+
+
+def _stress_of(C: np.ndarray, group: np.ndarray, el: np.ndarray) -> np.ndarray:
+    """sigma = C[group] : el, one contraction per material group (GPa)."""
+    sig = np.empty_like(el)
+    for g in np.unique(group):
+        m = group == g
+        sig[m] = np.einsum("ijkl,nkl->nij", C[g], el[m])
+    return sig
+
+
+def recover(disc: Discretisation, u: np.ndarray, group: np.ndarray,
+            stiffness: np.ndarray, eigenstrain: np.ndarray, nnodes: int,
+            element_vertices: np.ndarray, cell_eigenstrain: np.ndarray | None = None) -> Fields:
+    """Element and nodal strain/stress from the displacement vector.
+
+    Element averages use the element-mean shape-function gradients (one
+    contraction per element; closed form on brick meshes). Nodal values are a
+    sparse averaging operator applied to the element values. Memory: the
+    returned arrays plus one chunk of temporaries.
+
+    Parameters
+    ----------
+    disc : Discretisation
+    u : ndarray (ndofs,)
+        Displacement, nm, node-major (3 per scalar dof).
+    group, stiffness, eigenstrain
+        As in :func:`mesastrain.fem.assembly.assemble` (GPa).
+    nnodes : int
+        Number of mesh vertices (the first scalar dofs are the vertices).
+    element_vertices : ndarray (nv, nelems)
+        Vertex indices of each element (mesh.t).
+    cell_eigenstrain : ndarray (nelems, 3, 3), optional
+        Extra per-element eigenstrain, as in :func:`mesastrain.fem.assembly.assemble`.
+    """
+    C = voigt_to_full(np.asarray(stiffness, dtype=float))
+    eig = np.asarray(eigenstrain, dtype=float)
+    group = np.asarray(group)
+    nel = disc.element_dofs.shape[1]
+    U = u.reshape(-1, 3)
+    tot = np.empty((nel, 3, 3))
+    vol = np.empty(nel)
+    for start in range(0, nel, CHUNK):
+        sl = slice(start, min(start + CHUNK, nel))
+        gbar, v = disc.mean_gradients(sl)                # (n,a,3), (n,)
+        ue = U[disc.element_dofs[:, sl].T]               # (n,a,3)
+        grad = np.matmul(ue.transpose(0, 2, 1), gbar)    # du_i/dx_j, element mean
+        tot[sl] = _sym(grad)
+        vol[sl] = v
+    el = tot - eig[group]
+    if cell_eigenstrain is not None:
+        el -= cell_eigenstrain
+    sig = _stress_of(C, group, el)
+    sig *= GPA_TO_MPA
+    S = nodal_average_matrix(element_vertices, vol, nnodes)
+    node_strain = (S @ el.reshape(nel, 9)).reshape(nnodes, 3, 3)
+    node_stress = (S @ sig.reshape(nel, 9)).reshape(nnodes, 3, 3)
+    disp = U[:nnodes].copy()
+    return Fields(displacement=disp, cell_strain=el, cell_total_strain=tot, cell_stress=sig,
+                  node_strain=node_strain, node_stress=node_stress, cell_volume=vol)
+
+
+def evaluate_at_points(disc: Discretisation, u: np.ndarray, elements: np.ndarray,
+                       points: np.ndarray, group: np.ndarray, stiffness: np.ndarray,
+                       eigenstrain: np.ndarray, cell_eigenstrain: np.ndarray | None = None
+                       ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Exact elastic strain and stress at points inside known elements.
+
+    Parameters
+    ----------
+    disc : Discretisation
+    u : ndarray (ndofs,)
+    elements : ndarray of int (npts,)
+        Element containing each point.
+    points : ndarray (npts, 3), nm
+    group, stiffness, eigenstrain, cell_eigenstrain : as for :func:`recover`
+
+    Returns
+    -------
+    strain : ndarray (npts, 3, 3)
+        Elastic strain (sample frame).
+    stress : ndarray (npts, 3, 3)
+        Stress, MPa.
+    displacement : ndarray (npts, 3)
+        nm.
+    """
+    mesh = disc.basis.mesh
+    elem = disc.basis.elem
+    mapping = mesh.mapping()
+    x = np.asarray(points, dtype=float).T[:, :, None]            # (3, npts, 1)
+    X = mapping.invF(x, tind=elements)                            # (3, npts, 1)
+    invDF = mapping.invDF(X, tind=elements)                       # (3,3,npts,1)
+    Xf = X[:, :, 0]
+    U = u.reshape(-1, 3)
+    ue = U[disc.element_dofs[:, elements].T]                      # (npts, a, 3)
+    grad = np.zeros((len(elements), 3, 3))
+    disp = np.zeros((len(elements), 3))
+    for a in range(disc.nloc):
+        phi, dphi = elem.lbasis(Xf, a)                            # (npts,), (3, npts)
+        dx = np.einsum("ijp,ip->jp", invDF[:, :, :, 0], dphi)     # (3, npts)
+        grad += np.einsum("pi,jp->pij", ue[:, a, :], dx)
+        disp += phi[:, None] * ue[:, a, :]
+    tot = _sym(grad)
+    C = voigt_to_full(np.asarray(stiffness, dtype=float))
+    el = tot - np.asarray(eigenstrain)[group[elements]]
+    if cell_eigenstrain is not None:
+        el = el - cell_eigenstrain[elements]
+    sig = np.einsum("nijkl,nkl->nij", C[group[elements]], el) * GPA_TO_MPA
+    return el, sig, disp

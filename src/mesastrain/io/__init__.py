@@ -1,0 +1,1 @@
+"""io layer of mesastrain."""

@@ -1,0 +1,244 @@
+"""Unfold a half or quarter model into the whole feature after the solve.
+
+A mirror-symmetric problem is solved on x >= 0 (and/or y >= 0) only; the
+result is then reflected so that everything downstream (fields.vtu, layer
+figures, readouts, probes) sees the whole body. With S = diag(s) the
+reflection of an image (s = +-1 per axis):
+
+    u(S x) = S u(x),   eps(S x) = S eps(x) S,   sigma(S x) = S sigma(x) S
+
+(uniqueness of the linear-elastic solution of a symmetric problem, common
+practice). Nothing is solved or integrated again: the reflected copies reuse
+the solved part's shape-function data. An element of an image keeps the local
+node order of its original, so its shape-function gradients are the
+original's with the mirrored components negated:
+grad N_a(S x) = S grad N_a(x). Its vertices are reordered only in the mesh
+used for export, so that exported cells are positively oriented.
+"""
+
+from __future__ import annotations
+
+import itertools
+from dataclasses import dataclass, replace
+from types import SimpleNamespace
+
+import numpy as np
+
+from mesastrain.fem.assembly import Discretisation
+
+
+def images(mirrors) -> np.ndarray:
+    """Sign vectors (nimg, 3) of the identity and every reflection over ``mirrors``."""
+    out = []
+    for flips in itertools.product((1.0, -1.0), repeat=len(mirrors)):
+        s = np.ones(3)
+        for a, f in zip(mirrors, flips):
+            s[a] = f
+        out.append(s)
+    return np.array(out)
+
+
+def _merge(points: list, span: float) -> tuple[int, list]:
+    """Number the union of point sets, merging coincident points.
+
+    The first set keeps its numbering (0..n-1). Returns (count, maps) with
+    maps[k][i] the new number of point i of set k.
+    """
+    allp = np.concatenate(points, axis=1).T
+    q = span * 1e-9
+    keys = np.round(allp / q).astype(np.int64)
+    _, first, inverse = np.unique(keys, axis=0, return_index=True, return_inverse=True)
+    inverse = inverse.ravel()
+    rank = np.empty(len(first), dtype=np.int64)
+    rank[np.argsort(first, kind="stable")] = np.arange(len(first))
+    ids = rank[inverse]
+    maps, start = [], 0
+    for p in points:
+        maps.append(ids[start:start + p.shape[1]])
+        start += p.shape[1]
+    return len(first), maps
+
+
+def _orientation_permutation(elem) -> np.ndarray | None:
+    """Local vertex permutation that turns a mirror-image element right-handed again."""
+    ref = np.asarray(elem.doflocs, dtype=float)
+    nv = {"hex": 8, "quad": 4, "tet": 4, "tri": 3}
+    name = type(elem).__name__.lower()
+    if "tet" in name:
+        return np.array([1, 0, 2, 3])
+    if "tri" in name:
+        return np.array([1, 0, 2])
+    n = nv["hex"] if "hex" in name else nv["quad"]
+    ref = ref[:n]
+    flipped = ref.copy()
+    flipped[:, 0] = 1.0 - flipped[:, 0] if ref[:, 0].min() >= 0 else -flipped[:, 0]
+    perm = np.array([int(np.flatnonzero(np.all(np.isclose(ref, f), axis=1))[0]) for f in flipped])
+    return perm
+
+
+@dataclass(frozen=True)
+class MirroredDiscretisation(Discretisation):
+    """The whole feature's discretisation, built from the solved part by reflection.
+
+    Attributes (besides those of Discretisation)
+    ----------
+    parent : Discretisation
+        The solved part's.
+    elem_map : ndarray of int (nelems,)
+        Element of the solved part each element is an image of.
+    signs : ndarray (nelems, 3)
+        Reflection of each element (+1 or -1 per axis).
+    """
+
+    parent: Discretisation = None
+    elem_map: np.ndarray = None
+    signs: np.ndarray = None
+
+    def gradients(self, elements=slice(None)) -> np.ndarray:
+        e = np.arange(self.elem_map.size)[elements]
+        g = self.parent.gradients(self.elem_map[e])
+        return g * self.signs[e][:, None, None, :]
+
+    def weights(self, elements=slice(None)) -> np.ndarray:
+        e = np.arange(self.elem_map.size)[elements]
+        return self.parent.weights(self.elem_map[e])
+
+
+@dataclass(frozen=True)
+class Unfolded:
+    """Arrays of the whole feature built from a solved part.
+
+    Attributes
+    ----------
+    p : ndarray (dim, nverts)
+    t_solve : ndarray (nv_el, nelems)
+        Connectivity in the local order of the solved part (used by ``disc``).
+    t_export : ndarray (nv_el, nelems)
+        Connectivity with positively oriented elements (for export and viewing).
+    layer : ndarray (nelems,)
+    disc : MirroredDiscretisation
+    u : ndarray (ndofs,)
+    image_of_element : ndarray of int (nelems,)
+        Index of the image (row of ``images``) each element belongs to.
+    images : ndarray (nimg, 3)
+    """
+
+    p: np.ndarray
+    t_solve: np.ndarray
+    t_export: np.ndarray
+    layer: np.ndarray
+    disc: MirroredDiscretisation
+    u: np.ndarray
+    image_of_element: np.ndarray
+    images: np.ndarray
+
+
+def unfold(p: np.ndarray, t: np.ndarray, layer: np.ndarray, disc: Discretisation,
+           u: np.ndarray, mirrors, mesh_type) -> Unfolded:
+    """Reflect a solved part over its mirror planes.
+
+    Parameters
+    ----------
+    p : ndarray (dim, nverts)
+        Vertices of the solved part (dim 3, or 2 for an x-z cross-section whose
+        first coordinate is x).
+    t : ndarray (nv_el, nelems)
+    layer : ndarray (nelems,)
+    disc : Discretisation
+        Of the solved part; its first ``nverts`` scalar dofs are the vertices.
+    u : ndarray (ndofs,)
+    mirrors : tuple of int
+        Mirrored axes (0 = x, 1 = y).
+    mesh_type : type
+        scikit-fem mesh class of the result (MeshHex, MeshTet, MeshQuad ...).
+    """
+    imgs = images(mirrors)
+    dim = p.shape[0]
+    sp_ = imgs if dim == 3 else imgs[:, [0, 2]]     # a cross-section holds (x, z)
+    nv = p.shape[1]
+    span = float(np.max(np.ptp(disc.doflocs, axis=1))) or 1.0
+    vcount, vmaps = _merge([p * s[:, None] for s in sp_], span)
+    extra = disc.doflocs[:, nv:]
+    ecount, emaps = _merge([extra * s[:, None] for s in imgs], span)
+    dmaps = [np.concatenate([vm, vcount + em]) for vm, em in zip(vmaps, emaps)]
+    nfull = vcount + ecount
+    doflocs = np.empty((3, nfull))
+    U = u.reshape(-1, 3)
+    Ufull = np.empty((nfull, 3))
+    for s, dm in zip(imgs, dmaps):
+        doflocs[:, dm] = disc.doflocs * s[:, None]
+        Ufull[dm] = U * s
+    pfull = np.empty((dim, vcount))
+    for s, vm in zip(sp_, vmaps):
+        pfull[:, vm] = p * s[:, None]
+    nel = t.shape[1]
+    t_solve = np.concatenate([vm[t] for vm in vmaps], axis=1)
+    perm = _orientation_permutation(disc.basis.elem) if hasattr(disc.basis, "elem") else None
+    parts = []
+    for s, vm in zip(imgs, vmaps):
+        tt = vm[t]
+        if perm is not None and np.prod(s) < 0:
+            tt = tt[perm[:tt.shape[0]]] if perm.size == tt.shape[0] else tt
+        parts.append(tt)
+    t_export = np.concatenate(parts, axis=1)
+    edofs = np.concatenate([dm[disc.element_dofs] for dm in dmaps], axis=1)
+    k = len(imgs)
+    elem_map = np.tile(np.arange(nel), k)
+    signs = np.repeat(imgs, nel, axis=0)
+    solve_mesh = mesh_type(pfull, t_solve)
+    basis = SimpleNamespace(mesh=solve_mesh, elem=disc.basis.elem)
+    full = MirroredDiscretisation(basis=basis, order=disc.order,
+                                  element_dofs=np.ascontiguousarray(edofs), ndofs=3 * nfull,
+                                  doflocs=doflocs, parent=disc, elem_map=elem_map, signs=signs)
+    return Unfolded(p=pfull, t_solve=t_solve, t_export=t_export, layer=np.tile(layer, k),
+                    disc=full, u=Ufull.ravel(), image_of_element=np.repeat(np.arange(k), nel),
+                    images=imgs)
+
+
+def unfold_stack_mesh(sm, uf: Unfolded):
+    """The whole structured StackMesh (grid, cell map, export mesh) from an unfolded part."""
+    from skfem import MeshHex
+
+    geom = sm.geometry
+    xs, ys = sm.xs, sm.ys
+    nx, ny = len(xs) - 1, len(ys) - 1
+    full_x = np.concatenate([-xs[:0:-1], xs]) if 0 in geom.mirrors else xs
+    full_y = np.concatenate([-ys[:0:-1], ys]) if 1 in geom.mirrors else ys
+    cog = np.full((len(full_x) - 1, len(full_y) - 1, len(sm.zs) - 1), -1, dtype=np.int64)
+    ix, iy, iz = np.nonzero(sm.cell_of_grid >= 0)
+    e = sm.cell_of_grid[ix, iy, iz]
+    nel = sm.nelems
+    for k, s in enumerate(uf.images):
+        jx = ix if 0 not in geom.mirrors else (nx + ix if s[0] > 0 else nx - 1 - ix)
+        jy = iy if 1 not in geom.mirrors else (ny + iy if s[1] > 0 else ny - 1 - iy)
+        cog[jx, jy, iz] = k * nel + e
+    mesh = MeshHex(uf.p, uf.t_export)
+    return replace(sm, mesh=mesh, layer=uf.layer, xs=full_x, ys=full_y, cell_of_grid=cog,
+                   geometry=replace(geom, mirrors=()))
+
+
+def unfold_model(sm, disc: Discretisation, u: np.ndarray):
+    """The whole feature's mesh object, discretisation and displacement.
+
+    Parameters
+    ----------
+    sm : StackMesh, UnstructuredMesh or SectionMesh
+        The solved part (``sm.mirrors`` not empty).
+    disc : Discretisation
+    u : ndarray
+
+    Returns
+    -------
+    (mesh object, MirroredDiscretisation, u)
+    """
+    skm = getattr(sm, "solve_mesh", None)
+    skm = sm.mesh if skm is None else skm
+    uf = unfold(skm.p, skm.t, sm.layer, disc, u, sm.mirrors, type(skm))
+    kind = getattr(sm, "kind", "structured")
+    if kind == "structured":
+        full = unfold_stack_mesh(sm, uf)
+    elif hasattr(sm, "unfolded"):
+        full = sm.unfolded(uf)
+    else:
+        full = replace(sm, mesh=type(skm)(uf.p, uf.t_export), layer=uf.layer, mirrors=())
+    return full, uf.disc, uf.u

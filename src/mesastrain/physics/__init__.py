@@ -1,0 +1,1 @@
+"""physics layer of mesastrain."""

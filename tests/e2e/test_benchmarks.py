@@ -1,0 +1,41 @@
+"""The benchmark scripts run at a tiny size and print their tables (not a timing test)."""
+
+import subprocess
+import sys
+from pathlib import Path
+
+import pytest
+
+ROOT = Path(__file__).resolve().parents[2]
+
+
+def run(script, *args, timeout=120):
+    proc = subprocess.run([sys.executable, str(ROOT / "benchmarks" / script), *args],
+                          capture_output=True, text=True, timeout=timeout, cwd=ROOT)
+    assert proc.returncode == 0, proc.stderr[-2000:]
+    return proc.stdout
+
+
+@pytest.mark.slow
+def test_solver_scaling_runs_tiny(tmp_path):
+    import json
+
+    out = run("solver_scaling.py", "--tiny", "--json", str(tmp_path / "rows.json"))
+    assert "memory bandwidth" in out and "floor x" in out and "growth" in out
+    rows = json.loads((tmp_path / "rows.json").read_text())["rows"]
+    assert len(rows) == 2
+    for r in rows:
+        assert "error" not in r
+        assert r["unknowns"] > 0 and r["nonzeros"] > r["unknowns"]
+        assert r["residual"] <= 1e-8 and r["iterations"] > 0
+        assert r["peak_gb"] > 0
+        d = r["direct"]                     # the direct solver ran on the same system
+        assert "error" not in d and d["residual"] < 1e-10
+        assert d["unknowns"] == r["free_unknowns"]
+
+
+@pytest.mark.slow
+def test_time_to_accuracy_runs_tiny():
+    out = run("time_to_accuracy.py", "--tiny")
+    assert "reference" in out and "centre err" in out
+    assert out.count("\n    1 ") == 1 and out.count("\n    2 ") == 1

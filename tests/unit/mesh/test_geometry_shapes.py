@@ -1,0 +1,109 @@
+"""Disks, polygons, rounded and tapered rectangles meshed with gmsh (tetrahedra).
+
+Geometry checks compare the meshed film volume with the exact one (plane
+geometry: circle, frustum of a cone V = pi h (R1^2 + R1 R2 + R2^2)/3, rounded
+rectangle W L - (4 - pi) r^2, shoelace area of a polygon; common practice).
+Physics checks: a c-plane wurtzite film is transversely isotropic
+(REFERENCES.md section 4), so a disk of it on a c-plane substrate is
+axisymmetric; a periodic cell with mirror-symmetric content gives the same
+field with tied faces as with rollers.
+"""
+
+import numpy as np
+import pytest
+
+from mesastrain.case.parse import parse_case
+from mesastrain.mesh.shapes import build_shape_mesh, estimate_shape
+from mesastrain.run.pipeline import run_case
+
+pytest.importorskip("gmsh")
+H = 20.0
+
+
+def case_of(pattern, material=("Si", "SiGe"), normal=(0, 0, 1), x_axis=(1, 1, 0), order=2,
+            mesh=None, probes=()):
+    sub, film = material
+    layer = {"material": film, "thickness": H}
+    if film in ("SiGe", "AlGaN"):
+        layer["x"] = 0.3
+    return parse_case({
+        "substrate": {"material": sub, "thickness": "50 um", "normal": list(normal),
+                      "x_axis": list(x_axis)},
+        "layer": [layer],
+        "pattern": pattern,
+        "mesh": {"order": order, "size": 20, "edge_size": 10, "growth": 1.6, **(mesh or {})},
+        "probe": [{"name": f"p{k}", "at": list(p)} for k, p in enumerate(probes)],
+    })
+
+
+def film_volume(sm):
+    m = sm.mesh
+    v = m.p[:, m.t]
+    d = np.einsum("ij,ij->j", np.cross(v[:, 1] - v[:, 0], v[:, 2] - v[:, 0], axis=0),
+                  v[:, 3] - v[:, 0]) / 6.0
+    return float(np.sum(np.abs(d)[sm.layer == 1]))
+
+
+@pytest.mark.parametrize("pattern, exact", [
+    ({"shape": "disk", "diameter": 200, "etch_depth": 30}, np.pi * 100 ** 2 * H),
+    ({"shape": "disk", "diameter": 200, "etch_depth": 30, "sidewall_angle": 60}, None),
+    ({"shape": "rectangle", "width": 200, "length": 120, "corner_radius": 30,
+      "etch_depth": 30}, (200 * 120 - (4 - np.pi) * 30 ** 2) * H),
+    ({"shape": "polygon", "vertices": [[-100, -60], [100, -60], [100, 0], [0, 0], [0, 60],
+                                       [-100, 60]], "etch_depth": 30},
+     (200 * 120 - 100 * 60) * H),
+])
+def test_meshed_film_volume(pattern, exact):
+    case = case_of(pattern)
+    if exact is None:       # tapered disk: frustum from R(z=0) to R(z=H)
+        t = 1.0 / np.tan(np.radians(pattern["sidewall_angle"]))
+        r_top, r_bottom = 100.0, 100.0 + H * t   # the sidewall moves out by depth * cot
+        exact = np.pi * H / 3 * (r_top ** 2 + r_top * r_bottom + r_bottom ** 2)
+    sm = build_shape_mesh(case, ())
+    assert film_volume(sm) == pytest.approx(exact, rel=0.01)
+    # every element of the film lies between its interfaces (conforming layers)
+    zc = sm.mesh.p[2, sm.mesh.t].mean(axis=0)
+    assert np.all((zc[sm.layer == 1] > 0) & (zc[sm.layer == 1] < H))
+    # the size estimate without meshing is within a factor 1.5 of the real count
+    est = estimate_shape(case)
+    assert 1 / 1.5 < est.elements / sm.nelems < 1.5
+
+
+def test_quarter_of_a_disk_is_a_quarter():
+    case = case_of({"shape": "disk", "diameter": 200, "etch_depth": 30})
+    full = build_shape_mesh(case, ())
+    quarter = build_shape_mesh(case, (0, 1))
+    assert quarter.mesh.p[0].min() == pytest.approx(0.0, abs=1e-9)
+    assert film_volume(quarter) == pytest.approx(film_volume(full) / 4, rel=0.01)
+
+
+def test_c_plane_disk_is_axisymmetric():
+    r = 60.0
+    probes = [(r, 0, H / 2), (r / np.sqrt(2), r / np.sqrt(2), H / 2), (0, 0, H / 2)]
+    case = case_of({"shape": "disk", "diameter": 200, "etch_depth": 30},
+                   material=("GaN", "AlGaN"), normal=(0, 0, 0, 1), x_axis=(2, -1, -1, 0),
+                   probes=probes, mesh={"size": 10, "edge_size": 5})
+    res = run_case(case, derive=False)
+    assert res.derived[0].summary["model"]["model"] == "quarter"
+    s_x, s_d, s_c = (p["stress"] for p in res.probes)
+    d = np.array([1.0, 1.0, 0.0]) / np.sqrt(2.0)
+    srr_x, srr_d = s_x[0, 0], d @ s_d @ d
+    stt_x, stt_d = s_x[1, 1], np.array([-d[1], d[0], 0]) @ s_d @ np.array([-d[1], d[0], 0])
+    scale = abs(s_c[0, 0])
+    assert abs(srr_x - srr_d) < 0.02 * scale
+    assert abs(stt_x - stt_d) < 0.02 * scale
+    assert s_c[0, 0] == pytest.approx(s_c[1, 1], rel=5e-3)    # meshes are not x-y symmetric
+
+
+def test_periodic_disk_cell_ties_equal_rollers_for_a_symmetric_cell():
+    pattern = {"shape": "disk", "diameter": 160, "etch_depth": 30, "pitch": 240}
+    probes = [(0, 0, H / 2), (50, 20, H / 2)]
+    fine = {"size": 10, "edge_size": 5}
+    quarter = run_case(case_of(pattern, probes=probes, mesh=fine), derive=False)
+    tied = run_case(case_of({**pattern, "symmetry": "full"}, probes=probes, mesh=fine),
+                    derive=False)
+    assert tied.derived[0].summary["model"]["periodic_axes"] == ["x", "y"]
+    assert quarter.derived[0].summary["model"]["periodic_axes"] == []
+    scale = abs(quarter.probes[0]["stress"][0, 0])
+    for a, b in zip(quarter.probes, tied.probes):      # different meshes: discretisation error
+        assert np.max(np.abs(a["stress"] - b["stress"])) < 0.02 * scale
