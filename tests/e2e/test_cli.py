@@ -84,14 +84,14 @@ def test_check_text(small_case, capsys):
 def test_check_counts_match_the_mesh(small_case, tmp_path):
     # the estimate counts unknowns without meshing; it must agree with the real mesh
     from mesastrain.case.parse import load_case
-    from mesastrain.run.pipeline import run_case
+    from mesastrain.derived import solve_and_derive
     from mesastrain.run.resources import estimate
     for order in (1, 2):
         text = SMALL.replace("order = 1", f"order = {order}").replace("size = 25", "size = 50")
         p = tmp_path / f"o{order}.toml"
         p.write_text(text)
         case = load_case(p)
-        res = run_case(case)
+        res = solve_and_derive(case)
         est = estimate(case)
         assert est.unknowns == res.u.size
         assert est.elements == res.mesh.nelems

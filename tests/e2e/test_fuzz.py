@@ -83,7 +83,7 @@ def _cut_balance(res, z):
 @given(valid_case())
 def test_valid_cases_solve_and_balance(d):
     case = parse_case(d)
-    res = run_case(case, derive=False)
+    res = run_case(case)
     assert np.all(np.isfinite(res.fields.cell_stress))
     film = res.layers[1]
     if case.pattern.shape == "none":
@@ -160,6 +160,6 @@ def test_invalid_cases_fail_cleanly(edits):
         return
     # whatever survived validation must run (small) or fail with our own error
     try:
-        run_case(case, derive=False, max_memory_gb=2.0)
+        run_case(case, max_memory_gb=2.0)
     except MesastrainError as exc:
         assert "\n" not in str(exc)

@@ -85,7 +85,7 @@ def results_table(summary: dict) -> str:
 def cmd_run(args) -> int:
     from mesastrain.io.export import jsonable
     from mesastrain.io.folder import CAUTION, summary_of, write_result
-    from mesastrain.run.pipeline import run_case
+    from mesastrain.derived import EIGENSTRAIN_SOURCES, PROVIDERS, solve_and_derive
 
     case = _load(args.case)
     out = Path(args.out) if args.out else Path(Path(args.case).stem + "-results")
@@ -98,9 +98,11 @@ def cmd_run(args) -> int:
     if getattr(args, "convergence", False) or getattr(case.mesh, "convergence", None):
         from mesastrain.run.convergence import study as convergence_study
 
-        res, study = convergence_study(case, progress=progress, max_memory_gb=args.max_memory)
+        res, study = convergence_study(case, progress=progress, max_memory_gb=args.max_memory,
+                                            providers=PROVIDERS,
+                                            eigenstrain_sources=EIGENSTRAIN_SOURCES)
     else:
-        res = run_case(case, progress=progress, max_memory_gb=args.max_memory)
+        res = solve_and_derive(case, progress=progress, max_memory_gb=args.max_memory)
     progress("writing results")
     write_result(res, out, overwrite=args.overwrite)
     summary = jsonable(summary_of(res))

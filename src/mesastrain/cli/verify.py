@@ -90,9 +90,10 @@ def _case(substrate: str, layer: dict, normal=(0, 0, 1), x_axis=(1, 0, 0), thick
 
 def _blanket_film_stress(case) -> tuple[np.ndarray, np.ndarray, object]:
     """FE stress and elastic strain at mid-film of a blanket case, and the layer model."""
+    from mesastrain.derived import EIGENSTRAIN_SOURCES
     from mesastrain.run.pipeline import run_case
 
-    res = run_case(case, derive=False)
+    res = run_case(case, eigenstrain_sources=EIGENSTRAIN_SOURCES)
     lm = res.layers[1]
     z = 0.5 * (lm.z_bottom + lm.z_top)
     strain, stress, _, _ = res.sample(np.array([[0.0, 0.0, z]]))

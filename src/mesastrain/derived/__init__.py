@@ -1,1 +1,47 @@
-"""derived layer of mesastrain."""
+"""Derived quantities: readouts computed from a solved :class:`mesastrain.run.result.Result`.
+
+Each provider is a pure function ``derive(result) -> Derived``. The pipeline runs the
+providers it is given, in order; :data:`PROVIDERS` is the standard list, passed by the
+command line, the sweep workers and the convergence study. Add a provider by writing
+its module here and appending its ``derive`` to :data:`PROVIDERS`.
+"""
+
+from mesastrain.derived import bow, cuts, device, misfit, readouts
+from mesastrain.run.pipeline import run_case
+
+#: The standard derived-quantity providers, in run order (the order of the entries in
+#: ``summary.json`` and of the warnings).
+PROVIDERS = (
+    device.derive,      # band edges, Raman shift, piezoresistance
+    readouts.derive,    # relaxation, corners, tractions, energy, critical thickness
+    bow.derive,         # free-standing blanket wafer: FE, Stoney, laminate
+    cuts.derive,        # [[cut]] -> CSV + PNG
+    misfit.derive,      # dislocation contribution, overlay, relaxation
+)
+
+#: Extra eigenstrain sources, ``source(case, layers, mesh) -> (nelems, 3, 3) or None``.
+EIGENSTRAIN_SOURCES = (misfit.eigenstrain_source,)   # [[dislocations]] -> eigenstrain sheets
+
+
+
+def solve_and_derive(case, progress=None, max_memory_gb: float | None = None):
+    """Solve a case and compute every standard derived quantity.
+
+    :func:`mesastrain.run.pipeline.run_case` with :data:`PROVIDERS` and
+    :data:`EIGENSTRAIN_SOURCES`: what ``mesastrain run`` computes before writing.
+
+    Parameters
+    ----------
+    case : Case
+    progress : callable(str), optional
+    max_memory_gb : float, optional
+
+    Returns
+    -------
+    Result
+    """
+    return run_case(case, progress=progress, max_memory_gb=max_memory_gb,
+                    providers=PROVIDERS, eigenstrain_sources=EIGENSTRAIN_SOURCES)
+
+
+__all__ = ["PROVIDERS", "EIGENSTRAIN_SOURCES", "solve_and_derive"]

@@ -1003,13 +1003,3 @@ def report_section(summary: dict, folder) -> str | None:
     if src:
         parts.append('<p class="note">Parameters: ' + "; ".join(esc(x) for x in src) + "</p>")
     return "\n".join(parts)
-
-
-def _register_report_section() -> None:
-    """Put :func:`report_section` into the report, after the probes section."""
-    from mesastrain.io.report import add_section
-
-    add_section(report_section)
-
-
-_register_report_section()

@@ -1379,13 +1379,3 @@ def report_section(summary: dict, folder) -> str | None:
         parts.append(image(png, f"{esc(png.stem)}: total, dislocation part (finite elements) "
                                 "and infinite-medium overlay along the cut."))
     return "\n".join(parts)
-
-
-def _register_report_section() -> None:
-    """Put :func:`report_section` into the report, after the probes section."""
-    from mesastrain.io.report import add_section
-
-    add_section(report_section)
-
-
-_register_report_section()

@@ -7,8 +7,8 @@ file can be mailed or archived on its own.
 
 The body is built from :data:`SECTIONS`: functions
 ``section(summary: dict, folder: Path) -> str | None`` returning an HTML
-fragment (or None to leave the section out). Other modules add their own
-section by appending to the list; the warnings come first and the caution
+fragment (or None to leave the section out), listed explicitly in order; the
+warnings come first and the caution
 text (:data:`mesastrain.io.folder.CAUTION`) always closes the report.
 """
 
@@ -22,10 +22,10 @@ import math
 from pathlib import Path
 from typing import Callable
 
-log = logging.getLogger(__name__)
+from mesastrain.derived.device import report_section as device_section
+from mesastrain.derived.misfit import report_section as misfit_section
 
-#: Report sections in order: ``section(summary, folder) -> HTML fragment or None``.
-SECTIONS: list[Callable[[dict, Path], str | None]] = []
+log = logging.getLogger(__name__)
 
 REPORT_NAME = "report.html"
 
@@ -465,24 +465,10 @@ def section_convergence(summary: dict, folder: Path) -> str | None:
               'as the mesh is refined. Read stand-off values instead.</p>')
 
 
-SECTIONS.extend([section_inputs, section_stack, section_headline, section_bow, section_probes,
-                 section_convergence, section_pictures])
-
-
-def add_section(section: Callable[[dict, Path], str | None], after: str = "section_probes") -> None:
-    """Add a report section once, right after the section named ``after`` (or at the end).
-
-    Parameters
-    ----------
-    section : callable(summary, folder) -> str or None
-        Returns an HTML fragment, or None to leave the section out.
-    after : str
-        ``__name__`` of the section it follows.
-    """
-    if section in SECTIONS:
-        return
-    names = [getattr(f, "__name__", "") for f in SECTIONS]
-    SECTIONS.insert(names.index(after) + 1 if after in names else len(SECTIONS), section)
+#: Report sections in order: ``section(summary, folder) -> HTML fragment or None``.
+SECTIONS: tuple[Callable[[dict, Path], str | None], ...] = (
+    section_inputs, section_stack, section_headline, section_bow, section_probes,
+    misfit_section, device_section, section_convergence, section_pictures)
 
 
 # --------------------------------------------------------------------------

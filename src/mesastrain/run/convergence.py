@@ -118,7 +118,7 @@ def refined(case, factor: float):
 
 
 def study(case, levels: int = DEFAULT_LEVELS, ratio: float = DEFAULT_RATIO, progress=None,
-          max_memory_gb: float | None = None):
+          max_memory_gb: float | None = None, providers=(), eigenstrain_sources=()):
     """Solve a case on ``levels`` meshes and assess its headline figures.
 
     Parameters
@@ -131,6 +131,9 @@ def study(case, levels: int = DEFAULT_LEVELS, ratio: float = DEFAULT_RATIO, prog
     progress : callable(str), optional
     max_memory_gb : float, optional
         Levels whose estimate exceeds this are skipped (reported).
+    providers, eigenstrain_sources : sequences of callables
+        As for :func:`mesastrain.run.pipeline.run_case`; the providers run on the
+        case's own mesh only, the eigenstrain sources on every level.
 
     Returns
     -------
@@ -157,7 +160,8 @@ def study(case, levels: int = DEFAULT_LEVELS, ratio: float = DEFAULT_RATIO, prog
         say(f"convergence: level {k}, element sizes / {ratio ** k:.3g}")
         t = time.perf_counter()
         res = run_case(c, progress=progress if k == 0 else None, max_memory_gb=max_memory_gb,
-                       derive=(k == 0))
+                       providers=providers if k == 0 else (),
+                       eigenstrain_sources=eigenstrain_sources)
         if first is None:
             first = res
         info.append({"level": k, "refine": ratio ** k, "unknowns": int(res.u.size),

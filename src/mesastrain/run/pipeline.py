@@ -8,8 +8,8 @@
 :func:`run_case` chains the stages; each is a function of the previous
 stage's result. Writing the output folder is :mod:`mesastrain.io.folder`'s job.
 
-Derived quantities (readouts, device physics, ...) plug in through
-:data:`DERIVED`: each entry is a function ``derive(result) -> Derived`` that
+Derived quantities (readouts, device physics, ...) are the ``providers`` given to
+:func:`run_case`: each entry is a function ``derive(result) -> Derived`` that
 adds entries to ``summary.json``, arrays to ``fields.vtu``, warnings, and
 extra files to the output folder. They run after the solve and never change
 the fields.
@@ -20,7 +20,7 @@ from __future__ import annotations
 import logging
 import time
 from dataclasses import dataclass, field, replace
-from typing import Callable
+from typing import Callable, Sequence
 
 import numpy as np
 
@@ -170,14 +170,6 @@ def _extent_text(mesh) -> str:
     return ", ".join(parts) + " nm"
 
 
-#: Derived-quantity providers run after every solve, in order.
-DERIVED: list[Callable[[Result], Derived]] = []
-
-#: Extra eigenstrain sources: ``source(case, layers, mesh) -> (nelems, 3, 3) or None``,
-#: sample frame, added to the regions' eigenstrains (e.g. misfit dislocations).
-EIGENSTRAIN_SOURCES: list[Callable] = []
-
-
 def _boundary_dofs(disc, bounds) -> np.ndarray:
     """Roller conditions: u_z = 0 on the bottom, u_n = 0 on the four sides."""
     x = disc.doflocs
@@ -258,7 +250,8 @@ def build_model_mesh(case: Case, layers: list, sym: Symmetry):
 
 
 def run_case(case: Case, progress=None, max_memory_gb: float | None = None,
-             derive: bool = True) -> Result:
+             providers: Sequence[Callable] = (), eigenstrain_sources: Sequence[Callable] = ()
+             ) -> Result:
     """Solve a case.
 
     Parameters
@@ -269,8 +262,12 @@ def run_case(case: Case, progress=None, max_memory_gb: float | None = None,
     max_memory_gb : float, optional
         Refuse cases whose estimated peak memory exceeds this (default: the
         memory the system reports as available).
-    derive : bool
-        Run the derived-quantity providers of :data:`DERIVED`.
+    providers : sequence of callable(Result) -> Derived
+        Derived-quantity providers run after the solve, in order
+        (:data:`mesastrain.derived.PROVIDERS` is the standard list; empty: none).
+    eigenstrain_sources : sequence of callable(case, layers, mesh) -> ndarray or None
+        Extra per-element eigenstrains, sample frame, added to the regions' own
+        (:data:`mesastrain.derived.EIGENSTRAIN_SOURCES` is the standard list).
 
     Returns
     -------
@@ -283,9 +280,6 @@ def run_case(case: Case, progress=None, max_memory_gb: float | None = None,
     SolverError
         The solve failed or produced non-finite values.
     """
-    from mesastrain.derived.providers import register
-
-    register()
     say = progress or (lambda msg: None)
     timings = {}
     est = estimate(case)
@@ -300,12 +294,12 @@ def run_case(case: Case, progress=None, max_memory_gb: float | None = None,
     sm = build_model_mesh(case, layers, sym)
     stiff = np.array([lm.stiffness_sample for lm in layers])
     eig = np.array([lm.eigenstrain_sample for lm in layers])
-    extra = _extra_eigenstrain(case, layers, sm)
+    extra = _extra_eigenstrain(eigenstrain_sources, case, layers, sm)
     if extra is not None and sym.mirrors:
         # an extra source need not share the mirror planes: solve the whole feature
         sym = decide_symmetry(case, layers, extra_eigenstrain=True)
         sm = build_model_mesh(case, layers, sym)
-        extra = _extra_eigenstrain(case, layers, sm)
+        extra = _extra_eigenstrain(eigenstrain_sources, case, layers, sm)
     disc = discretise_mesh(sm, case.mesh.order)
     timings["mesh"] = time.perf_counter() - t
     say(f"mesh: {sm.nnodes:,} nodes, {sm.nelems:,} {_element_word(sm)}, order {disc.order}, "
@@ -339,9 +333,9 @@ def run_case(case: Case, progress=None, max_memory_gb: float | None = None,
     res.derived.append(Derived(summary={"model": model}))
     res.probes.extend(evaluate_probes(res))
     timings["recovery"] = time.perf_counter() - t
-    if derive:
+    if providers:
         t = time.perf_counter()
-        for provider in DERIVED:
+        for provider in providers:
             d = provider(res)
             res.derived.append(d)
             res.warnings.extend(d.warnings)
@@ -349,9 +343,9 @@ def run_case(case: Case, progress=None, max_memory_gb: float | None = None,
     return res
 
 
-def _extra_eigenstrain(case, layers, sm):
+def _extra_eigenstrain(sources, case, layers, sm):
     extra = None
-    for source in EIGENSTRAIN_SOURCES:
+    for source in sources:
         e = source(case, layers, sm)
         if e is not None:
             extra = e if extra is None else extra + e

@@ -8,7 +8,7 @@ from mesastrain.derived.bow import (biaxial_modulus, free_plate_curvature, lamin
 from mesastrain.case.parse import parse_case
 from mesastrain.io.export import jsonable
 from mesastrain.model.regions import build_layers
-from mesastrain.run.pipeline import run_case
+from mesastrain.derived import solve_and_derive
 from mesastrain.physics.thinfilm import biaxial_modulus_001, stoney_curvature, timoshenko_curvature
 
 H_S = 1.0e4      # substrate thickness, nm (the problem is scale free: only h_f/h_s matters)
@@ -102,7 +102,7 @@ def test_bow_in_a_run_summary():
                        "layer": [{"material": "SiGe", "x": 0.3, "thickness": 30}],
                        "output": {"report": False, "vtu": False},
                        "readouts": {"wafer_diameter": "300 mm"}})
-    res = run_case(case)
+    res = solve_and_derive(case)
     wb = jsonable(next(d.summary["wafer_bow"] for d in res.derived if "wafer_bow" in d.summary))
     fe, st = wb["finite_element"], wb["stoney"]
     # a 30 nm film on a 725 um wafer: Stoney is exact to ~1e-4 (h_f/h_s = 4e-5)

@@ -9,7 +9,7 @@ from mesastrain.case.parse import DEFAULT_CUT_COMPONENTS, parse_case
 from mesastrain.derived.cuts import components, safe_name
 from mesastrain.errors import CaseError
 from mesastrain.io.folder import write_result
-from mesastrain.run.pipeline import run_case
+from mesastrain.derived import solve_and_derive
 from mesastrain.physics.thinfilm import biaxial_modulus_001
 
 CASE = {
@@ -26,7 +26,7 @@ CASE = {
 
 @pytest.fixture(scope="module")
 def result(tmp_path_factory):
-    res = run_case(parse_case(CASE))
+    res = solve_and_derive(parse_case(CASE))
     out = tmp_path_factory.mktemp("cuts") / "r"
     write_result(res, out)
     return res, out

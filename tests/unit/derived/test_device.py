@@ -13,7 +13,7 @@ import pytest
 
 from mesastrain.run import pipeline
 
-from mesastrain.derived import providers as plugins
+from mesastrain.derived import PROVIDERS
 from mesastrain.physics.bands import band_parameters
 from mesastrain.case.parse import parse_case
 from mesastrain.cli.main import main
@@ -49,8 +49,8 @@ def blanket(substrate="SiGe", sub_x=0.2, layer="Si", layer_x=None, normal=(0, 0,
     return d
 
 
-def run(d: dict):
-    return pipeline.run_case(parse_case(d))
+def run(d: dict, sources=()):
+    return pipeline.run_case(parse_case(d), providers=PROVIDERS, eigenstrain_sources=sources)
 
 
 def summary(res) -> dict:
@@ -220,12 +220,10 @@ def test_channel_along_110_under_uniaxial_stress(kind, monkeypatch):
     # REFERENCES.md section 6: -31.2/-17.6 n-Si, +71.8/-66.3 p-Si in 1e-11/Pa [D]). A <100>
     # channel under the same stress sees (pi11 + pi12) sigma/2 (the <100> pi_l and pi_t, each
     # with half the stress, and no shear coefficient in cube axes).
-    plugins.register()
-    monkeypatch.setattr(pipeline, "EIGENSTRAIN_SOURCES", [_uniaxial_source(100.0)])
     d = blanket(substrate="Si", sub_x=None,
                 channel=[{"name": "along", "direction": [1, 0], "carrier": kind},
                          {"name": "cube", "direction": [1, 1], "carrier": kind}])
-    s = summary(run(d))
+    s = summary(run(d, sources=[_uniaxial_source(100.0)]))
     p = s["probes"][0]
     assert np.allclose(p["stress"], np.diag([100.0, 0.0, 0.0]), atol=1e-3)
     c = piezo_coefficients(f"{kind}-Si")

@@ -364,11 +364,11 @@ def test_case_errors_name_the_key(entry, pattern, key, words):
 
 
 def _blanket_run(relaxation, size="2 nm", probes=()):
-    from mesastrain.run.pipeline import run_case
+    from mesastrain.derived import solve_and_derive
 
     case = _case([{**SIXTY, "relaxation": relaxation}], mesh={"order": 1, "size": size},
                  probe=list(probes))
-    return case, run_case(case)
+    return case, solve_and_derive(case)
 
 
 def _dislocation_part(res):
@@ -450,14 +450,14 @@ def test_output_folder_and_report(tmp_path):
     import json
 
     from mesastrain.io.folder import write_result
-    from mesastrain.run.pipeline import run_case
+    from mesastrain.derived import solve_and_derive
 
     case = _case([{**SIXTY, "relaxation": 0.3}], mesh={"order": 1, "size": "3 nm"},
                  probe=[{"name": "p", "at": [3.0, 0.0, 25.0]}],
                  cut=[{"name": "c", "from": [-20, 0, 25], "to": [20, 0, 25], "points": 41}],
                  device={"bands": False, "raman": False, "piezo": False, "maps": False},
                  readouts={"bow": False}, output={"report": False})
-    out = write_result(run_case(case), tmp_path / "run")
+    out = write_result(solve_and_derive(case), tmp_path / "run")
     for name in ("dislocations_section.png", "cut_c_dislocations.csv",
                  "cut_c_dislocations.png"):
         assert (out / name).is_file(), name
@@ -475,12 +475,12 @@ def test_output_folder_and_report(tmp_path):
 
 def test_relaxation_needs_a_mismatch():
     # Si on Si has no mismatch: a relaxation target cannot set a spacing.
-    from mesastrain.run.pipeline import run_case
+    from mesastrain.derived import solve_and_derive
 
     case = _case([{**SIXTY, "relaxation": 0.5}], layers=[{"material": "Si",
                                                          "thickness": "20 nm"}])
     with pytest.raises(CaseError) as err:
-        run_case(case)
+        solve_and_derive(case)
     assert err.value.key == "dislocations[0].relaxation"
 
 

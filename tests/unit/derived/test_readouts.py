@@ -13,7 +13,7 @@ from mesastrain.case.parse import parse_case
 from mesastrain.errors import CaseError
 from mesastrain.io.export import jsonable
 from mesastrain.physics.materials import get_material
-from mesastrain.run.pipeline import run_case
+from mesastrain.derived import solve_and_derive
 from mesastrain.derived.readouts import relaxation_length
 from mesastrain.physics.thinfilm import biaxial_stress_ratios_110
 
@@ -27,7 +27,7 @@ def _readouts(res) -> dict:
 
 def _run(data: dict):
     data = {"output": QUIET, "readouts": {"bow": False}, **data}
-    return run_case(parse_case(data))
+    return solve_and_derive(parse_case(data))
 
 
 # --------------------------------------------------------------------------

@@ -56,8 +56,8 @@ def test_reduction_is_exact_for_tied_fields():
 
 
 def test_wide_pitch_matches_isolated_feature():
-    isolated = run_case(square({"margin": 4.5 * W}), derive=False)
-    array = run_case(square({"pitch": 10 * W}), derive=False)
+    isolated = run_case(square({"margin": 4.5 * W}))
+    array = run_case(square({"pitch": 10 * W}))
     assert array.derived[0].summary["model"]["periodic_axes"] == ["x", "y"]
     assert isolated.derived[0].summary["model"]["periodic_axes"] == []
     for pi, pa in zip(isolated.probes, array.probes):
@@ -67,7 +67,7 @@ def test_wide_pitch_matches_isolated_feature():
 
 
 def test_pitch_equal_to_width_is_the_blanket_film():
-    res = run_case(square({"pitch": W}), derive=False)
+    res = run_case(square({"pitch": W}))
     film = res.layers[1]
     sig, _ = biaxial_response(film.stiffness_sample, film.misfit, film.misfit)
     for p in res.probes:
@@ -79,8 +79,8 @@ def test_ties_equal_rollers_only_where_the_crystal_has_the_mirrors():
     # faces or holding them as rollers gives the same field; without the mirror they differ
     # (the reason arrays of such features need the periodic ties).
     def pair(x_axis):
-        rollers = run_case(square({"margin": 12.5, "symmetry": "full"}, x_axis), derive=False)
-        tied = run_case(square({"pitch": 1.25 * W, "symmetry": "full"}, x_axis), derive=False)
+        rollers = run_case(square({"margin": 12.5, "symmetry": "full"}, x_axis))
+        tied = run_case(square({"pitch": 1.25 * W, "symmetry": "full"}, x_axis))
         assert tied.derived[0].summary["model"]["periodic_axes"] == ["x", "y"]
         return max(np.max(np.abs(a["stress"] - b["stress"]))
                    for a, b in zip(rollers.probes, tied.probes))

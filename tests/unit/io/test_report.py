@@ -8,7 +8,7 @@ import pytest
 from mesastrain.io import report
 from mesastrain.case.parse import parse_case
 from mesastrain.io.folder import CAUTION, write_result
-from mesastrain.run.pipeline import run_case
+from mesastrain.derived import solve_and_derive
 
 CASE = {
     "title": "report check: SiGe island",
@@ -23,7 +23,7 @@ CASE = {
 
 @pytest.fixture(scope="module")
 def folder(tmp_path_factory):
-    res = run_case(parse_case(CASE))
+    res = solve_and_derive(parse_case(CASE))
     out = tmp_path_factory.mktemp("report") / "r"
     write_result(res, out)
     return out
@@ -63,7 +63,7 @@ def test_sections_registry(folder, monkeypatch):
     def broken(summary, path):
         raise RuntimeError("boom")
 
-    monkeypatch.setattr(report, "SECTIONS", report.SECTIONS + [extra, broken])
+    monkeypatch.setattr(report, "SECTIONS", report.SECTIONS + (extra, broken))
     out = report.write_report(folder, pictures=False)
     html = out.read_text(encoding="utf-8")
     assert "<h2>Extra section</h2><p>report check: SiGe island</p>" in html
@@ -73,7 +73,7 @@ def test_sections_registry(folder, monkeypatch):
 def test_no_report_when_switched_off(tmp_path):
     data = dict(CASE, output={"report": False, "vtu": False}, readouts={"bow": False})
     data.pop("cut")
-    res = run_case(parse_case(data))
+    res = solve_and_derive(parse_case(data))
     write_result(res, tmp_path / "r")
     assert not (tmp_path / "r" / "report.html").exists()
     assert not list((tmp_path / "r").glob("map_*.png"))
@@ -82,7 +82,7 @@ def test_no_report_when_switched_off(tmp_path):
 def test_report_without_fields_says_why(tmp_path):
     data = dict(CASE, output={"vtu": False}, readouts={"bow": False})
     data.pop("cut")
-    res = run_case(parse_case(data))
+    res = solve_and_derive(parse_case(data))
     write_result(res, tmp_path / "r")
     html = (tmp_path / "r" / "report.html").read_text(encoding="utf-8")
     assert "No maps: fields.vtu was not written" in html

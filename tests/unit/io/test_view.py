@@ -9,7 +9,7 @@ import pytest
 from mesastrain.case.parse import parse_case
 from mesastrain.cli.main import main
 from mesastrain.io.folder import write_result
-from mesastrain.run.pipeline import run_case
+from mesastrain.derived import solve_and_derive
 
 ROOT = Path(__file__).resolve().parents[3]
 
@@ -28,7 +28,7 @@ CASE = {
 @pytest.fixture(scope="module")
 def folder(tmp_path_factory):
     out = tmp_path_factory.mktemp("view") / "r"
-    write_result(run_case(parse_case(CASE)), out)
+    write_result(solve_and_derive(parse_case(CASE)), out)
     return out
 
 

@@ -83,7 +83,7 @@ def test_c_plane_disk_is_axisymmetric():
     case = case_of({"shape": "disk", "diameter": 200, "etch_depth": 30},
                    material=("GaN", "AlGaN"), normal=(0, 0, 0, 1), x_axis=(2, -1, -1, 0),
                    probes=probes, mesh={"size": 10, "edge_size": 5})
-    res = run_case(case, derive=False)
+    res = run_case(case)
     assert res.derived[0].summary["model"]["model"] == "quarter"
     s_x, s_d, s_c = (p["stress"] for p in res.probes)
     d = np.array([1.0, 1.0, 0.0]) / np.sqrt(2.0)
@@ -99,9 +99,8 @@ def test_periodic_disk_cell_ties_equal_rollers_for_a_symmetric_cell():
     pattern = {"shape": "disk", "diameter": 160, "etch_depth": 30, "pitch": 240}
     probes = [(0, 0, H / 2), (50, 20, H / 2)]
     fine = {"size": 10, "edge_size": 5}
-    quarter = run_case(case_of(pattern, probes=probes, mesh=fine), derive=False)
-    tied = run_case(case_of({**pattern, "symmetry": "full"}, probes=probes, mesh=fine),
-                    derive=False)
+    quarter = run_case(case_of(pattern, probes=probes, mesh=fine))
+    tied = run_case(case_of({**pattern, "symmetry": "full"}, probes=probes, mesh=fine))
     assert tied.derived[0].summary["model"]["periodic_axes"] == ["x", "y"]
     assert quarter.derived[0].summary["model"]["periodic_axes"] == []
     scale = abs(quarter.probes[0]["stress"][0, 0])

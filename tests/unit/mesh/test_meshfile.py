@@ -60,7 +60,7 @@ def msh(tmp_path_factory):
 
 
 def test_imported_stack_is_a_blanket_film(msh):
-    res = run_case(case_for(msh / "stack_nm.msh"), derive=False)
+    res = run_case(case_for(msh / "stack_nm.msh"))
     film = res.layers[1]
     sig, _ = biaxial_response(film.stiffness_sample, film.misfit, film.misfit)
     p = res.probes[0]
@@ -72,8 +72,8 @@ def test_imported_stack_is_a_blanket_film(msh):
 
 
 def test_unit_scales_the_coordinates(msh):
-    a = run_case(case_for(msh / "stack_nm.msh"), derive=False)
-    b = run_case(case_for(msh / "stack_um.msh", unit="um"), derive=False)
+    a = run_case(case_for(msh / "stack_nm.msh"))
+    b = run_case(case_for(msh / "stack_um.msh", unit="um"))
     assert b.mesh.bounds == pytest.approx(a.mesh.bounds)
     assert b.probes[0]["stress"][0, 0] == pytest.approx(a.probes[0]["stress"][0, 0], rel=0.02)
 

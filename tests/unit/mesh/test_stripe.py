@@ -44,7 +44,7 @@ def blanket_stress(res):
 
 @pytest.fixture(scope="module")
 def wide():
-    return run_case(stripe_case(500 * H, mesh={"edge_size": 5}), derive=False)
+    return run_case(stripe_case(500 * H, mesh={"edge_size": 5}))
 
 
 def test_wide_stripe_centre_is_blanket(wide):
@@ -84,7 +84,7 @@ def test_strain_along_the_line_is_the_wafers(wide):
 def test_rotated_crystal_couples_out_of_plane_shear():
     # x along [310] on (001): no mirror plane x = 0, so the whole section is solved, and the
     # anisotropy couples the in-plane problem to the along-line displacement u_y
-    res = run_case(stripe_case(20 * H, x_axis=(3, 1, 0), order=1), derive=False)
+    res = run_case(stripe_case(20 * H, x_axis=(3, 1, 0), order=1))
     assert res.derived[0].summary["model"]["model"] == "full"
     uy = res.fields.displacement[:, 1]
     ux = res.fields.displacement[:, 0]
@@ -92,7 +92,7 @@ def test_rotated_crystal_couples_out_of_plane_shear():
 
 
 def test_grating_without_gap_is_the_blanket_film():
-    res = run_case(stripe_case(10 * H, pitch=10 * H, order=1), derive=False)
+    res = run_case(stripe_case(10 * H, pitch=10 * H, order=1))
     blanket = blanket_stress(res)
     assert res.probes[0]["stress"][0, 0] == pytest.approx(blanket[0, 0], rel=1e-6)
     assert res.probes[1]["stress"][0, 0] == pytest.approx(blanket[0, 0], rel=1e-6)
@@ -107,11 +107,10 @@ def test_section_matches_mid_length_of_long_mesa():
             "layer": [{"material": "SiGe", "x": 0.3, "thickness": H}],
             "mesh": {"order": 1, "substrate_depth": 300, "size": 25}}
     sec = run_case(parse_case({**base, "pattern": {"shape": "stripe", "width": W,
-                                                   "etch_depth": 30, "margin": 100}}),
-                   derive=False)
+                                                   "etch_depth": 30, "margin": 100}}))
     mesa = run_case(parse_case({**base, "pattern": {"shape": "rectangle", "width": W,
                                                     "length": L, "etch_depth": 30,
-                                                    "margin": 100}}), derive=False)
+                                                    "margin": 100}}))
     x = np.linspace(-0.499 * W, 0.499 * W, 41)
     pts = np.column_stack([x, np.zeros_like(x), np.full_like(x, H / 2)])
     _, s2, _, _ = sec.sample(pts)

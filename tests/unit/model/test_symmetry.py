@@ -82,8 +82,8 @@ def test_decision_follows_geometry_and_crystal():
 
 
 def test_quarter_model_matches_full_model():
-    quarter = run_case(mesa([1, 1, 0]), derive=False)
-    full = run_case(mesa([1, 1, 0], symmetry="full"), derive=False)
+    quarter = run_case(mesa([1, 1, 0]))
+    full = run_case(mesa([1, 1, 0], symmetry="full"))
     assert quarter.derived[0].summary["model"]["model"] == "quarter"
     assert full.derived[0].summary["model"]["model"] == "full"
     # the unfolded quarter covers the whole body
@@ -99,7 +99,7 @@ def test_quarter_model_matches_full_model():
 
 
 def test_orientation_without_mirror_is_solved_whole():
-    res = run_case(mesa([3, 1, 0]), derive=False)
+    res = run_case(mesa([3, 1, 0]))
     assert res.derived[0].summary["model"]["model"] == "full"
     a, b = res.probes[1]["stress"], res.probes[2]["stress"]
     # the field is not mirror symmetric: a half model would have forced it to be
@@ -108,8 +108,8 @@ def test_orientation_without_mirror_is_solved_whole():
 
 
 def test_half_model_on_111():
-    half = run_case(mesa([1, -1, 0], normal=[1, 1, 1]), derive=False)
-    full = run_case(mesa([1, -1, 0], normal=[1, 1, 1], symmetry="full"), derive=False)
+    half = run_case(mesa([1, -1, 0], normal=[1, 1, 1]))
+    full = run_case(mesa([1, -1, 0], normal=[1, 1, 1], symmetry="full"))
     assert half.derived[0].summary["model"]["model"] == "half"
     scale = abs(full.probes[0]["stress"][0, 0])
     for ph, pf in zip(half.probes, full.probes):

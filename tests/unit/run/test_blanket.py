@@ -11,7 +11,7 @@ import pytest
 
 from mesastrain.case.parse import parse_case
 from mesastrain.physics.materials import get_material
-from mesastrain.run.pipeline import run_case
+from mesastrain.derived import solve_and_derive
 
 
 def blanket(substrate, layer, normal, x_axis, order=1, relaxed=0.0, sub_x=None, layer_x=None,
@@ -36,7 +36,7 @@ def test_sige_on_si_001(order):
     # M(001) = C11 + C12 - 2 C12^2/C11 and eps_perp/eps_par = -2 C12/C11 for a (001) film
     # (REFERENCES.md section 4; e.g. Freund & Suresh, Thin Film Materials, 2003, from memory)
     case = blanket("Si", "SiGe", [0, 0, 1], [1, 1, 0], order=order, layer_x=0.25)
-    res = run_case(case)
+    res = solve_and_derive(case)
     film = get_material("SiGe", 0.25)
     si = get_material("Si")
     c = film.constants
@@ -58,7 +58,7 @@ def test_gan_c_plane_wurtzite():
     # eps_zz/eps_par = -2 C13/C33 for a c-plane wurtzite film (REFERENCES.md sections 2 and 4;
     # GaN/AlN constants Vurgaftman & Meyer, J. Appl. Phys. 94, 3675, 2003)
     case = blanket("GaN", "AlGaN", [0, 0, 0, 1], [2, -1, -1, 0], layer_x=0.25)
-    res = run_case(case)
+    res = solve_and_derive(case)
     film = get_material("AlGaN", 0.25)
     c = film.constants
     p = res.probes[0]
@@ -74,7 +74,7 @@ def test_si_on_ge_111():
     # M(111) = 6 C44 (C11 + 2 C12)/(C11 + 2 C12 + 4 C44) and
     # eps_perp/eps_par = -2 (C11 + 2 C12 - 2 C44)/(C11 + 2 C12 + 4 C44) (REFERENCES.md section 4)
     case = blanket("Ge", "Si", [1, 1, 1], [1, -1, 0])
-    res = run_case(case)
+    res = solve_and_derive(case)
     si, ge = get_material("Si"), get_material("Ge")
     C11, C12, C44 = (si.constants[k] for k in ("C11", "C12", "C44"))
     f = (ge.a - si.a) / si.a
@@ -89,7 +89,7 @@ def test_si_on_ge_111():
 def test_110_unequal_in_plane_stress():
     # (110) film, x' = [1-10], y' = [001]: unequal in-plane stresses (REFERENCES.md section 4)
     case = blanket("Si", "SiGe", [1, 1, 0], [1, -1, 0], layer_x=0.3)
-    res = run_case(case)
+    res = solve_and_derive(case)
     film = get_material("SiGe", 0.3)
     C11, C12, C44 = (film.constants[k] for k in ("C11", "C12", "C44"))
     f = (get_material("Si").a - film.a) / film.a
@@ -110,13 +110,13 @@ def test_partial_relaxation_and_reference_chain():
                    extra_layers=[cap])
     case = parse_case({**case.to_dict(), "probe": [{"name": "buffer", "at": [0, 0, 10]},
                                                   {"name": "cap", "at": [0, 0, 25]}]})
-    res = run_case(case)
+    res = solve_and_derive(case)
     buf, cap_p = res.probes
     assert np.max(np.abs(buf["stress"])) < 1e-6
     sige, si = get_material("SiGe", 0.2), get_material("Si")
     assert cap_p["strain"][0, 0] == pytest.approx((sige.a - si.a) / si.a, rel=5e-3)
     assert res.layers[2].misfit == pytest.approx((sige.a - si.a) / si.a, rel=1e-12)
     # half relaxed: the lattice sits halfway between the substrate's and its own
-    half = run_case(blanket("Si", "SiGe", [0, 0, 1], [1, 0, 0], layer_x=0.2, relaxed=0.5))
+    half = solve_and_derive(blanket("Si", "SiGe", [0, 0, 1], [1, 0, 0], layer_x=0.2, relaxed=0.5))
     a_eff = half.layers[1].lattice_in_plane[0]
     assert a_eff == pytest.approx(0.5 * (si.a + sige.a))

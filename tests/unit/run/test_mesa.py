@@ -11,7 +11,7 @@ import numpy as np
 import pytest
 
 from mesastrain.case.parse import parse_case
-from mesastrain.run.pipeline import run_case
+from mesastrain.derived import solve_and_derive
 
 W, H = 400.0, 40.0
 
@@ -31,7 +31,7 @@ def mesa():
                   {"name": "mirror", "at": [100, -60, H / 2]},
                   {"name": "mirror_t", "at": [-60, 100, H / 2]}],
     })
-    return run_case(case)
+    return solve_and_derive(case)
 
 
 def _cut_rows(res, z):

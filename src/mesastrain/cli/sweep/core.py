@@ -983,7 +983,7 @@ def solve_case(case: Case, case_id: str) -> dict:
         ``traceback`` when failed.
     """
     from mesastrain.io.folder import write_result
-    from mesastrain.run.pipeline import run_case
+    from mesastrain.derived import solve_and_derive
 
     started = datetime.now(timezone.utc).isoformat(timespec="seconds")
     t0 = time.perf_counter()
@@ -991,7 +991,7 @@ def solve_case(case: Case, case_id: str) -> dict:
            "mesastrain": __version__}
     try:
         limit = _worker_memory_gb()
-        res = run_case(case, max_memory_gb=limit)
+        res = solve_and_derive(case, max_memory_gb=limit)
         with tempfile.TemporaryDirectory(prefix="mesastrain-case-") as tmp:
             folder = write_result(res, Path(tmp) / "case")
             files = {p.relative_to(folder).as_posix(): p.read_bytes()
