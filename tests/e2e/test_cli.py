@@ -21,10 +21,10 @@ def small_case(tmp_path):
     return p
 
 
-def test_run_writes_summary_and_vtu(small_case, tmp_path, capsys):
-    out = tmp_path / "res"
-    assert main(["run", str(small_case), "--out", str(out)]) == 0
-    text = capsys.readouterr().out
+def test_run_writes_summary_and_vtu(small_mesa_run):
+    # the session's one `mesastrain run` of SMALL_MESA (tests/conftest.py): exit 0, stdout, folder
+    out, tmp_path = small_mesa_run.out, small_mesa_run.root
+    text = small_mesa_run.stdout
     assert "centre" in text and "MPa" in text
     s = json.loads((out / "summary.json").read_text())
     assert s["units"] == {**s["units"], "length": "nm", "stress": "MPa"}
@@ -61,6 +61,7 @@ def test_run_refuses_existing_output(small_case, tmp_path, capsys):
     assert (out / "keep.txt").read_text() == "old"
 
 
+@pytest.mark.slow
 def test_overwrite_replaces_whole_folder(small_case, tmp_path):
     out = tmp_path / "res"
     out.mkdir()
@@ -81,6 +82,7 @@ def test_check_text(small_case, capsys):
     assert "unknowns" in out and "GB" in out
 
 
+@pytest.mark.slow
 def test_check_counts_match_the_mesh(small_case, tmp_path):
     # the estimate counts unknowns without meshing; it must agree with the real mesh
     from mesastrain.case.parse import load_case
@@ -149,6 +151,7 @@ def test_missing_file(tmp_path, capsys):
     assert "nope.toml" in capsys.readouterr().err
 
 
+@pytest.mark.slow
 def test_console_script_installed():
     import shutil
     import subprocess

@@ -8,6 +8,8 @@ import pytest
 
 from mesastrain.cli.main import main
 
+pytestmark = pytest.mark.slow
+
 ROOT = Path(__file__).resolve().parents[2]
 DEMO = ROOT / "cases" / "sige_stressor_mesa.toml"
 

@@ -141,6 +141,7 @@ def _set(d, path, value):
 _DELETE = object()
 
 
+@pytest.mark.slow
 @settings(max_examples=150, deadline=None, derandomize=True,
           suppress_health_check=[HealthCheck.too_slow])
 @given(st.lists(st.tuples(st.sampled_from(PATHS), st.one_of(JUNK, st.just(_DELETE))),

@@ -58,6 +58,7 @@ def small(tmp_path):
     return p
 
 
+@pytest.mark.slow
 def test_mesh_too_fine_refused_from_estimate(tmp_path, capsys):
     # a 10 pm element size on a 200 nm mesa: refused before anything is allocated
     p = tmp_path / "fine.toml"
@@ -100,11 +101,12 @@ def _summary_numbers(path):
     return s
 
 
-def test_determinism(small, tmp_path):
-    # the same case gives identical summary.json numbers (timings aside) on the same machine
-    for name in ("a", "b"):
-        assert main(["run", str(small), "--out", str(tmp_path / name), "-q"]) == 0
-    assert _summary_numbers(tmp_path / "a" / "summary.json") == \
+@pytest.mark.slow
+def test_determinism(small, tmp_path, small_mesa_run):
+    # the same case gives identical summary.json numbers (timings aside) on the same machine;
+    # run "a" is the session's run of SMALL_MESA (tests/conftest.py), run "b" a fresh one
+    assert main(["run", str(small), "--out", str(tmp_path / "b"), "-q"]) == 0
+    assert _summary_numbers(small_mesa_run.out / "summary.json") == \
         _summary_numbers(tmp_path / "b" / "summary.json")
 
 
@@ -133,6 +135,7 @@ def _wait_for(proc, word, timeout=120):
 BIGGER = SMALL.replace("size = 25\nedge_size = 10", "size = 8\nedge_size = 3")
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("how", [signal.SIGINT, signal.SIGTERM, signal.SIGKILL])
 def test_killed_mid_solve_leaves_no_partial_result(how, tmp_path):
     case = tmp_path / "c.toml"
@@ -149,6 +152,7 @@ def test_killed_mid_solve_leaves_no_partial_result(how, tmp_path):
     assert [p.name for p in tmp_path.iterdir()] == ["c.toml"]
 
 
+@pytest.mark.slow
 def test_interrupted_overwrite_keeps_previous_result(tmp_path):
     case = tmp_path / "c.toml"
     case.write_text(BIGGER)

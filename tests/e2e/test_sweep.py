@@ -267,6 +267,7 @@ def test_invalid_value_is_a_failed_case_not_an_error():
     assert cases[1].hash != cases[2].hash
 
 
+@pytest.mark.slow
 def test_case_hash_is_stable_and_specific():
     a = dict(SMALL_BASE, pattern=dict(SMALL_BASE["pattern"], width="0.2 um"))
     b = dict(SMALL_BASE, pattern=dict(SMALL_BASE["pattern"], width=200), title="other title")
@@ -384,6 +385,7 @@ def test_dry_run_and_bad_out(tmp_path, capsys):
     assert sorted(p.name for p in other.iterdir()) == ["keep.txt"]
 
 
+@pytest.mark.slow
 def test_unreachable_scheduler_is_one_line(tmp_path, capsys):
     import socket
 
@@ -408,6 +410,7 @@ def _demo_sweep():
     return parse_sweep(data, source=str(DEMO_SWEEP), base_dir=DEMO_SWEEP.parent)
 
 
+@pytest.mark.slow
 def test_mesa_width_sweep_on_local_cluster(tmp_path):
     sweep = _demo_sweep()
     out = tmp_path / "sweep"
@@ -460,6 +463,7 @@ def test_mesa_width_sweep_on_local_cluster(tmp_path):
     assert "6 case(s): 6 ok" in text and "probes.centre.stress.xx (MPa)" in text
 
 
+@pytest.mark.slow
 def test_killed_sweep_resumes_only_the_missing_cases(tmp_path, dask_cluster):
     set_lines = "".join(f'"{k}" = {json.dumps(v)}\n' for k, v in COARSE.items())
     sw = tmp_path / "resume.toml"
@@ -512,6 +516,7 @@ def test_killed_sweep_resumes_only_the_missing_cases(tmp_path, dask_cluster):
     assert [p.name for p in cases.iterdir() if p.name.startswith(".")] == []
 
 
+@pytest.mark.slow
 def test_failed_cases_are_recorded_on_external_scheduler(tmp_path, dask_cluster, capsys):
     # case 0 runs; case 1 is not allowed (negative width); case 2 passes validation but its
     # solver is given one iteration, so it fails on the worker

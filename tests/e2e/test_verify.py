@@ -13,6 +13,7 @@ def rows():
     return verify.run_checks()
 
 
+@pytest.mark.slow
 def test_every_check_passes_and_has_a_source(rows):
     assert len(rows) >= 15
     for r in rows:
@@ -22,6 +23,7 @@ def test_every_check_passes_and_has_a_source(rows):
                              or "common practice" in r.source), r.quantity
 
 
+@pytest.mark.slow
 def test_the_groups_the_issue_names_are_there(rows):
     text = " ".join(r.source for r in rows)
     for who in ("Stoney", "Timoshenko", "Eshelby", "Matthews", "People", "Brantley",
@@ -29,6 +31,7 @@ def test_the_groups_the_issue_names_are_there(rows):
         assert who in text, who
 
 
+@pytest.mark.slow
 def test_table_lists_source_computed_and_error(rows):
     table = verify.format_table(rows)
     blocks = table.split("\n")

@@ -317,6 +317,7 @@ def test_cut_csv_and_report(tmp_path):
     assert "<h2>Device readouts" in html and "p_x" in html and "cut_down_device.csv" in html
 
 
+@pytest.mark.slow
 def test_map_png_is_written(tmp_path):
     pytest.importorskip("pyvista")
     d = blanket(device={"maps": True, "bands": False, "piezo": False})

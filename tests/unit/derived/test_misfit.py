@@ -445,6 +445,7 @@ def test_blanket_surface_is_traction_free_but_overlay_is_not():
     assert d.summary["dislocations"]["lines"] == 1
 
 
+@pytest.mark.slow
 def test_output_folder_and_report(tmp_path):
     # the run's folder holds the section picture, the cut files and a report section
     import json

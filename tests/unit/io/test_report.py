@@ -29,6 +29,7 @@ def folder(tmp_path_factory):
     return out
 
 
+@pytest.mark.slow
 def test_report_is_self_contained(folder):
     html = (folder / "report.html").read_text(encoding="utf-8")
     assert html.startswith("<!DOCTYPE html>")
@@ -42,6 +43,7 @@ def test_report_is_self_contained(folder):
         assert png[:8] == b"\x89PNG\r\n\x1a\n" and len(png) > 5_000
 
 
+@pytest.mark.slow
 def test_report_has_what_an_engineer_reads(folder):
     html = (folder / "report.html").read_text(encoding="utf-8")
     for text in ("Inputs", "Headline figures", "relaxation length", "Corners and edges",
@@ -56,6 +58,7 @@ def test_report_has_what_an_engineer_reads(folder):
     assert html.rindex("Caution.") > html.rindex("<h2>")
 
 
+@pytest.mark.slow
 def test_sections_registry(folder, monkeypatch):
     def extra(summary, path):
         return f"<h2>Extra section</h2><p>{report.esc(summary['title'])}</p>"

@@ -38,6 +38,7 @@ def _rgb(png: Path) -> np.ndarray:
     return np.asarray(Image.open(png).convert("RGB")).reshape(-1, 3).astype(int)
 
 
+@pytest.mark.slow
 def test_view_without_display_writes_pictures(folder, tmp_path, monkeypatch, capsys):
     monkeypatch.delenv("DISPLAY", raising=False)
     monkeypatch.delenv("WAYLAND_DISPLAY", raising=False)
@@ -65,6 +66,7 @@ def _script(name: str):
     return mod
 
 
+@pytest.mark.slow
 def test_postprocess_scripts_work_on_a_result_folder(folder, tmp_path):
     assert _script("slice").main([str(folder), "--normal", "z", "--component", "von_mises",
                                   "--out", str(tmp_path / "plan.png")]) == 0

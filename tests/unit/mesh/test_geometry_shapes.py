@@ -77,6 +77,7 @@ def test_quarter_of_a_disk_is_a_quarter():
     assert film_volume(quarter) == pytest.approx(film_volume(full) / 4, rel=0.01)
 
 
+@pytest.mark.slow
 def test_c_plane_disk_is_axisymmetric():
     r = 60.0
     probes = [(r, 0, H / 2), (r / np.sqrt(2), r / np.sqrt(2), H / 2), (0, 0, H / 2)]
@@ -95,6 +96,7 @@ def test_c_plane_disk_is_axisymmetric():
     assert s_c[0, 0] == pytest.approx(s_c[1, 1], rel=5e-3)    # meshes are not x-y symmetric
 
 
+@pytest.mark.slow
 def test_periodic_disk_cell_ties_equal_rollers_for_a_symmetric_cell():
     pattern = {"shape": "disk", "diameter": 160, "etch_depth": 30, "pitch": 240}
     probes = [(0, 0, H / 2), (50, 20, H / 2)]

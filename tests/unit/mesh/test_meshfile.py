@@ -71,6 +71,7 @@ def test_imported_stack_is_a_blanket_film(msh):
     assert res.derived[0].summary["model"]["mesh_kind"] == "file"
 
 
+@pytest.mark.slow
 def test_unit_scales_the_coordinates(msh):
     a = run_case(case_for(msh / "stack_nm.msh"))
     b = run_case(case_for(msh / "stack_um.msh", unit="um"))

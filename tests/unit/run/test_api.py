@@ -68,6 +68,7 @@ def eshelby(tmp_path_factory):
     return sol, E, nu, eps
 
 
+@pytest.mark.slow
 def test_eshelby_interior_strain_is_uniform(eshelby):
     # Eshelby, Proc. R. Soc. A 241, 376 (1957); REFERENCES.md section 4: inside a spherical
     # inclusion with dilatational eigenstrain eps*, eps = (1+nu)/(3(1-nu)) eps* delta_ij
@@ -82,6 +83,7 @@ def test_eshelby_interior_strain_is_uniform(eshelby):
         assert np.max(np.abs(t - np.diag(np.diag(t)))) < 0.02 * gamma * eps
 
 
+@pytest.mark.slow
 def test_eshelby_exterior_radial_stress_decays_as_cube(eshelby):
     # outside: sigma_rr = -4 mu gamma eps* (a/r)^3 (same source)
     sol, E, nu, eps = eshelby

@@ -66,6 +66,7 @@ at = [0, 0, 10]
 """
 
 
+@pytest.mark.slow
 def test_cli_convergence_writes_the_study(tmp_path, capsys):
     p = tmp_path / "tiny.toml"
     p.write_text(SMALL)
@@ -87,6 +88,7 @@ def test_cli_convergence_writes_the_study(tmp_path, capsys):
                                             "oscillating"}
 
 
+@pytest.mark.slow
 def test_square_mesa_centre_stress_is_converged_on_the_default_mesh():
     # the square mesa of tests/test_mesa.py (width/thickness = 10) at half the size (the
     # problem is scale-free), default mesh (order 2), one refinement (sizes / 1.5)
