@@ -23,6 +23,8 @@ from typing import Callable
 
 import numpy as np
 
+from mesastrain.cli.common import EXIT_FAILED
+
 
 @dataclass
 class Check:
@@ -374,7 +376,7 @@ def cmd_verify(args) -> int:
         bad = sum(not r.passed for r in rows)
         print(f"{len(rows) - bad} of {len(rows)} checks passed in "
               f"{time.perf_counter() - t:.0f} s")
-    return 0 if all(r.passed for r in rows) else 1
+    return 0 if all(r.passed for r in rows) else EXIT_FAILED
 
 
 def add_command(subparsers) -> None:
