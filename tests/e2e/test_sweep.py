@@ -25,9 +25,12 @@ from mesastrain.case.parse import parse_case
 from mesastrain.cli.main import main
 from mesastrain.errors import CaseError
 from mesastrain.physics.materials import get_material
-from mesastrain.cli.sweep.core import (CASE_RECORD, LOG_JSONL, META_JSON, TABLE_CSV, CaseOutcome,
-                              case_hash, expand, figure_unit, figure_value, load_sweep,
-                              parse_path, parse_sweep, plot_sweep, run_sweep, summary_text)
+from mesastrain.cli.sweep.driver import run_sweep
+from mesastrain.cli.sweep.expand import case_hash, expand
+from mesastrain.cli.sweep.figures import figure_unit, figure_value
+from mesastrain.cli.sweep.spec import load_sweep, parse_path, parse_sweep
+from mesastrain.cli.sweep.store import CASE_RECORD, LOG_JSONL, META_JSON, TABLE_CSV, CaseOutcome
+from mesastrain.cli.sweep.tables import plot_sweep, summary_text
 
 ROOT = Path(__file__).resolve().parents[2]
 DEMO_SWEEP = ROOT / "cases" / "sweep_mesa_width.toml"
@@ -278,7 +281,7 @@ def test_case_hash_is_stable_and_specific():
     assert ha != hc
     # the same in a fresh interpreter with another string-hash seed
     code = ("import json,sys; from mesastrain.case.parse import parse_case; "
-            "from mesastrain.cli.sweep.core import case_hash; "
+            "from mesastrain.cli.sweep.expand import case_hash; "
             "print(case_hash(parse_case(json.loads(sys.argv[1]))))")
     out = subprocess.run([sys.executable, "-c", code, json.dumps(a)], capture_output=True,
                          text=True, env=dict(os.environ, PYTHONHASHSEED="12345"), timeout=120)

@@ -1,4 +1,9 @@
-"""Command line: ``mesastrain run | check | materials``.
+"""Command line: ``mesastrain COMMAND ...``.
+
+One module per command (:mod:`~mesastrain.cli.run`, :mod:`~mesastrain.cli.check`,
+:mod:`~mesastrain.cli.materials`, :mod:`~mesastrain.cli.sweep.command`,
+:mod:`~mesastrain.cli.raman_stress`, :mod:`~mesastrain.cli.verify`,
+:mod:`~mesastrain.cli.view`); this module wires them together.
 
 Every user error ends in one line on stderr (``mesastrain: error: ...``) and
 exit status 2, with nothing written. Ctrl-C ends a run with status 130 and
@@ -8,157 +13,24 @@ nothing written.
 from __future__ import annotations
 
 import argparse
-import json
 import logging
 import signal
-import sys
 import threading
-import time
-from pathlib import Path
 
 from mesastrain import __version__
-from mesastrain.cli import raman_stress as raman_stress_command
-from mesastrain.cli import verify as verify_command
-from mesastrain.cli import view as view_command
-from mesastrain.cli.sweep import core as sweep_command
+from mesastrain.cli import check, materials, raman_stress, run, verify, view
+from mesastrain.cli.common import EXIT_INTERRUPTED, EXIT_USAGE, err
+from mesastrain.cli.sweep import command as sweep
 from mesastrain.errors import MesastrainError
 
-EXIT_USAGE = 2
-EXIT_INTERRUPTED = 130
-
-#: Modules that add a subcommand: each has ``add_command(subparsers)``, which adds a parser
-#: with ``set_defaults(func=...)``; ``func(args)`` returns the exit status and raises
-#: MesastrainError for user errors.
-EXTRA_COMMANDS = (sweep_command, raman_stress_command, verify_command, view_command)
+#: The command modules, in the order ``mesastrain --help`` lists them. Each has
+#: ``add_command(subparsers)``, which adds a parser with ``set_defaults(func=...)``;
+#: ``func(args)`` returns the exit status and raises MesastrainError for user errors.
+COMMANDS = (run, check, materials, sweep, raman_stress, verify, view)
 
 
-def _err(msg: str) -> None:
-    print(f"mesastrain: error: {msg}", file=sys.stderr)
-
-
-class _Progress:
-    """Stage messages with elapsed time, on stderr, only when it is a terminal
-    (or when forced)."""
-
-    def __init__(self, enabled: bool):
-        self.enabled = enabled
-        self.t0 = time.perf_counter()
-
-    def __call__(self, msg: str) -> None:
-        if self.enabled:
-            print(f"[{time.perf_counter() - self.t0:6.1f} s] {msg}", file=sys.stderr, flush=True)
-
-
-def _load(path: str):
-    from mesastrain.case.parse import load_case
-
-    return load_case(path)
-
-
-# --------------------------------------------------------------------------
-# run
-# --------------------------------------------------------------------------
-def _fmt(v: float) -> str:
-    return f"{v:10.1f}"
-
-
-def results_table(summary: dict) -> str:
-    """Short plain-text table of the headline results of a run (MPa)."""
-    lines = ["region          material        mean sxx   mean syy   mean szz  max v.Mises"]
-    for lf in summary["layer_figures"]:
-        s = lf["mean_stress"]
-        lines.append(f"{lf['name']:<15} {lf['label']:<14}{_fmt(s[0][0])} {_fmt(s[1][1])} "
-                     f"{_fmt(s[2][2])} {_fmt(lf['max_von_mises'])}")
-    if summary["probes"]:
-        lines.append("")
-        lines.append("probe           at (nm)                       sxx        syy        szz")
-        for p in summary["probes"]:
-            at = ", ".join(f"{v:g}" for v in p["at"])
-            s = p["stress"]
-            lines.append(f"{p['name']:<15} [{at}]".ljust(40) +
-                         f"{_fmt(s[0][0])} {_fmt(s[1][1])} {_fmt(s[2][2])}")
-    lines.append("stress in MPa, sample frame, positive in tension; element averages for "
-                 "regions, exact values at probes")
-    return "\n".join(lines)
-
-
-def cmd_run(args) -> int:
-    from mesastrain.io.export import jsonable
-    from mesastrain.io.folder import CAUTION, summary_of, write_result
-    from mesastrain.derived import EIGENSTRAIN_SOURCES, PROVIDERS, solve_and_derive
-
-    case = _load(args.case)
-    out = Path(args.out) if args.out else Path(Path(args.case).stem + "-results")
-    if out.exists() and not args.overwrite:
-        _err(f"--out: {out} already exists; pass --overwrite to replace it")
-        return EXIT_USAGE
-    progress = _Progress(sys.stderr.isatty() or args.progress)
-    progress(f"case {args.case}: {case.title}")
-    study = None
-    if getattr(args, "convergence", False) or getattr(case.mesh, "convergence", None):
-        from mesastrain.run.convergence import study as convergence_study
-
-        res, study = convergence_study(case, progress=progress, max_memory_gb=args.max_memory,
-                                            providers=PROVIDERS,
-                                            eigenstrain_sources=EIGENSTRAIN_SOURCES)
-    else:
-        res = solve_and_derive(case, progress=progress, max_memory_gb=args.max_memory)
-    progress("writing results")
-    write_result(res, out, overwrite=args.overwrite)
-    summary = jsonable(summary_of(res))
-    if not args.quiet:
-        print(results_table(summary))
-        if study is not None:
-            from mesastrain.run.convergence import table as convergence_table
-
-            print()
-            print(convergence_table(study))
-        print(f"results in {out}/ (summary.json, fields.vtu)")
-        print(CAUTION)
-    return 0
-
-
-# --------------------------------------------------------------------------
-# check
-# --------------------------------------------------------------------------
-def cmd_check(args) -> int:
-    from mesastrain.run.resources import available_memory_gb, estimate
-
-    case = _load(args.case)
-    est = estimate(case)
-    avail = available_memory_gb()
-    d = est.to_dict()
-    d["memory_available_gb"] = round(avail, 2)
-    d["fits"] = est.memory_gb <= avail
-    if args.json:
-        print(json.dumps(d))
-    else:
-        print(f"case      {args.case}: {case.title} (valid)")
-        print(f"stack     {case.substrate.material} substrate + {len(case.layers)} layer(s), "
-              f"{case.stack_thickness:g} nm; pattern {case.pattern.shape}")
-        print(f"mesh      {est.nodes:,} nodes, {est.elements:,} hexahedra, order {est.order}")
-        print(f"unknowns  {est.unknowns:,} (solver: {est.method})")
-        print(f"memory    about {est.memory_gb:.2f} GB (available {avail:.1f} GB)")
-        print(f"time      about {est.seconds:.0f} s on 2 cores (rough)")
-    if not d["fits"]:
-        _err(f"mesh: the case needs about {est.memory_gb:.1f} GB but only {avail:.1f} GB are "
-             "available; coarsen mesh.size / mesh.edge_size")
-        return EXIT_USAGE
-    return 0
-
-
-# --------------------------------------------------------------------------
-# materials
-# --------------------------------------------------------------------------
-def cmd_materials(args) -> int:
-    from mesastrain.physics.materials import materials_table
-
-    print(materials_table())
-    return 0
-
-
-# --------------------------------------------------------------------------
 def build_parser() -> argparse.ArgumentParser:
+    """The ``mesastrain`` parser with every command of :data:`COMMANDS`."""
     p = argparse.ArgumentParser(
         prog="mesastrain",
         description="Strain and stress in patterned lattice-mismatched film stacks "
@@ -167,30 +39,7 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("-v", "--verbose", action="store_true", help="log solver details")
     sub = p.add_subparsers(dest="command", metavar="COMMAND")
     sub.required = True
-
-    r = sub.add_parser("run", help="solve a case and write its result folder")
-    r.add_argument("case", help="case file (TOML)")
-    r.add_argument("--out", help="result folder (default: <case name>-results)")
-    r.add_argument("--overwrite", action="store_true", help="replace an existing result folder")
-    r.add_argument("--max-memory", type=float, metavar="GB",
-                   help="refuse a case whose estimated memory exceeds this")
-    r.add_argument("--progress", action="store_true",
-                   help="show progress even when stderr is not a terminal")
-    r.add_argument("-q", "--quiet", action="store_true", help="no result table")
-    r.add_argument("--convergence", action="store_true",
-                   help="also solve with element sizes / 1.5 and / 2.25 and report how the "
-                        "headline figures move (observed order, verdict)")
-    r.set_defaults(func=cmd_run)
-
-    c = sub.add_parser("check", help="validate a case and estimate its size, memory and time")
-    c.add_argument("case", help="case file (TOML)")
-    c.add_argument("--json", action="store_true", help="print the estimate as JSON")
-    c.set_defaults(func=cmd_check)
-
-    m = sub.add_parser("materials", help="list the material database with sources")
-    m.set_defaults(func=cmd_materials)
-
-    for command in EXTRA_COMMANDS:
+    for command in COMMANDS:
         command.add_command(sub)
     return p
 
@@ -212,13 +61,13 @@ def main(argv=None) -> int:
     try:
         return args.func(args)
     except MesastrainError as exc:
-        _err(str(exc))
+        err(str(exc))
         return EXIT_USAGE
     except KeyboardInterrupt:
-        _err("interrupted; nothing was written (an earlier result in --out is unchanged)")
+        err("interrupted; nothing was written (an earlier result in --out is unchanged)")
         return EXIT_INTERRUPTED
     except MemoryError:
-        _err("ran out of memory; coarsen the mesh (mesh.size, mesh.edge_size); nothing was written")
+        err("ran out of memory; coarsen the mesh (mesh.size, mesh.edge_size); nothing was written")
         return EXIT_USAGE
     finally:
         if previous is not None:

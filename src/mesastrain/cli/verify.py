@@ -9,7 +9,7 @@ inputs), naming the source. The command prints a table
 and exits 0 when every row passes, 1 otherwise. The checks are small (about
 half a minute in all on two cores).
 
-Other modules add checks by appending to :data:`CHECKS` a function
+The check groups are the explicit list :data:`CHECKS` of functions
 ``check() -> list[Check]``.
 """
 
@@ -22,6 +22,8 @@ from dataclasses import asdict, dataclass
 from typing import Callable
 
 import numpy as np
+
+from mesastrain.cli.common import EXIT_FAILED
 
 
 @dataclass
@@ -67,10 +69,6 @@ class Check:
     @property
     def passed(self) -> bool:
         return bool(np.isfinite(self.computed)) and self.error <= self.tolerance
-
-
-#: Check groups: functions returning a list of :class:`Check`.
-CHECKS: list[Callable[[], list[Check]]] = []
 
 
 # --------------------------------------------------------------------------
@@ -324,8 +322,10 @@ def check_eshelby() -> list[Check]:
     ]
 
 
-CHECKS.extend([check_rotation, check_blanket, check_thermal, check_critical_thickness,
-               check_bow, check_eshelby, check_dislocations])
+#: Check groups, in the order of the table: functions returning a list of :class:`Check`.
+CHECKS: list[Callable[[], list[Check]]] = [
+    check_rotation, check_blanket, check_thermal, check_critical_thickness, check_bow,
+    check_eshelby, check_dislocations]
 
 
 # --------------------------------------------------------------------------
@@ -376,7 +376,7 @@ def cmd_verify(args) -> int:
         bad = sum(not r.passed for r in rows)
         print(f"{len(rows) - bad} of {len(rows)} checks passed in "
               f"{time.perf_counter() - t:.0f} s")
-    return 0 if all(r.passed for r in rows) else 1
+    return 0 if all(r.passed for r in rows) else EXIT_FAILED
 
 
 def add_command(subparsers) -> None:

@@ -1,0 +1,48 @@
+"""``mesastrain check CASE``: validate a case and estimate its size, memory and time.
+
+Nothing is solved; the estimate is :func:`mesastrain.run.resources.estimate`.
+Exit status 2 when the case does not fit in the available memory.
+"""
+
+from __future__ import annotations
+
+import json
+
+from mesastrain.case.parse import load_case
+from mesastrain.cli.common import EXIT_USAGE, err
+
+
+def cmd_check(args) -> int:
+    """``mesastrain check``: 0 when the case is valid and fits in memory, 2 otherwise."""
+    from mesastrain.run.resources import available_memory_gb, estimate
+
+    case = load_case(args.case)
+    est = estimate(case)
+    avail = available_memory_gb()
+    d = est.to_dict()
+    d["memory_available_gb"] = round(avail, 2)
+    d["fits"] = est.memory_gb <= avail
+    if args.json:
+        print(json.dumps(d))
+    else:
+        print(f"case      {args.case}: {case.title} (valid)")
+        print(f"stack     {case.substrate.material} substrate + {len(case.layers)} layer(s), "
+              f"{case.stack_thickness:g} nm; pattern {case.pattern.shape}")
+        print(f"mesh      {est.nodes:,} nodes, {est.elements:,} hexahedra, order {est.order}")
+        print(f"unknowns  {est.unknowns:,} (solver: {est.method})")
+        print(f"memory    about {est.memory_gb:.2f} GB (available {avail:.1f} GB)")
+        print(f"time      about {est.seconds:.0f} s on 2 cores (rough)")
+    if not d["fits"]:
+        err(f"mesh: the case needs about {est.memory_gb:.1f} GB but only {avail:.1f} GB are "
+            "available; coarsen mesh.size / mesh.edge_size")
+        return EXIT_USAGE
+    return 0
+
+
+def add_command(subparsers) -> None:
+    """Add ``mesastrain check CASE [--json]`` to the command line."""
+    c = subparsers.add_parser("check", help="validate a case and estimate its size, memory "
+                                            "and time")
+    c.add_argument("case", help="case file (TOML)")
+    c.add_argument("--json", action="store_true", help="print the estimate as JSON")
+    c.set_defaults(func=cmd_check)

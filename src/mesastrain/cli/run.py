@@ -1,0 +1,106 @@
+"""``mesastrain run CASE``: solve a case and write its result folder.
+
+Prints the headline results (:func:`results_table`) and, with
+``--convergence`` or ``mesh.convergence``, the mesh-convergence table.
+Progress goes to stderr when it is a terminal (or with ``--progress``).
+"""
+
+from __future__ import annotations
+
+import sys
+import time
+from pathlib import Path
+
+from mesastrain.case.parse import load_case
+from mesastrain.cli.common import EXIT_USAGE, err
+
+
+class Progress:
+    """Stage messages with elapsed time, on stderr, only when it is a terminal
+    (or when forced)."""
+
+    def __init__(self, enabled: bool):
+        self.enabled = enabled
+        self.t0 = time.perf_counter()
+
+    def __call__(self, msg: str) -> None:
+        if self.enabled:
+            print(f"[{time.perf_counter() - self.t0:6.1f} s] {msg}", file=sys.stderr, flush=True)
+
+
+def _fmt(v: float) -> str:
+    return f"{v:10.1f}"
+
+
+def results_table(summary: dict) -> str:
+    """Short plain-text table of the headline results of a run (MPa)."""
+    lines = ["region          material        mean sxx   mean syy   mean szz  max v.Mises"]
+    for lf in summary["layer_figures"]:
+        s = lf["mean_stress"]
+        lines.append(f"{lf['name']:<15} {lf['label']:<14}{_fmt(s[0][0])} {_fmt(s[1][1])} "
+                     f"{_fmt(s[2][2])} {_fmt(lf['max_von_mises'])}")
+    if summary["probes"]:
+        lines.append("")
+        lines.append("probe           at (nm)                       sxx        syy        szz")
+        for p in summary["probes"]:
+            at = ", ".join(f"{v:g}" for v in p["at"])
+            s = p["stress"]
+            lines.append(f"{p['name']:<15} [{at}]".ljust(40) +
+                         f"{_fmt(s[0][0])} {_fmt(s[1][1])} {_fmt(s[2][2])}")
+    lines.append("stress in MPa, sample frame, positive in tension; element averages for "
+                 "regions, exact values at probes")
+    return "\n".join(lines)
+
+
+def cmd_run(args) -> int:
+    """``mesastrain run``: 0 when the result folder is written, 2 when ``--out`` exists."""
+    from mesastrain.io.export import jsonable
+    from mesastrain.io.folder import CAUTION, summary_of, write_result
+    from mesastrain.derived import EIGENSTRAIN_SOURCES, PROVIDERS, solve_and_derive
+
+    case = load_case(args.case)
+    out = Path(args.out) if args.out else Path(Path(args.case).stem + "-results")
+    if out.exists() and not args.overwrite:
+        err(f"--out: {out} already exists; pass --overwrite to replace it")
+        return EXIT_USAGE
+    progress = Progress(sys.stderr.isatty() or args.progress)
+    progress(f"case {args.case}: {case.title}")
+    study = None
+    if args.convergence or getattr(case.mesh, "convergence", None):
+        from mesastrain.run.convergence import study as convergence_study
+
+        res, study = convergence_study(case, progress=progress, max_memory_gb=args.max_memory,
+                                            providers=PROVIDERS,
+                                            eigenstrain_sources=EIGENSTRAIN_SOURCES)
+    else:
+        res = solve_and_derive(case, progress=progress, max_memory_gb=args.max_memory)
+    progress("writing results")
+    write_result(res, out, overwrite=args.overwrite)
+    summary = jsonable(summary_of(res))
+    if not args.quiet:
+        print(results_table(summary))
+        if study is not None:
+            from mesastrain.run.convergence import table as convergence_table
+
+            print()
+            print(convergence_table(study))
+        print(f"results in {out}/ (summary.json, fields.vtu)")
+        print(CAUTION)
+    return 0
+
+
+def add_command(subparsers) -> None:
+    """Add ``mesastrain run CASE`` to the command line."""
+    r = subparsers.add_parser("run", help="solve a case and write its result folder")
+    r.add_argument("case", help="case file (TOML)")
+    r.add_argument("--out", help="result folder (default: <case name>-results)")
+    r.add_argument("--overwrite", action="store_true", help="replace an existing result folder")
+    r.add_argument("--max-memory", type=float, metavar="GB",
+                   help="refuse a case whose estimated memory exceeds this")
+    r.add_argument("--progress", action="store_true",
+                   help="show progress even when stderr is not a terminal")
+    r.add_argument("-q", "--quiet", action="store_true", help="no result table")
+    r.add_argument("--convergence", action="store_true",
+                   help="also solve with element sizes / 1.5 and / 2.25 and report how the "
+                        "headline figures move (observed order, verdict)")
+    r.set_defaults(func=cmd_run)
