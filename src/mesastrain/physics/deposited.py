@@ -56,10 +56,10 @@ from mesastrain.physics.thermal import FIT_MODES, expansion_fit, thermal_strain
 from mesastrain.physics.thinfilm import biaxial_response
 
 __all__ = [
-    "in_plane_stiffness",
-    "deposited_film_eigenstrain",
     "blanket_film_stress",
+    "deposited_film_eigenstrain",
     "free_thermal_strain",
+    "in_plane_stiffness",
     "thermal_mismatch_eigenstrain",
 ]
 

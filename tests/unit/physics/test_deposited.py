@@ -13,9 +13,13 @@ from scipy.integrate import quad
 
 from mesastrain.errors import MaterialError, MesastrainError
 from mesastrain.physics.crystal import sample_frame
-from mesastrain.physics.deposited import (blanket_film_stress, deposited_film_eigenstrain,
-                                          free_thermal_strain, in_plane_stiffness,
-                                          thermal_mismatch_eigenstrain)
+from mesastrain.physics.deposited import (
+    blanket_film_stress,
+    deposited_film_eigenstrain,
+    free_thermal_strain,
+    in_plane_stiffness,
+    thermal_mismatch_eigenstrain,
+)
 from mesastrain.physics.elastic import stiffness_from_constants
 from mesastrain.physics.materials import get_material, material_from_table
 from mesastrain.physics.thinfilm import biaxial_response

@@ -16,10 +16,15 @@ from scipy.spatial.transform import Rotation
 
 from mesastrain.errors import MaterialError
 from mesastrain.physics.crystal import rotate_voigt_stiffness
-from mesastrain.physics.elastic import _matrix  # the unchecked builder, to compare with
-from mesastrain.physics.elastic import (STIFFNESS_KEYS, SYMMETRY_SYSTEMS, check_constants,
-                                        isotropic_constants_to_cubic, stiffness_from_constants,
-                                        validate_stiffness)
+from mesastrain.physics.elastic import (
+    STIFFNESS_KEYS,
+    SYMMETRY_SYSTEMS,
+    _matrix,  # the unchecked builder, to compare with
+    check_constants,
+    isotropic_constants_to_cubic,
+    stiffness_from_constants,
+    validate_stiffness,
+)
 from mesastrain.physics.materials import cubic_stiffness, hexagonal_stiffness
 
 el = pytest.importorskip("matscipy.elasticity")

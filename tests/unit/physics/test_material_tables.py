@@ -15,8 +15,13 @@ import numpy as np
 import pytest
 
 from mesastrain.errors import MaterialError
-from mesastrain.physics.materials import (builtin_materials, get_material, known_materials,
-                                          material_from_table, materials_table)
+from mesastrain.physics.materials import (
+    builtin_materials,
+    get_material,
+    known_materials,
+    material_from_table,
+    materials_table,
+)
 
 NEW = {"substrate": ["sapphire", "4H-SiC", "6H-SiC", "diamond"],
        "dielectric": ["SiO2", "Si3N4-LPCVD", "SiN-PECVD", "Al2O3-ALD", "HfO2"],
