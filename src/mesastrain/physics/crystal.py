@@ -4,8 +4,10 @@ Conventions
 -----------
 Crystal Cartesian axes
     Cubic crystals: the cube axes [100], [010], [001].
-    Hexagonal crystals: x along a1 = [2-1-10], z along c = [0001], y = z cross x
-    (so y is along [01-10]).
+    Hexagonal and trigonal crystals (hexagonal setting): x along a1 = [2-1-10],
+    z along c = [0001], y = z cross x (so y is along [01-10]).
+    Isotropic materials: any Cartesian axes; indices are read as Cartesian
+    directions, as for cubic crystals.
 Sample frame
     z is the wafer normal (+z points up through the layers), x is the crystal
     direction given as ``x_axis`` (it must lie in the surface), y = z cross x.
@@ -39,7 +41,9 @@ _VOIGT_INDEX = np.empty((3, 3), dtype=int)
 for _I, (_i, _j) in enumerate(VOIGT_PAIRS):
     _VOIGT_INDEX[_i, _j] = _VOIGT_INDEX[_j, _i] = _I
 
-SYSTEMS = ("cubic", "hexagonal")
+SYSTEMS = ("cubic", "hexagonal", "trigonal", "isotropic")
+#: Systems whose Miller indices are Cartesian directions (the rest use the hexagonal basis).
+_CARTESIAN = ("cubic", "isotropic")
 
 
 # --------------------------------------------------------------------------
@@ -180,8 +184,8 @@ def _hex_basis(c_over_a: float) -> np.ndarray:
 def _check_system(system: str, c_over_a: float | None) -> None:
     if system not in SYSTEMS:
         raise OrientationError(f"crystal system must be one of {SYSTEMS}, got {system!r}")
-    if system == "hexagonal" and (c_over_a is None or not c_over_a > 0):
-        raise OrientationError("a hexagonal crystal needs c/a > 0")
+    if system not in _CARTESIAN and (c_over_a is None or not c_over_a > 0):
+        raise OrientationError(f"a {system} crystal needs c/a > 0")
 
 
 def direction_vector(uvw, system: str = "cubic", c_over_a: float | None = None,
@@ -193,13 +197,13 @@ def direction_vector(uvw, system: str = "cubic", c_over_a: float | None = None,
     uvw : sequence of 3 or 4 integers
         Cubic: [u, v, w]. Hexagonal: three-index [u, v, w] on the basis a1, a2, c
         or four-index Miller-Bravais [U, V, T, W] with T = -(U + V).
-    system : {"cubic", "hexagonal"}
+    system : {"cubic", "hexagonal", "trigonal", "isotropic"}
     c_over_a : float
         Lattice ratio, required for hexagonal crystals.
     """
     _check_system(system, c_over_a)
     d = _as_indices(uvw, what)
-    if system == "cubic":
+    if system in _CARTESIAN:
         if d.size != 3:
             raise OrientationError(f"{what} of a cubic crystal takes 3 indices, got {list(uvw)!r}")
         return d
@@ -225,7 +229,7 @@ def plane_normal(hkl, system: str = "cubic", c_over_a: float | None = None,
     """
     _check_system(system, c_over_a)
     n = _as_indices(hkl, what)
-    if system == "cubic":
+    if system in _CARTESIAN:
         if n.size != 3:
             raise OrientationError(f"{what} of a cubic crystal takes 3 indices, got {list(hkl)!r}")
         return n
@@ -282,7 +286,7 @@ def sample_frame(normal, x_axis, system: str = "cubic",
         Plane (hkl) or (hkil) of the surface; sample +z is its normal.
     x_axis : sequence of int
         Crystal direction [uvw] or [UVTW] along sample +x; must lie in the surface.
-    system : {"cubic", "hexagonal"}
+    system : {"cubic", "hexagonal", "trigonal", "isotropic"}
     c_over_a : float, optional
         Required for hexagonal crystals.
 

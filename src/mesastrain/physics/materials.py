@@ -1,9 +1,17 @@
-"""Elastic, lattice and thermal-expansion data of crystalline materials.
+"""Elastic, lattice and thermal-expansion data of materials.
 
 The numbers live in ``mesastrain/data/materials.toml``, one table per material,
 each quantity with its published source and a confidence flag. This module
 reads that file once, builds 6x6 Voigt stiffness matrices in crystal axes and
 interpolates binary alloys.
+
+Groups of the database: ``[material.*]`` the epitaxial semiconductors (cubic
+and hexagonal, the alloy members), ``[alloy.*]``, and ``[substrate.*]``,
+``[dielectric.*]``, ``[metal.*]`` in the general format of
+:func:`material_from_table`, which takes any symmetry system of
+:mod:`mesastrain.physics.elastic` (isotropic, cubic, hexagonal, trigonal,
+tetragonal, orthorhombic, anisotropic). A case file's ``[material.NAME]``
+table or the Python API can build a material of its own the same way.
 
 Alloys are named by their members, ``x`` being the fraction of the **second**
 member: ``SiGe`` is Si(1-x)Ge(x), ``InGaAs`` is In(x)Ga(1-x)As (members GaAs,
@@ -20,85 +28,24 @@ import functools
 import importlib.resources
 import textwrap
 import tomllib
-from dataclasses import dataclass
 
 import numpy as np
 
 from mesastrain.errors import MaterialError
+from mesastrain.physics.elastic import (  # noqa: F401 (re-exported)
+    SYMMETRY_SYSTEMS,
+    stiffness_from_constants,
+    validate_stiffness,
+)
+from mesastrain.physics.material_record import Material, build_material
 
 _CUBIC_KEYS = ("C11", "C12", "C44")
 _HEX_KEYS = ("C11", "C12", "C13", "C33", "C44")
 _LATTICE_LAWS = ("vegard", "dismukes1964")
-
-
-@dataclass(frozen=True, eq=False)
-class Material:
-    """One material, or one alloy at one composition.
-
-    Attributes
-    ----------
-    name : str
-        Name as in the database, e.g. ``"Si"``, ``"SiGe"``, ``"GaN"``.
-    x : float or None
-        Alloy fraction of the second member (SiGe: Ge); None for a compound.
-    system : str
-        ``"cubic"`` or ``"hexagonal"``.
-    constants : dict
-        Independent stiffness constants in GPa: C11, C12, C44 (cubic) or
-        C11, C12, C13, C33, C44 (hexagonal).
-    stiffness : ndarray (6, 6)
-        Voigt stiffness in crystal axes, GPa (read-only).
-    a : float
-        Lattice constant a, Angstrom.
-    c : float or None
-        Lattice constant c, Angstrom (hexagonal only).
-    alpha : tuple
-        Linear thermal expansion near 300 K, 1e-6/K: ``(alpha,)`` for cubic,
-        ``(alpha_a, alpha_c)`` for hexagonal.
-    sources : tuple of str
-        Citation strings with confidence flags ([C], [M], [D]).
-    structure : str
-        ``"diamond"``, ``"zincblende"`` or ``"wurtzite"``.
-    lattice_law : str or None
-        Alloys: ``"vegard"`` or ``"dismukes1964"``; None for a compound.
-    members : tuple of str
-        Alloys: (first, second) member names; empty for a compound.
-    """
-
-    name: str
-    x: float | None
-    system: str
-    constants: dict
-    stiffness: np.ndarray
-    a: float
-    c: float | None
-    alpha: tuple
-    sources: tuple
-    structure: str = ""
-    lattice_law: str | None = None
-    members: tuple = ()
-    label_template: str = ""
-
-    @property
-    def c_over_a(self) -> float | None:
-        """Axial ratio c/a (dimensionless), None for cubic crystals."""
-        return None if self.c is None else self.c / self.a
-
-    @property
-    def label(self) -> str:
-        """Composition label, e.g. ``"Si0.8Ge0.2"``; the name for a compound."""
-        if self.x is None:
-            return self.name
-        return (self.label_template.replace("{1-x}", _fmt_fraction(1.0 - self.x))
-                .replace("{x}", _fmt_fraction(self.x)))
-
-    def __repr__(self) -> str:
-        lat = f"a={self.a:.5g} A" + ("" if self.c is None else f", c={self.c:.5g} A")
-        return f"Material({self.label}, {self.system}, {lat})"
-
-
-def _fmt_fraction(v: float) -> str:
-    return f"{v:.4f}".rstrip("0").rstrip(".") or "0"
+#: Database groups in the general format, in the order they are listed.
+GENERAL_GROUPS = ("substrate", "dielectric", "metal")
+_GROUP_TITLES = {"substrate": "Substrates", "dielectric": "Dielectrics (deposited films)",
+                 "metal": "Metals (polycrystalline films)"}
 
 
 # --------------------------------------------------------------------------
@@ -173,6 +120,56 @@ def hexagonal_stiffness(C11, C12, C13, C33, C44) -> np.ndarray:
     return c
 
 
+def material_from_table(name: str, table: dict, replace_builtin: bool = False) -> Material:
+    """Build a material from a table in the database's general format.
+
+    The format of a case file's ``[material.NAME]`` table and of the
+    ``[substrate.*]``, ``[dielectric.*]`` and ``[metal.*]`` tables of
+    ``data/materials.toml``::
+
+        system = "trigonal"          # isotropic | cubic | hexagonal | trigonal |
+                                     # tetragonal | orthorhombic | anisotropic
+        C11 = 497.0                  # the system's constants, GPa (isotropic: E GPa, nu;
+        ...                          # anisotropic: C = 6 rows of 6 numbers, crystal axes)
+        a = 4.758                    # optional lattice constants, Angstrom (a; a and c;
+        c = 12.991                   # a, b and c), none for isotropic
+        alpha = [7.5, 8.5]           # optional, 1e-6/K: one value, or per axis
+        structure = "corundum"       # optional
+        source = "..."               # optional: a string, or a table per quantity
+
+    Parameters
+    ----------
+    name : str
+        Name the layers use, e.g. ``"myNitride"``.
+    table : dict
+        The table, as parsed from TOML (constants in GPa, lattice in
+        Angstrom, alpha in 1e-6/K).
+    replace_builtin : bool, default: False
+        Allow ``name`` to shadow a built-in material or alloy.
+
+    Returns
+    -------
+    Material
+        ``group = "user"``, ``x = None``.
+
+    Raises
+    ------
+    MaterialError
+        One line naming the key: a name that shadows a built-in material,
+        an unknown system or key, a missing constant, a stiffness that is not
+        positive definite (the failing condition and its constants), lattice
+        constants missing, not allowed or not positive, or a badly shaped
+        alpha.
+    """
+    if not isinstance(name, str) or not name:
+        raise MaterialError(f"material name must be a non-empty string, got {name!r}")
+    who = f"material.{name}"
+    if not replace_builtin and (name in builtin_materials() or is_alloy(name)):
+        raise MaterialError(f"{who} shadows the built-in material {name!r}; choose another "
+                            f"name or say that the replacement is meant")
+    return build_material(name, table, "user", who)
+
+
 # --------------------------------------------------------------------------
 # database
 # --------------------------------------------------------------------------
@@ -209,6 +206,15 @@ def _database() -> dict:
         if al.get("stiffness_law") != "linear" or al.get("alpha_law") != "linear":
             raise MaterialError(f"materials.toml: alloy.{name}: stiffness_law and alpha_law "
                                 f"must be 'linear'")
+    seen = set(compounds) | set(alloys)
+    for group in GENERAL_GROUPS:
+        for name, table in db.get(group, {}).items():
+            if name in seen:
+                raise MaterialError(f"materials.toml: {group}.{name} repeats a name")
+            seen.add(name)
+            if not isinstance(table.get("source"), dict):
+                raise MaterialError(f"materials.toml: {group}.{name} needs a [source] table")
+            build_material(name, table, group, f"materials.toml: {group}.{name}")
     return db
 
 
@@ -224,7 +230,9 @@ def _aliases() -> dict:
 
 
 def known_materials() -> list[str]:
-    """Names accepted by :func:`get_material`, compounds first, then alloys.
+    """Names of the epitaxial semiconductors, compounds first, then alloys.
+
+    Substrates, dielectrics and metals are listed by :func:`builtin_materials`.
 
     Returns
     -------
@@ -233,6 +241,33 @@ def known_materials() -> list[str]:
     """
     db = _database()
     return list(db["material"]) + list(db["alloy"])
+
+
+def builtin_materials(group: str | None = None) -> list[str]:
+    """Every name :func:`get_material` accepts, or those of one group.
+
+    Parameters
+    ----------
+    group : str, optional
+        ``"material"`` (epitaxial semiconductors), ``"alloy"``,
+        ``"substrate"``, ``"dielectric"`` or ``"metal"``; all groups if None.
+
+    Returns
+    -------
+    list of str
+        Case-sensitive names in data-file order; :func:`known_materials` is
+        the first two groups.
+    """
+    db = _database()
+    groups = ("material", "alloy") + GENERAL_GROUPS
+    if group is not None and group not in groups:
+        raise MaterialError(f"group must be one of {', '.join(groups)}, got {group!r}")
+    return [n for g in groups if group in (None, g) for n in db.get(g, {})]
+
+
+def _general_group(name: str) -> str | None:
+    db = _database()
+    return next((g for g in GENERAL_GROUPS if name in db.get(g, {})), None)
 
 
 def is_alloy(name: str) -> bool:
@@ -292,7 +327,7 @@ def _alloy(name: str, x: float) -> Material:
         alpha=tuple(lin(p, q) for p, q in zip(m0.alpha, m1.alpha)),
         sources=(f"{name} alloy law: {al['source']}",) + m0.sources + m1.sources,
         structure=m0.structure, lattice_law=al["lattice_law"], members=tuple(al["members"]),
-        label_template=al["label"])
+        label_template=al["label"], group="alloy")
 
 
 def get_material(name: str, x: float | None = None) -> Material:
@@ -301,7 +336,7 @@ def get_material(name: str, x: float | None = None) -> Material:
     Parameters
     ----------
     name : str
-        Case-sensitive name from :func:`known_materials`; alloys are also
+        Case-sensitive name from :func:`builtin_materials`; alloys are also
         accepted by their formula, e.g. ``"Si1-xGex"`` or ``"In(x)Ga(1-x)As"``.
     x : float, optional
         Alloy fraction of the second member, 0 <= x <= 1 (SiGe: Ge,
@@ -338,7 +373,13 @@ def get_material(name: str, x: float | None = None) -> Material:
         if isinstance(x, bool) or not 0.0 <= xf <= 1.0:
             raise MaterialError(f"x = {x!r} for {key} is outside [0, 1] (x is the fraction of {of})")
         return _alloy(key, xf)
-    raise MaterialError(f"unknown material {name!r}; known: {', '.join(known_materials())}")
+    group = _general_group(key) if isinstance(key, str) else None
+    if group is not None:
+        if x is not None:
+            raise MaterialError(f"{key} is not an alloy: do not give x "
+                                f"(alloys: {', '.join(db['alloy'])})")
+        return build_material(key, db[group][key], group, f"{group}.{key}")
+    raise MaterialError(f"unknown material {name!r}; known: {', '.join(builtin_materials())}")
 
 
 # --------------------------------------------------------------------------
@@ -356,7 +397,8 @@ def materials_table(width: int = 120) -> str:
     -------
     str
         Stiffness in GPa, a and c in Angstrom, alpha in 1e-6/K, then one
-        wrapped line per source; alloys follow with their laws.
+        wrapped line per source; alloys follow with their laws, then the
+        substrates, dielectrics and metals.
     """
     db = _database()
     indent = " " * 6
@@ -397,4 +439,39 @@ def materials_table(width: int = 120) -> str:
         members = f"{al['members'][0]} .. {al['members'][1]}"
         lines.append(f"{name:<8}{_formula(al):<16}x = {al['x_of']:<4}{members:<14}lattice: {law}")
         lines += wrap("source", al["source"])
+    for group in GENERAL_GROUPS:
+        if db.get(group):
+            lines += _general_section(group, wrap, num, width)
     return "\n".join(lines)
+
+
+def _general_section(group: str, wrap, num, width: int) -> list[str]:
+    """Lines of :func:`materials_table` for one general-format group."""
+    db = _database()
+    mats = [build_material(n, t, group, f"{group}.{n}") for n, t in db[group].items()]
+    lines = ["", _GROUP_TITLES[group], "-" * min(width, 100)]
+    if all(m.system == "isotropic" for m in mats):
+        fmt = "{:<14}{:<17}{:>7}{:>7}{:>9}{:>9}{:>9}  {}"
+        lines += ["isotropic: C11 = lambda + 2 mu, C12 = lambda, C44 = mu (GPa); no lattice "
+                  "constant, no lattice mismatch",
+                  fmt.format("name", "structure", "E", "nu", "C11", "C12", "C44", "alpha")]
+    else:
+        fmt = "{:<10}{:<18}{:>7}{:>7}{:>7}{:>7}{:>7}{:>7}{:>7}{:>8}{:>9}  {}"
+        lines += ["trigonal: z along c, x along a1 = [2-1-10]; C14 changes sign under a "
+                  "60-degree rotation about c",
+                  fmt.format("name", "system/structure", "C11", "C12", "C13", "C14", "C33",
+                             "C44", "C66", "a", "c", "alpha")]
+    for m in mats:
+        k, c = m.constants, m.stiffness
+        alpha = "/".join(f"{v:.2f}" for v in m.alpha) or "-"
+        if m.system == "isotropic":
+            lines.append(fmt.format(m.name, m.structure, num(k["E"]), num(k["nu"]),
+                                    f"{c[0, 0]:.4g}", f"{c[0, 1]:.4g}", f"{c[3, 3]:.4g}", alpha))
+        else:
+            lines.append(fmt.format(
+                m.name, f"{m.system}/{m.structure}", *(f"{c[i, j]:.4g}" for i, j in
+                ((0, 0), (0, 1), (0, 2), (0, 3), (2, 2), (3, 3), (5, 5))),
+                num(m.a), num(m.c), alpha))
+        for q, text in db[group][m.name]["source"].items():
+            lines += wrap(q, text)
+    return lines
