@@ -108,14 +108,13 @@ def matvec_bytes(nnz: int, n: int) -> int:
 
 def build_model(case):
     """Layers, symmetry, mesh object and discretisation as :func:`pipeline.run_case` does."""
-    from mesastrain.fem.discretisation import discretise_mesh
     from mesastrain.model.regions import build_layers
     from mesastrain.run.pipeline import build_model_mesh, decide_symmetry
 
     layers = build_layers(case)
     sym = decide_symmetry(case, layers)
     sm = build_model_mesh(case, layers, sym)
-    disc = discretise_mesh(sm, case.mesh.order)
+    disc = sm.discretise(case.mesh.order)
     return layers, sm, disc
 
 
@@ -125,9 +124,9 @@ def run_stages(case, solver_method: str = "iterative", probes=None) -> dict:
     Returns a dict of sizes, seconds, solver statistics and the peak memory
     after each stage; ``probes`` (npts, 3) are evaluated exactly when given.
     """
-    from mesastrain.fem.assembly import assemble, rigid_body_modes
-    from mesastrain.fem.fields import evaluate_at_points, recover
-    from mesastrain.run.pipeline import support_dofs
+    from mesastrain.fem.assembly import SymbolicCache, assemble, rigid_body_modes
+    from mesastrain.fem.constraints import support_dofs
+    from mesastrain.fem.fields import recover
     from mesastrain.fem.solve import solve_condensed
 
     out = {}
@@ -138,7 +137,8 @@ def run_stages(case, solver_method: str = "iterative", probes=None) -> dict:
     stiff = np.array([lm.stiffness_sample for lm in layers])
     eig = np.array([lm.eigenstrain_sample for lm in layers])
     t = time.perf_counter()
-    K, f = assemble(disc, sm.layer, stiff, eig)
+    cache = SymbolicCache(disc)
+    K, f = assemble(disc, sm.region, stiff, eig, cache=cache)
     out["assembly_s"] = time.perf_counter() - t
     out["peak_assembly_gb"] = peak_rss_gb()
     out["unknowns"] = int(K.shape[0])
@@ -148,7 +148,8 @@ def run_stages(case, solver_method: str = "iterative", probes=None) -> dict:
     t = time.perf_counter()
     u, rep = solve_condensed(K, f, fixed, rigid_body_modes(disc.doflocs),
                              method=solver_method, tol=case.solver.tolerance,
-                             maxiter=case.solver.max_iterations)
+                             maxiter=case.solver.max_iterations,
+                             spaces=cache.deferred_spaces(sm.region))
     out["solve_total_s"] = time.perf_counter() - t
     out["setup_s"] = rep.setup_seconds
     out["solve_s"] = rep.solve_seconds
@@ -167,21 +168,18 @@ def run_stages(case, solver_method: str = "iterative", probes=None) -> dict:
         K @ x
         best = min(best, time.perf_counter() - t)
     out["matvec_s"] = best
-    del K
+    del K, cache
     # recovery as pipeline.run_case does it: unfold a half/quarter model, recover, probes
     t = time.perf_counter()
-    if getattr(sm, "mirrors", ()):
+    if sm.mirrors:
         from mesastrain.mesh.unfold import unfold_model
 
         sm, disc, u = unfold_model(sm, disc, u)
-    nverts = int(getattr(sm, "solve_nnodes", sm.nnodes))
-    solve_mesh = getattr(sm, "solve_mesh", None)
-    verts = (sm.mesh if solve_mesh is None else solve_mesh).t
-    fl = recover(disc, u, sm.layer, stiff, eig, nverts, verts)
+    fl = recover(disc, u, sm.region, stiff, eig, sm.solve_nnodes, sm.solve_mesh.t)
     if probes is not None:
         pts = np.asarray(probes, dtype=float)
         elems = sm.locate(pts)
-        _, stress, _ = evaluate_at_points(disc, u, elems, pts, sm.layer, stiff, eig)
+        _, stress, _ = sm.evaluate(disc, u, elems, pts, sm.region, stiff, eig)
         out["probe_stress"] = stress.tolist()
     out["recovery_s"] = time.perf_counter() - t
     out["max_cell_stress"] = float(np.abs(fl.cell_stress).max())

@@ -63,7 +63,7 @@ def child_direct(refine: float, order: int) -> dict:
     import scipy.sparse.linalg as spla
 
     from mesastrain.fem.assembly import assemble
-    from mesastrain.run.pipeline import support_dofs
+    from mesastrain.fem.constraints import support_dofs
     from mesastrain.fem.solve import condense
     from common import build_model
 
@@ -71,7 +71,7 @@ def child_direct(refine: float, order: int) -> dict:
     layers, sm, disc = build_model(case)
     stiff = np.array([lm.stiffness_sample for lm in layers])
     eig = np.array([lm.eigenstrain_sample for lm in layers])
-    K, f = assemble(disc, sm.layer, stiff, eig)
+    K, f = assemble(disc, sm.region, stiff, eig)
     fixed = support_dofs(disc.doflocs, sm.boundary())
     free = np.ones(K.shape[0], dtype=bool)
     free[fixed] = False

@@ -263,10 +263,11 @@ def eshelby_sphere(nu: float = 0.25, eps_star: float = 0.01, n_in: int = 6) -> d
     """
     from skfem import MeshHex
 
-    from mesastrain.fem.assembly import assemble, discretise
+    from mesastrain.fem.assembly import assemble
+    from mesastrain.fem.discretisation import discretise
     from mesastrain.physics.dislocations import isotropic_stiffness
     from mesastrain.fem.fields import evaluate_at_points, recover
-    from mesastrain.mesh.structured import join_segments
+    from mesastrain.mesh.grid import join_segments
     from mesastrain.fem.solve import solve_condensed
 
     t0 = time.perf_counter()

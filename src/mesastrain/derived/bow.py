@@ -166,7 +166,8 @@ def free_plate_curvature(stiffness, eigenstrain, z_bottom, z_top, *, order: int 
         ``film_force`` (sum over layers of the mean in-plane stress times
         thickness at the centre, MPa nm), ``unknowns``, ``seconds``.
     """
-    from mesastrain.fem.assembly import assemble, discretise
+    from mesastrain.fem.assembly import assemble
+    from mesastrain.fem.discretisation import discretise
     from mesastrain.fem.fields import evaluate_at_points
     from mesastrain.fem.solve import solve_condensed
 

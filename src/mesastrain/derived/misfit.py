@@ -351,7 +351,7 @@ class PrismModel:
     def __init__(self, xs, ys, zs, axis: int, group=None):
         from skfem import MeshHex
 
-        from mesastrain.fem.assembly import discretise
+        from mesastrain.fem.discretisation import discretise
 
         grids = [np.asarray(g, dtype=float) for g in (xs, ys, zs)]
         if len(grids[axis]) != 2:
@@ -679,7 +679,7 @@ def resolve_families(case, layers, group, lo, hi, boundary=None) -> list[LineFam
     lo, hi : ndarray (nelems, 3)
         Element bounds (:func:`brick_bounds`); for a cross-section mesh the
         coordinate along the section normal is -inf / +inf.
-    boundary : mesastrain.mesh.structured.Boundary, optional
+    boundary : mesastrain.fem.constraints.Boundary, optional
         Periodic ties of the model (lines are wrapped across tied faces).
 
     Returns
@@ -850,10 +850,10 @@ def model_bounds(sm) -> tuple[np.ndarray, np.ndarray]:
     """
     from mesastrain.errors import CaseError
 
-    kind = getattr(sm, "kind", "structured")
-    if kind == "structured" and getattr(sm, "axis_aligned", True):
+    kind = sm.kind
+    if kind == "structured" and sm.axis_aligned:
         return brick_bounds(sm.mesh)
-    if kind == "section" and not sm.geometry.taper:
+    if kind == "section" and not sm.layout.taper:
         p = np.asarray(sm.solve_mesh.p, dtype=float)
         t = np.asarray(sm.solve_mesh.t)
         xe = p[:, t]                                  # (2, 4, nel): (x, z)
@@ -869,7 +869,7 @@ def model_bounds(sm) -> tuple[np.ndarray, np.ndarray]:
 
 def _families_of(case, layers, sm):
     lo, hi = model_bounds(sm)
-    boundary = sm.boundary() if hasattr(sm, "boundary") else None
+    boundary = sm.boundary()
     return resolve_families(case, layers, sm.layer, lo, hi, boundary), lo, hi
 
 
@@ -887,7 +887,7 @@ def eigenstrain_source(case, layers, sm):
     """
     if not _case_sets(case):
         return None
-    if tuple(getattr(sm, "mirrors", ())):
+    if sm.mirrors:
         return np.zeros((sm.nelems, 3, 3))
     fams, lo, hi = _families_of(case, layers, sm)
     return lines_eigenstrain([ln for f in fams for ln in f.lines], lo, hi)
@@ -895,13 +895,15 @@ def eigenstrain_source(case, layers, sm):
 
 def _dislocation_solution(res, eig_cells):
     """FE displacement of the dislocation sheets alone (no mismatch), same model and supports."""
-    from mesastrain.fem.assembly import assemble
-    from mesastrain.run.pipeline import solve_model
+    from mesastrain.fem.assembly import SymbolicCache, assemble
+    from mesastrain.fem.solve import solve_model
 
     stiff = res.stiffness
     zero = np.zeros((len(stiff), 3, 3))
-    K, f = assemble(res.disc, res.mesh.layer, stiff, zero, eig_cells)
-    u, _ = solve_model(K, f, res.disc, res.mesh.boundary(), res.case.solver)
+    cache = SymbolicCache(res.disc)
+    K, f = assemble(res.disc, res.mesh.region, stiff, zero, eig_cells, cache=cache)
+    u, _ = solve_model(K, f, res.disc, res.mesh.boundary(), res.case.solver,
+                       spaces=cache.deferred_spaces(res.mesh.region))
     return u
 
 
@@ -928,13 +930,9 @@ def derive(res):
     u_d = _dislocation_solution(res, eig_cells)
     stiff = res.stiffness
     zero = np.zeros((len(stiff), 3, 3))
-    nv = int(getattr(sm, "solve_nnodes", sm.nnodes))
-    own = getattr(sm, "solve_mesh", None)
-    verts = (own if own is not None else sm.mesh).t
-    fl_d = recover(res.disc, u_d, sm.layer, stiff, zero, nv, verts, eig_cells)
-    expand = getattr(sm, "expand_fields", None)
-    if expand is not None:
-        fl_d = expand(fl_d)
+    fl_d = recover(res.disc, u_d, sm.region, stiff, zero, sm.solve_nnodes, sm.solve_mesh.t,
+                   eig_cells)
+    fl_d = sm.expand_fields(fl_d)
     centres = 0.5 * (np.where(np.isfinite(lo), lo, 0.0) + np.where(np.isfinite(hi), hi, 0.0))
     over = overlay_stress(fams, layers, centres)
     warnings = []
@@ -1018,8 +1016,7 @@ def _roller_ends(fam, sm, lo, hi) -> str:
     at = (sm.layer == fam.region) & (np.abs(lo[:, 2] - fam.z) <= 1e-9 * (1.0 + abs(fam.z)))
     if not np.any(at):
         return ""
-    boundary = sm.boundary() if hasattr(sm, "boundary") else None
-    tied = {a for a, _, _ in getattr(boundary, "periodic", ())}
+    tied = {a for a, _, _ in sm.boundary().periodic}
     faces = []
     for a in (0, 1):
         if abs(fam.template.xi[a]) < 1e-9 or a in tied or not np.all(np.isfinite(hi[:, a])):
@@ -1033,17 +1030,14 @@ def _roller_ends(fam, sm, lo, hi) -> str:
 
 def _sample(res, u_d, eig_cells, pts) -> np.ndarray:
     """FE dislocation-only stress (MPa) at points; NaN outside the body."""
-    from mesastrain.fem.fields import evaluate_at_points
-
     sm = res.mesh
     elems = sm.locate(pts)
     out = np.full((len(pts), 3, 3), np.nan)
     ok = elems >= 0
     if np.any(ok):
-        evaluate = getattr(sm, "evaluate", None) or evaluate_at_points
         stiff = res.stiffness
-        _, sig, _ = evaluate(res.disc, u_d, elems[ok], pts[ok], sm.layer, stiff,
-                             np.zeros((len(stiff), 3, 3)), eig_cells)
+        _, sig, _ = sm.evaluate(res.disc, u_d, elems[ok], pts[ok], sm.region, stiff,
+                                np.zeros((len(stiff), 3, 3)), eig_cells)
         out[ok] = sig
     return out
 

@@ -69,7 +69,7 @@ SINGULAR_NOTE = ("stress at a sharp reentrant corner or where a bimaterial inter
 # --------------------------------------------------------------------------
 def mirrors_of(res) -> tuple:
     """Mirror axes of the model (0 = x, 1 = y): only the non-negative side is meshed."""
-    return tuple(getattr(res.mesh, "mirrors", ()) or ())
+    return tuple(res.mesh.mirrors)
 
 
 def locate(res, points: np.ndarray) -> np.ndarray:

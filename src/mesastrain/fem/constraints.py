@@ -1,4 +1,8 @@
-"""Periodic cells and the elimination of tied degrees of freedom.
+"""Boundary conditions: supports, periodic cells and the elimination of tied dofs.
+
+A :class:`Boundary` says how a model is held, by position: which displacement
+components are zero on which planes (:func:`support_dofs`), which faces are
+tied, and which components are pinned at one node.
 
 An infinite array of features with pitch p along an axis is modelled by one
 cell with u(x + p) = u(x) on the opposite faces of the cell (no average
@@ -19,6 +23,47 @@ import scipy.sparse as sp
 from scipy.spatial import cKDTree
 
 from mesastrain.errors import MeshError
+
+
+@dataclass(frozen=True)
+class Boundary:
+    """Boundary conditions of a model, by position.
+
+    Attributes
+    ----------
+    supports : tuple of (component, axis, value)
+        Hold displacement ``component`` (0 x, 1 y, 2 z) at every dof whose
+        coordinate along ``axis`` equals ``value`` (nm).
+    periodic : tuple of (axis, lo, hi)
+        Tie the dofs on the face ``axis = hi`` to those on ``axis = lo``.
+    pin : tuple of int
+        Components held at one dof of the bottom to remove a remaining rigid
+        translation (periodic cells, cross-sections).
+    """
+
+    supports: tuple
+    periodic: tuple = ()
+    pin: tuple = ()
+
+
+def support_dofs(doflocs: np.ndarray, boundary: Boundary) -> np.ndarray:
+    """Vector dofs held at zero by a :class:`Boundary`.
+
+    A dof is on a support plane when its coordinate is within 1e-9 of the
+    model size of the plane. ``boundary.pin`` components are held at the one
+    bottom dof nearest the vertical axis (removes the rigid translations a
+    periodic cell or a cross-section would otherwise have).
+    """
+    x = np.asarray(doflocs, dtype=float)
+    tol = 1e-9 * (float(np.max(np.ptp(x, axis=1))) or 1.0)
+    parts = []
+    for comp, axis, value in boundary.supports:
+        parts.append(np.flatnonzero(np.abs(x[axis] - value) <= tol) * 3 + comp)
+    if boundary.pin:
+        bottom = np.flatnonzero(np.abs(x[2] - x[2].min()) <= tol)
+        k = bottom[np.argmin(x[0, bottom] ** 2 + x[1, bottom] ** 2)]
+        parts.append(np.array([3 * k + c for c in boundary.pin]))
+    return np.unique(np.concatenate(parts)) if parts else np.zeros(0, dtype=np.int64)
 
 
 @dataclass(frozen=True)

@@ -28,7 +28,8 @@ from dataclasses import dataclass
 import numpy as np
 import scipy.sparse as sp
 
-from mesastrain.fem.assembly import CHUNK, Discretisation
+from mesastrain.fem.assembly import CHUNK
+from mesastrain.fem.discretisation import Discretisation
 from mesastrain.physics.crystal import voigt_to_full
 
 GPA_TO_MPA = 1000.0
@@ -108,16 +109,16 @@ def nodal_average_matrix(element_vertices: np.ndarray, volume: np.ndarray,
     return E.T
 
 
-def _stress_of(C: np.ndarray, group: np.ndarray, el: np.ndarray) -> np.ndarray:
-    """sigma = C[group] : el, one contraction per material group (GPa)."""
+def _stress_of(C: np.ndarray, region: np.ndarray, el: np.ndarray) -> np.ndarray:
+    """sigma = C[region] : el, one contraction per region (GPa)."""
     sig = np.empty_like(el)
-    for g in np.unique(group):
-        m = group == g
-        sig[m] = np.einsum("ijkl,nkl->nij", C[g], el[m])
+    for r in np.unique(region):
+        m = region == r
+        sig[m] = np.einsum("ijkl,nkl->nij", C[r], el[m])
     return sig
 
 
-def recover(disc: Discretisation, u: np.ndarray, group: np.ndarray,
+def recover(disc: Discretisation, u: np.ndarray, region: np.ndarray,
             stiffness: np.ndarray, eigenstrain: np.ndarray, nnodes: int,
             element_vertices: np.ndarray, cell_eigenstrain: np.ndarray | None = None) -> Fields:
     """Element and nodal strain/stress from the displacement vector.
@@ -132,7 +133,7 @@ def recover(disc: Discretisation, u: np.ndarray, group: np.ndarray,
     disc : Discretisation
     u : ndarray (ndofs,)
         Displacement, nm, node-major (3 per scalar dof).
-    group, stiffness, eigenstrain
+    region, stiffness, eigenstrain
         As in :func:`mesastrain.fem.assembly.assemble` (GPa).
     nnodes : int
         Number of mesh vertices (the first scalar dofs are the vertices).
@@ -143,7 +144,7 @@ def recover(disc: Discretisation, u: np.ndarray, group: np.ndarray,
     """
     C = voigt_to_full(np.asarray(stiffness, dtype=float))
     eig = np.asarray(eigenstrain, dtype=float)
-    group = np.asarray(group)
+    region = np.asarray(region)
     nel = disc.element_dofs.shape[1]
     U = u.reshape(-1, 3)
     tot = np.empty((nel, 3, 3))
@@ -155,10 +156,10 @@ def recover(disc: Discretisation, u: np.ndarray, group: np.ndarray,
         grad = np.matmul(ue.transpose(0, 2, 1), gbar)    # du_i/dx_j, element mean
         tot[sl] = _sym(grad)
         vol[sl] = v
-    el = tot - eig[group]
+    el = tot - eig[region]
     if cell_eigenstrain is not None:
         el -= cell_eigenstrain
-    sig = _stress_of(C, group, el)
+    sig = _stress_of(C, region, el)
     sig *= GPA_TO_MPA
     S = nodal_average_matrix(element_vertices, vol, nnodes)
     node_strain = (S @ el.reshape(nel, 9)).reshape(nnodes, 3, 3)
@@ -169,7 +170,7 @@ def recover(disc: Discretisation, u: np.ndarray, group: np.ndarray,
 
 
 def evaluate_at_points(disc: Discretisation, u: np.ndarray, elements: np.ndarray,
-                       points: np.ndarray, group: np.ndarray, stiffness: np.ndarray,
+                       points: np.ndarray, region: np.ndarray, stiffness: np.ndarray,
                        eigenstrain: np.ndarray, cell_eigenstrain: np.ndarray | None = None
                        ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Exact elastic strain and stress at points inside known elements.
@@ -181,7 +182,7 @@ def evaluate_at_points(disc: Discretisation, u: np.ndarray, elements: np.ndarray
     elements : ndarray of int (npts,)
         Element containing each point.
     points : ndarray (npts, 3), nm
-    group, stiffness, eigenstrain, cell_eigenstrain : as for :func:`recover`
+    region, stiffness, eigenstrain, cell_eigenstrain : as for :func:`recover`
 
     Returns
     -------
@@ -210,8 +211,8 @@ def evaluate_at_points(disc: Discretisation, u: np.ndarray, elements: np.ndarray
         disp += phi[:, None] * ue[:, a, :]
     tot = _sym(grad)
     C = voigt_to_full(np.asarray(stiffness, dtype=float))
-    el = tot - np.asarray(eigenstrain)[group[elements]]
+    el = tot - np.asarray(eigenstrain)[region[elements]]
     if cell_eigenstrain is not None:
         el = el - cell_eigenstrain[elements]
-    sig = np.einsum("nijkl,nkl->nij", C[group[elements]], el) * GPA_TO_MPA
+    sig = np.einsum("nijkl,nkl->nij", C[region[elements]], el) * GPA_TO_MPA
     return el, sig, disp

@@ -10,11 +10,15 @@ gradients stop early on a wrong answer). Small systems use a sparse direct
 factorisation (SuperLU). Larger ones use conjugate gradients in double
 precision preconditioned by one multigrid V-cycle in single precision:
 
-* geometric semi-coarsening multigrid when the matrix comes from a structured
-  brick mesh (:func:`mesastrain.fem.assembly.assemble` attaches its coarse spaces
-  as ``K.coarse_spaces``; see :mod:`mesastrain.fem.multigrid`);
+* geometric semi-coarsening multigrid when the caller passes the coarse
+  spaces of a structured brick mesh (``spaces``, from
+  :meth:`mesastrain.fem.assembly.SymbolicCache.coarse_spaces`; see
+  :mod:`mesastrain.fem.coarsening`);
 * otherwise pyamg smoothed aggregation with the rigid-body modes as
   near-nullspace.
+
+:func:`solve_model` puts supports and periodic ties (:mod:`mesastrain.fem.constraints`)
+around it.
 
 Stopping: the relative residual ||b - A x|| / ||b|| must reach ``tol`` AND the
 estimated energy-norm error of the iterate must reach ``stress_tol`` relative
@@ -40,6 +44,11 @@ import scipy.sparse as sp
 import scipy.sparse.linalg as spla
 
 from mesastrain.errors import SolverError
+from mesastrain.fem import multigrid
+from mesastrain.fem.assembly import rigid_body_modes
+from mesastrain.fem.constraints import (Boundary, reduce_dofs, reduce_system, support_dofs,
+                                        tie_faces)
+from mesastrain.fem.discretisation import Discretisation
 
 log = logging.getLogger(__name__)
 
@@ -142,7 +151,7 @@ def solver_options(settings) -> dict:
            "maxiter": settings.max_iterations}
     for key, name in (("stress_tolerance", "stress_tol"), ("precision", "precision"),
                       ("direct_limit", "direct_limit")):
-        value = getattr(settings, key, None)
+        value = getattr(settings, key)
         if value is not None:
             out[name] = value
     return out
@@ -285,10 +294,11 @@ def solve_condensed(K: sp.csr_matrix, f: np.ndarray, fixed: np.ndarray,
     direct_limit : int, optional
         Largest number of free unknowns for which "auto" picks the direct
         solver (default :data:`DIRECT_LIMIT`).
-    spaces : mesastrain.fem.multigrid.GridSpaces, optional
-        Geometric coarse spaces; by default ``K.coarse_spaces`` (set by
-        :func:`mesastrain.fem.assembly.assemble` on structured brick meshes) when
-        present, otherwise algebraic multigrid is used.
+    spaces : GridSpaces or callable returning GridSpaces or None, optional
+        Geometric coarse spaces of ``K``'s discretisation
+        (:meth:`mesastrain.fem.assembly.SymbolicCache.coarse_spaces`; a callable
+        is called only when the iterative solver runs). None: algebraic
+        multigrid.
 
     Returns
     -------
@@ -300,8 +310,6 @@ def solve_condensed(K: sp.csr_matrix, f: np.ndarray, fixed: np.ndarray,
     SolverError
         No convergence, a singular system or non-finite values.
     """
-    from mesastrain.fem import multigrid
-
     say = progress or (lambda msg: None)
     if precision not in PRECISIONS:
         raise SolverError(f"unknown preconditioner precision {precision!r}; allowed: "
@@ -334,10 +342,8 @@ def solve_condensed(K: sp.csr_matrix, f: np.ndarray, fixed: np.ndarray,
         del lu
         method_name = "direct"
     else:
-        if spaces is None:
-            spaces = getattr(K, "coarse_spaces", None)
-            if callable(spaces):
-                spaces = spaces()
+        if callable(spaces):
+            spaces = spaces()
         dtype = PRECISIONS[precision]
         try:
             if spaces is not None:
@@ -376,3 +382,39 @@ def solve_condensed(K: sp.csr_matrix, f: np.ndarray, fixed: np.ndarray,
                           complexity, prec)
     log.info("solved: %s", report)
     return u, report
+
+
+def solve_model(K, f, disc: Discretisation, boundary: Boundary, solver, progress=None,
+                spaces=None):
+    """Apply supports and periodic ties, solve, and return the full displacement.
+
+    Parameters
+    ----------
+    K, f : assembled stiffness and load
+    disc : Discretisation
+    boundary : Boundary
+    solver : SolverSettings
+        method, tolerance, max_iterations.
+    progress : callable(str), optional
+    spaces : GridSpaces or callable, optional
+        Geometric coarse spaces of ``disc`` (see :func:`solve_condensed`).
+
+    Returns
+    -------
+    u : ndarray (ndofs,)
+    report : SolverReport
+    """
+    fixed = support_dofs(disc.doflocs, boundary)
+    modes = rigid_body_modes(disc.doflocs)
+    if not boundary.periodic:
+        return solve_condensed(K, f, fixed, modes, progress=progress, spaces=spaces,
+                               **solver_options(solver))
+    ties = tie_faces(disc.doflocs, boundary.periodic)
+    Kr, fr, P = reduce_system(K, f, ties)
+    rows = (ties.independent[:, None] * 3 + np.arange(3)).ravel()
+    # the coarse spaces are not passed on: they are built on the untied grid, and the
+    # tied system would need coarse grids whose opposite faces are tied as well, which
+    # grid_hierarchy does not build; the reduced system uses algebraic multigrid
+    ur, rep = solve_condensed(Kr, fr, reduce_dofs(fixed, ties), modes[rows], progress=progress,
+                              **solver_options(solver))
+    return P @ ur, rep

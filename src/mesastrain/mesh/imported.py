@@ -28,8 +28,83 @@ from __future__ import annotations
 import numpy as np
 
 from mesastrain.errors import CaseError, MeshError
-from mesastrain.mesh.structured import GridSpacing, UnstructuredMesh, box_boundary
+from mesastrain.fem.cost import Estimate, estimate_from_counts
+from mesastrain.mesh.grid import GridSpacing
+from mesastrain.mesh.unstructured import UnstructuredMesh, box_boundary
 from mesastrain.units import parse_length
+
+
+def read_mesh(mesh, scale: float = 1.0):
+    """Points and volume cells of a mesh.
+
+    Parameters
+    ----------
+    mesh : meshio.Mesh, path, or (points, cells)
+    scale : float
+        Multiplies the coordinates (to nm).
+
+    Returns
+    -------
+    points : ndarray (n, 3)
+    cells : ndarray (m, 4) or (m, 8)
+    kind : str
+        ``"tetra"`` or ``"hexahedron"``.
+    cell_data : dict of name -> ndarray (m,)
+        Integer cell data of the volume cells (e.g. ``gmsh:physical``).
+    field_data : dict
+        meshio's field data (physical group names -> [tag, dim]).
+    """
+    if isinstance(mesh, tuple):
+        pts, cells = (np.asarray(a) for a in mesh)
+        kind = {4: "tetra", 10: "tetra", 8: "hexahedron"}.get(cells.shape[1])
+        if kind is None:
+            raise MeshError(f"cells with {cells.shape[1]} nodes; give tetrahedra (4) or "
+                            f"hexahedra (8)")
+        return np.asarray(pts, float) * scale, cells[:, :4 if kind == "tetra" else 8], kind, {}, {}
+    import meshio
+
+    if not isinstance(mesh, meshio.Mesh):
+        try:
+            mesh = meshio.read(str(mesh))
+        except Exception as exc:     # meshio raises many kinds
+            raise MeshError(f"cannot read the mesh file {mesh}: {exc}") from None
+    pts = np.asarray(mesh.points, dtype=float)
+    if pts.shape[1] == 2:
+        raise MeshError("the mesh is two-dimensional; give a 3-D volume mesh (tetrahedra)")
+    blocks = [(k, b) for k, b in enumerate(mesh.cells)
+              if b.type in ("tetra", "tetra10", "hexahedron")]
+    kinds = {("hexahedron" if b.type == "hexahedron" else "tetra") for _, b in blocks}
+    if not blocks:
+        raise MeshError("the mesh has no tetrahedra or hexahedra (volume cells)")
+    if len(kinds) > 1:
+        raise MeshError("the mesh mixes tetrahedra and hexahedra; use one kind")
+    kind = kinds.pop()
+    nv = 4 if kind == "tetra" else 8
+    cells = np.concatenate([b.data[:, :nv] for _, b in blocks])
+    data = {}
+    for name, arrays in mesh.cell_data.items():
+        try:
+            data[name] = np.concatenate([np.asarray(arrays[k]).ravel() for k, _ in blocks])
+        except (IndexError, ValueError):
+            continue
+    return pts * scale, cells, kind, data, dict(mesh.field_data)
+
+
+def skfem_mesh(points: np.ndarray, cells: np.ndarray, kind: str):
+    """A scikit-fem mesh from meshio-ordered points and cells (unused points dropped)."""
+    from skfem import MeshHex, MeshTet
+
+    used = np.unique(cells)
+    remap = np.full(len(points), -1, dtype=np.int64)
+    remap[used] = np.arange(len(used))
+    p = np.ascontiguousarray(points[used].T)
+    t = np.ascontiguousarray(remap[cells].T)
+    if kind == "tetra":
+        return MeshTet(p, t)
+    # meshio (VTK) hexahedron order -> scikit-fem's
+    from skfem.io.meshio import INV_HEX_MAPPING
+
+    return MeshHex(p, np.ascontiguousarray(t[np.asarray(INV_HEX_MAPPING)[:8]]))
 
 
 def _group_regions(case, cell_data: dict, field_data: dict) -> np.ndarray:
@@ -91,8 +166,6 @@ def case_mesh_from_file(case) -> UnstructuredMesh:
         Unreadable file, unmapped or unknown groups, a probe or cut end
         outside the mesh.
     """
-    from mesastrain.run.api import read_mesh, skfem_mesh
-
     pat = case.pattern
     scale = parse_length(f"1 {pat.unit or 'nm'}", "pattern.unit")
     try:
@@ -104,7 +177,7 @@ def case_mesh_from_file(case) -> UnstructuredMesh:
                                         "tetrahedral (tetra or tetra10)")
     region = _group_regions(case, data, fdata)
     skm = skfem_mesh(pts, cells, kind)
-    um = UnstructuredMesh(mesh=skm, layer=region.astype(np.int32), kind="file",
+    um = UnstructuredMesh(mesh=skm, region=region.astype(np.int32), kind="file",
                           boundary_conditions=box_boundary(skm.p), spacing=_sizes(skm),
                           description=f"imported from {pat.file} ({len(cells)} tetrahedra)")
     checks = [(f"probe[{i}].at", p.at) for i, p in enumerate(case.probes)]
@@ -121,11 +194,18 @@ def case_mesh_from_file(case) -> UnstructuredMesh:
     return um
 
 
-def estimate_file(case):
-    """Counts of an imported mesh (the file is read; no finite elements are built)."""
-    from mesastrain.run.api import read_mesh
-    from mesastrain.run.resources import estimate_from_counts
+def handles(pattern) -> bool:
+    """``shape = "mesh"``: the case brings its own mesh file."""
+    return pattern.shape == "mesh"
 
+
+def build_file_mesh(case, mirrors=()) -> UnstructuredMesh:
+    """The registry's ``build``: an imported mesh is always whole (``mirrors`` unused)."""
+    return case_mesh_from_file(case)
+
+
+def estimate_file(case) -> Estimate:
+    """Counts of an imported mesh (the file is read; no finite elements are built)."""
     try:
         pts, cells, kind, _, _ = read_mesh(case.pattern.file)
     except MeshError as exc:

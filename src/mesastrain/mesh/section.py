@@ -12,7 +12,7 @@ anti-plane displacement u_y matters because a rotated anisotropic crystal
 couples in-plane and out-of-plane shear (Lekhnitskii, Theory of Elasticity of
 an Anisotropic Body, 1963, from memory). The finite elements are bilinear or
 biquadratic quadrilaterals on the x-z section, graded exactly as the 3-D
-structured mesh is in x and z (:func:`mesastrain.mesh.structured.axis_coordinates`);
+structured mesh is in x and z (:func:`mesastrain.mesh.grid.axis_coordinates`);
 their gradients are handed to the 3-D assembly kernel with a zero y column,
 so assembly, solve and field recovery are the 3-D ones. All integrals are per
 nm of stripe length.
@@ -28,10 +28,14 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 
-from mesastrain.fem.assembly import INTORDER, Discretisation
-from mesastrain.physics.crystal import voigt_to_full
+from mesastrain.fem.constraints import Boundary
+from mesastrain.fem.cost import Estimate, estimate_from_counts
+from mesastrain.fem.discretisation import INTORDER, Discretisation
 from mesastrain.fem.fields import GPA_TO_MPA, Fields
-from mesastrain.mesh.structured import Boundary, GridSpacing, StackGeometry, axis_coordinates
+from mesastrain.mesh.base import ModelMesh
+from mesastrain.mesh.grid import GridSpacing, StackLayout, axis_coordinates
+from mesastrain.mesh.planning import layout_of
+from mesastrain.physics.crystal import voigt_to_full
 
 #: Thickness of the exported slab along y, as a fraction of the modelled x extent.
 SLAB_FRACTION = 0.05
@@ -102,70 +106,66 @@ def extrude(p2: np.ndarray, t2: np.ndarray, dy: float):
 
 
 @dataclass(frozen=True)
-class SectionMesh:
-    """The x-z cross-section of a stripe, with a slab of hexahedra for export.
+class SectionMesh(ModelMesh):
+    """The x-z cross-section of a stripe, with a slab of hexahedra for export (a :class:`ModelMesh`).
+
+    ``nnodes`` counts the nodes of the exported slab (twice the section's),
+    ``solve_nnodes`` and ``nelems`` those of the section.
 
     Attributes
     ----------
-    solve_mesh : skfem.MeshQuad
-        The section (coordinates x, z in nm).
+    section : skfem.MeshQuad
+        The section (coordinates x, z in nm); the mesh that is solved
+        (``solve_mesh``).
     mesh : skfem.MeshHex
         The same elements extruded into a thin slab around y = 0 (export).
-    layer : ndarray of int (nelems,)
+    region : ndarray of int (nelems,)
     xs, zs : ndarray
         Grid lines of the section (before any sidewall slope).
     cell_of_grid : ndarray (nx-1, nz-1)
         Element of each grid cell, -1 where etched away.
-    geometry : StackGeometry
+    layout : StackLayout
     spacing : GridSpacing
     slab : float
         Thickness of the exported slab, nm.
     """
 
-    solve_mesh: object
+    section: object
     mesh: object
-    layer: np.ndarray
+    region: np.ndarray
     xs: np.ndarray
     zs: np.ndarray
     cell_of_grid: np.ndarray
-    geometry: StackGeometry
+    layout: StackLayout
     spacing: GridSpacing = field(repr=False, default=None)
     slab: float = 1.0
 
     kind = "section"
-    axis_aligned = False
+    element_name = "quadrilaterals (cross-section)"
+
+    @property
+    def solve_mesh(self):
+        """The quadrilateral section (what is solved)."""
+        return self.section
 
     @property
     def mirrors(self) -> tuple:
-        return tuple(a for a in self.geometry.mirrors if a == 0)
+        return tuple(a for a in self.layout.mirrors if a == 0)
 
     @property
     def ys(self) -> np.ndarray:
         return np.array([-self.slab / 2, self.slab / 2])
 
     @property
-    def nnodes(self) -> int:
-        """Nodes of the exported slab (twice the section's)."""
-        return int(self.mesh.p.shape[1])
-
-    @property
-    def solve_nnodes(self) -> int:
-        return int(self.solve_mesh.p.shape[1])
-
-    @property
-    def nelems(self) -> int:
-        return int(self.solve_mesh.t.shape[1])
-
-    @property
     def bounds(self) -> np.ndarray:
         return np.array([[self.xs[0], self.xs[-1]], [-np.inf, np.inf], [self.zs[0], self.zs[-1]]])
 
     def discretise(self, order: int) -> SectionDiscretisation:
-        return discretise_section(self.solve_mesh, order)
+        return discretise_section(self.section, order)
 
     def boundary(self) -> Boundary:
         """Bottom held in z; x faces rollers (or tied in a grating); u_y pinned at one node."""
-        g = self.geometry
+        g = self.layout
         x0, x1, z0 = self.xs[0], self.xs[-1], self.zs[0]
         if 0 in g.periodic and 0 not in g.mirrors:
             return Boundary(((2, 2, z0),), ((0, x0, x1),), pin=(0, 1))
@@ -183,8 +183,8 @@ class SectionMesh:
         pts = np.atleast_2d(np.asarray(points, dtype=float))
         x = pts[:, 0].copy()
         z = pts[:, 2]
-        if self.geometry.taper:
-            x = x / self.geometry.scale_at(z, 0)
+        if self.layout.taper:
+            x = x / self.layout.scale_at(z, 0)
         idx = []
         for v, g in ((x, self.xs), (z, self.zs)):
             tol = 1e-9 * (g[-1] - g[0])
@@ -201,7 +201,7 @@ class SectionMesh:
                 out[take] = e[take]
         return out
 
-    def evaluate(self, disc, u, elements, points, group, stiffness, eigenstrain,
+    def evaluate(self, disc, u, elements, points, region, stiffness, eigenstrain,
                  cell_eigenstrain=None):
         """Exact elastic strain, stress (MPa), displacement at points (as evaluate_at_points)."""
         mesh = disc.basis.mesh
@@ -223,10 +223,10 @@ class SectionMesh:
             disp += phi[:, None] * ue[:, a, :]
         tot = 0.5 * (grad + grad.transpose(0, 2, 1))
         C = voigt_to_full(np.asarray(stiffness, dtype=float))
-        el = tot - np.asarray(eigenstrain)[group[elements]]
+        el = tot - np.asarray(eigenstrain)[region[elements]]
         if cell_eigenstrain is not None:
             el = el - cell_eigenstrain[elements]
-        sig = np.einsum("nijkl,nkl->nij", C[group[elements]], el) * GPA_TO_MPA
+        sig = np.einsum("nijkl,nkl->nij", C[region[elements]], el) * GPA_TO_MPA
         return el, sig, disp
 
     def unfolded(self, uf) -> "SectionMesh":
@@ -242,8 +242,8 @@ class SectionMesh:
             jx = nx + ix if s[0] > 0 else nx - 1 - ix
             cog[jx, iz] = k * self.nelems + e
         m2 = MeshQuad(uf.p, uf.t_export)
-        return replace(self, solve_mesh=m2, mesh=extrude(m2.p, m2.t, self.slab), layer=uf.layer,
-                       xs=full_x, cell_of_grid=cog, geometry=replace(self.geometry, mirrors=()))
+        return replace(self, section=m2, mesh=extrude(m2.p, m2.t, self.slab), region=uf.region,
+                       xs=full_x, cell_of_grid=cog, layout=replace(self.layout, mirrors=()))
 
     def __repr__(self) -> str:
         return (f"SectionMesh({self.solve_nnodes} nodes, {self.nelems} quadrilaterals, grid "
@@ -270,14 +270,12 @@ def _inverse_map(mapping, x: np.ndarray, elements: np.ndarray, iters: int = 30) 
 
 
 def section_coordinates(case, mirrors=None, whole: bool = False):
-    """Geometry, spacing and the x and z grid lines of a stripe's section.
+    """Layout, spacing and the x and z grid lines of a stripe's section.
 
     With ``whole`` the grid lines of the whole section are returned even for a
     mirrored model (what the unfolded result has); otherwise x >= 0 only.
     """
-    from mesastrain.run.resources import geometry_of
-
-    geom, spacing = geometry_of(case, mirrors=None if mirrors is None else tuple(mirrors))
+    geom, spacing = layout_of(case, mirrors=None if mirrors is None else tuple(mirrors))
     xs, _, zs = axis_coordinates(geom, spacing)
     if 0 in geom.mirrors and not whole:
         xs = xs[xs >= 0.0]
@@ -318,18 +316,21 @@ def build_section_mesh(case, mirrors=()) -> SectionMesh:
         mesh = MeshQuad(p, mesh.t)
     cog = np.full((len(xs) - 1, len(zs) - 1), -1, dtype=np.int64)
     cog[ix[kept], iz[kept]] = np.arange(len(kept))
-    layer = np.searchsorted(np.asarray(geom.interfaces[:-1]), mid[1, kept],
-                            side="right").astype(np.int32)
+    region = np.searchsorted(np.asarray(geom.interfaces[:-1]), mid[1, kept],
+                             side="right").astype(np.int32)
     full_width = 2.0 * max(abs(xs[0]), abs(xs[-1]))
     slab = SLAB_FRACTION * full_width
-    return SectionMesh(solve_mesh=mesh, mesh=extrude(mesh.p, mesh.t, slab), layer=layer,
-                       xs=xs, zs=zs, cell_of_grid=cog, geometry=geom, spacing=spacing, slab=slab)
+    return SectionMesh(section=mesh, mesh=extrude(mesh.p, mesh.t, slab), region=region,
+                       xs=xs, zs=zs, cell_of_grid=cog, layout=geom, spacing=spacing, slab=slab)
 
 
-def estimate_section(case):
+def handles(pattern) -> bool:
+    """A stripe is modelled by its cross-section."""
+    return pattern.shape == "stripe"
+
+
+def estimate_section(case) -> Estimate:
     """Exact node, element and unknown counts of a stripe's section (no meshing)."""
-    from mesastrain.run.resources import estimate_from_counts
-
     geom, spacing, xs, zs = section_coordinates(case, whole=True)
     keep = _keep(geom, xs, zs)
     nx, nz = keep.shape

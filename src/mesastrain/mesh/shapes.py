@@ -29,9 +29,12 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from mesastrain.errors import MeshError
-from mesastrain.mesh.structured import GridSpacing, UnstructuredMesh, box_boundary
 from mesastrain.case.outline import Outline, outline_of, taper_of
+from mesastrain.errors import MeshError
+from mesastrain.fem.cost import Estimate, estimate_from_counts
+from mesastrain.mesh.grid import GridSpacing, join_segments
+from mesastrain.mesh.planning import refinement_of
+from mesastrain.mesh.unstructured import UnstructuredMesh, box_boundary
 
 log = logging.getLogger(__name__)
 
@@ -131,7 +134,7 @@ def shape_spec(case, mirrors=()) -> ShapeSpec:
     hx = max(outline.half_extent()[0], foot.half_extent()[0])
     hy = max(outline.half_extent()[1], foot.half_extent()[1])
     feature = 2.0 * max(outline.half_extent())
-    pitch = getattr(pat, "pitch", None)
+    pitch = pat.pitch
     if pitch is not None:
         box = (-pitch[0] / 2, pitch[0] / 2, -pitch[1] / 2, pitch[1] / 2)
         periodic = tuple(a for a in (0, 1) if a not in mirrors)
@@ -152,7 +155,7 @@ def shape_spec(case, mirrors=()) -> ShapeSpec:
         thick.append(etch - top)
     t_min = min(thick)
     order = case.mesh.order
-    refine = float(getattr(case.mesh, "refine", None) or 1.0)
+    refine = refinement_of(case)
     # tetrahedra are isotropic: two quadratic (four linear) elements through the thinnest
     # layer keep the in-plane field of a thin film within about 1 % (tests/test_geometry_shapes)
     size = case.mesh.size or (t_min / 2.0 if order == 2 else t_min / 4.0)
@@ -371,23 +374,26 @@ def build_shape_mesh(case, mirrors=()) -> UnstructuredMesh:
     desc = (f"{spec.top_outline.describe()}, gmsh tetrahedra; element size {spec.sizes.size:.4g} "
             f"nm in the film, {spec.sizes.edge_size:.4g} nm at sidewalls, up to "
             f"{spec.sizes.lateral_cap:.4g} nm")
-    um = UnstructuredMesh(mesh=mesh, layer=region, kind="gmsh",
+    um = UnstructuredMesh(mesh=mesh, region=region, kind="gmsh",
                           boundary_conditions=box_boundary(p, spec.periodic, mirrors),
                           spacing=spec.sizes, mirrors=tuple(mirrors), description=desc)
     log.info("meshed %r", um)
     return um
 
 
-def estimate_shape(case):
+def handles(pattern) -> bool:
+    """Disks, polygons and rectangles with rounded corners are meshed with gmsh."""
+    return (pattern.shape in ("disk", "polygon")
+            or (pattern.shape == "rectangle" and bool(pattern.corner_radius)))
+
+
+def estimate_shape(case) -> Estimate:
     """Expected tetrahedra and unknowns of a gmsh shape, from its size field (no meshing).
 
     Integrates 1 / (TET_VOLUME_FACTOR h^3) over the body with a midpoint rule
     on a grid graded like the size field itself; a P2 mesh has about 1.4
     scalar dofs per tetrahedron, a P1 mesh about 0.18.
     """
-    from mesastrain.mesh.structured import join_segments
-    from mesastrain.run.resources import estimate_from_counts
-
     spec = shape_spec(case, ())
     field = SizeField(spec)
     x0, x1, y0, y1 = spec.box

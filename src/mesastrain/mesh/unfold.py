@@ -19,12 +19,12 @@ used for export, so that exported cells are positively oriented.
 from __future__ import annotations
 
 import itertools
-from dataclasses import dataclass, replace
+from dataclasses import dataclass
 from types import SimpleNamespace
 
 import numpy as np
 
-from mesastrain.fem.assembly import Discretisation
+from mesastrain.fem.discretisation import Discretisation
 
 
 def images(mirrors) -> np.ndarray:
@@ -103,6 +103,12 @@ class MirroredDiscretisation(Discretisation):
         e = np.arange(self.elem_map.size)[elements]
         return self.parent.weights(self.elem_map[e])
 
+    def mean_gradients(self, elements=slice(None)) -> tuple[np.ndarray, np.ndarray]:
+        """The parent's element-mean gradients with the mirrored components negated."""
+        e = np.arange(self.elem_map.size)[elements]
+        g, v = self.parent.mean_gradients(self.elem_map[e])
+        return g * self.signs[e][:, None, :], v
+
 
 @dataclass(frozen=True)
 class Unfolded:
@@ -115,7 +121,7 @@ class Unfolded:
         Connectivity in the local order of the solved part (used by ``disc``).
     t_export : ndarray (nv_el, nelems)
         Connectivity with positively oriented elements (for export and viewing).
-    layer : ndarray (nelems,)
+    region : ndarray (nelems,)
     disc : MirroredDiscretisation
     u : ndarray (ndofs,)
     image_of_element : ndarray of int (nelems,)
@@ -126,14 +132,14 @@ class Unfolded:
     p: np.ndarray
     t_solve: np.ndarray
     t_export: np.ndarray
-    layer: np.ndarray
+    region: np.ndarray
     disc: MirroredDiscretisation
     u: np.ndarray
     image_of_element: np.ndarray
     images: np.ndarray
 
 
-def unfold(p: np.ndarray, t: np.ndarray, layer: np.ndarray, disc: Discretisation,
+def unfold(p: np.ndarray, t: np.ndarray, region: np.ndarray, disc: Discretisation,
            u: np.ndarray, mirrors, mesh_type) -> Unfolded:
     """Reflect a solved part over its mirror planes.
 
@@ -143,7 +149,7 @@ def unfold(p: np.ndarray, t: np.ndarray, layer: np.ndarray, disc: Discretisation
         Vertices of the solved part (dim 3, or 2 for an x-z cross-section whose
         first coordinate is x).
     t : ndarray (nv_el, nelems)
-    layer : ndarray (nelems,)
+    region : ndarray (nelems,)
     disc : Discretisation
         Of the solved part; its first ``nverts`` scalar dofs are the vertices.
     u : ndarray (ndofs,)
@@ -173,7 +179,7 @@ def unfold(p: np.ndarray, t: np.ndarray, layer: np.ndarray, disc: Discretisation
         pfull[:, vm] = p * s[:, None]
     nel = t.shape[1]
     t_solve = np.concatenate([vm[t] for vm in vmaps], axis=1)
-    perm = _orientation_permutation(disc.basis.elem) if hasattr(disc.basis, "elem") else None
+    perm = _orientation_permutation(disc.basis.elem)
     parts = []
     for s, vm in zip(imgs, vmaps):
         tt = vm[t]
@@ -190,31 +196,9 @@ def unfold(p: np.ndarray, t: np.ndarray, layer: np.ndarray, disc: Discretisation
     full = MirroredDiscretisation(basis=basis, order=disc.order,
                                   element_dofs=np.ascontiguousarray(edofs), ndofs=3 * nfull,
                                   doflocs=doflocs, parent=disc, elem_map=elem_map, signs=signs)
-    return Unfolded(p=pfull, t_solve=t_solve, t_export=t_export, layer=np.tile(layer, k),
+    return Unfolded(p=pfull, t_solve=t_solve, t_export=t_export, region=np.tile(region, k),
                     disc=full, u=Ufull.ravel(), image_of_element=np.repeat(np.arange(k), nel),
                     images=imgs)
-
-
-def unfold_stack_mesh(sm, uf: Unfolded):
-    """The whole structured StackMesh (grid, cell map, export mesh) from an unfolded part."""
-    from skfem import MeshHex
-
-    geom = sm.geometry
-    xs, ys = sm.xs, sm.ys
-    nx, ny = len(xs) - 1, len(ys) - 1
-    full_x = np.concatenate([-xs[:0:-1], xs]) if 0 in geom.mirrors else xs
-    full_y = np.concatenate([-ys[:0:-1], ys]) if 1 in geom.mirrors else ys
-    cog = np.full((len(full_x) - 1, len(full_y) - 1, len(sm.zs) - 1), -1, dtype=np.int64)
-    ix, iy, iz = np.nonzero(sm.cell_of_grid >= 0)
-    e = sm.cell_of_grid[ix, iy, iz]
-    nel = sm.nelems
-    for k, s in enumerate(uf.images):
-        jx = ix if 0 not in geom.mirrors else (nx + ix if s[0] > 0 else nx - 1 - ix)
-        jy = iy if 1 not in geom.mirrors else (ny + iy if s[1] > 0 else ny - 1 - iy)
-        cog[jx, jy, iz] = k * nel + e
-    mesh = MeshHex(uf.p, uf.t_export)
-    return replace(sm, mesh=mesh, layer=uf.layer, xs=full_x, ys=full_y, cell_of_grid=cog,
-                   geometry=replace(geom, mirrors=()))
 
 
 def unfold_model(sm, disc: Discretisation, u: np.ndarray):
@@ -222,23 +206,16 @@ def unfold_model(sm, disc: Discretisation, u: np.ndarray):
 
     Parameters
     ----------
-    sm : StackMesh, UnstructuredMesh or SectionMesh
+    sm : mesastrain.mesh.base.ModelMesh
         The solved part (``sm.mirrors`` not empty).
     disc : Discretisation
     u : ndarray
 
     Returns
     -------
-    (mesh object, MirroredDiscretisation, u)
+    (ModelMesh, MirroredDiscretisation, u)
+        The mesh is ``sm.unfolded(...)`` of the reflected arrays.
     """
-    skm = getattr(sm, "solve_mesh", None)
-    skm = sm.mesh if skm is None else skm
-    uf = unfold(skm.p, skm.t, sm.layer, disc, u, sm.mirrors, type(skm))
-    kind = getattr(sm, "kind", "structured")
-    if kind == "structured":
-        full = unfold_stack_mesh(sm, uf)
-    elif hasattr(sm, "unfolded"):
-        full = sm.unfolded(uf)
-    else:
-        full = replace(sm, mesh=type(skm)(uf.p, uf.t_export), layer=uf.layer, mirrors=())
-    return full, uf.disc, uf.u
+    skm = sm.solve_mesh
+    uf = unfold(skm.p, skm.t, sm.region, disc, u, sm.mirrors, type(skm))
+    return sm.unfolded(uf), uf.disc, uf.u

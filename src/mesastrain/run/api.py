@@ -37,14 +37,17 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from mesastrain.fem.assembly import Discretisation, assemble
-from mesastrain.physics.crystal import sample_frame
-from mesastrain.fem.discretisation import discretise_mesh
+from mesastrain.case.parse import SolverSettings
 from mesastrain.errors import MeshError, MesastrainError
+from mesastrain.fem.assembly import assemble, rigid_body_modes
+from mesastrain.fem.constraints import Boundary
+from mesastrain.fem.discretisation import Discretisation
 from mesastrain.fem.fields import Fields, evaluate_at_points, recover
+from mesastrain.fem.solve import SolverReport, solve_condensed, solve_model
+from mesastrain.mesh.imported import read_mesh, skfem_mesh
+from mesastrain.mesh.unstructured import UnstructuredMesh, box_boundary
+from mesastrain.physics.crystal import rotate_tensor2, rotate_voigt_stiffness, sample_frame
 from mesastrain.physics.materials import get_material
-from mesastrain.mesh.structured import Boundary, UnstructuredMesh, box_boundary
-from mesastrain.fem.solve import SolverReport
 
 __all__ = ["Region", "Solution", "solve", "isotropic_stiffness", "read_mesh"]
 
@@ -85,8 +88,6 @@ class Region:
             Sample axes written in crystal axes (rows), replacing the
             orientation given by normal and x_axis.
         """
-        from mesastrain.physics.crystal import rotate_tensor2, rotate_voigt_stiffness
-
         eig = self.eigenstrain
         eig = np.zeros((3, 3)) if eig is None else (
             float(eig) * np.eye(3) if np.ndim(eig) == 0 else np.asarray(eig, dtype=float))
@@ -118,79 +119,6 @@ def isotropic_stiffness(E: float, nu: float) -> np.ndarray:
     C[[0, 1, 2], [0, 1, 2]] = lam + 2 * mu
     C[[3, 4, 5], [3, 4, 5]] = mu
     return C
-
-
-def read_mesh(mesh, scale: float = 1.0):
-    """Points and volume cells of a mesh.
-
-    Parameters
-    ----------
-    mesh : meshio.Mesh, path, or (points, cells)
-    scale : float
-        Multiplies the coordinates (to nm).
-
-    Returns
-    -------
-    points : ndarray (n, 3)
-    cells : ndarray (m, 4) or (m, 8)
-    kind : str
-        ``"tetra"`` or ``"hexahedron"``.
-    cell_data : dict of name -> ndarray (m,)
-        Integer cell data of the volume cells (e.g. ``gmsh:physical``).
-    field_data : dict
-        meshio's field data (physical group names -> [tag, dim]).
-    """
-    if isinstance(mesh, tuple):
-        pts, cells = (np.asarray(a) for a in mesh)
-        kind = {4: "tetra", 10: "tetra", 8: "hexahedron"}.get(cells.shape[1])
-        if kind is None:
-            raise MeshError(f"cells with {cells.shape[1]} nodes; give tetrahedra (4) or "
-                            f"hexahedra (8)")
-        return np.asarray(pts, float) * scale, cells[:, :4 if kind == "tetra" else 8], kind, {}, {}
-    import meshio
-
-    if not isinstance(mesh, meshio.Mesh):
-        try:
-            mesh = meshio.read(str(mesh))
-        except Exception as exc:     # meshio raises many kinds
-            raise MeshError(f"cannot read the mesh file {mesh}: {exc}") from None
-    pts = np.asarray(mesh.points, dtype=float)
-    if pts.shape[1] == 2:
-        raise MeshError("the mesh is two-dimensional; give a 3-D volume mesh (tetrahedra)")
-    blocks = [(k, b) for k, b in enumerate(mesh.cells)
-              if b.type in ("tetra", "tetra10", "hexahedron")]
-    kinds = {("hexahedron" if b.type == "hexahedron" else "tetra") for _, b in blocks}
-    if not blocks:
-        raise MeshError("the mesh has no tetrahedra or hexahedra (volume cells)")
-    if len(kinds) > 1:
-        raise MeshError("the mesh mixes tetrahedra and hexahedra; use one kind")
-    kind = kinds.pop()
-    nv = 4 if kind == "tetra" else 8
-    cells = np.concatenate([b.data[:, :nv] for _, b in blocks])
-    data = {}
-    for name, arrays in mesh.cell_data.items():
-        try:
-            data[name] = np.concatenate([np.asarray(arrays[k]).ravel() for k, _ in blocks])
-        except (IndexError, ValueError):
-            continue
-    return pts * scale, cells, kind, data, dict(mesh.field_data)
-
-
-def skfem_mesh(points: np.ndarray, cells: np.ndarray, kind: str):
-    """A scikit-fem mesh from meshio-ordered points and cells (unused points dropped)."""
-    from skfem import MeshHex, MeshTet
-
-    used = np.unique(cells)
-    remap = np.full(len(points), -1, dtype=np.int64)
-    remap[used] = np.arange(len(used))
-    p = np.ascontiguousarray(points[used].T)
-    t = np.ascontiguousarray(remap[cells].T)
-    if kind == "tetra":
-        return MeshTet(p, t)
-    # meshio (VTK) hexahedron order -> scikit-fem's
-    from skfem.io.meshio import INV_HEX_MAPPING
-
-    return MeshHex(p, np.ascontiguousarray(t[np.asarray(INV_HEX_MAPPING)[:8]]))
 
 
 def cell_values(values, mesh, nelems: int, what: str) -> np.ndarray | None:
@@ -241,7 +169,7 @@ class Solution:
     Attributes
     ----------
     mesh : UnstructuredMesh
-        With ``layer`` = the material group of each element.
+        With ``region`` = the material group of each element.
     disc : Discretisation
     u : ndarray (ndofs,)
         Displacement, nm, node-major.
@@ -273,7 +201,7 @@ class Solution:
         if np.any(elems < 0):
             bad = pts[int(np.flatnonzero(elems < 0)[0])]
             raise MeshError(f"the point {bad.tolist()} nm lies outside the mesh")
-        strain, stress, disp = evaluate_at_points(self.disc, self.u, elems, pts, self.mesh.layer,
+        strain, stress, disp = evaluate_at_points(self.disc, self.u, elems, pts, self.mesh.region,
                                                   self.stiffness, self.eigenstrain,
                                                   self.cell_eigenstrain)
         return strain, stress, disp, self.region[elems]
@@ -312,8 +240,6 @@ def solve(mesh, regions, region_of_cell=None, *, rotations=None, eigenstrain=Non
     -------
     Solution
     """
-    from mesastrain.run.pipeline import solve_model
-
     pts, cells, kind, data, _ = read_mesh(mesh, scale)
     if kind != "tetra":
         raise MeshError("api.solve takes tetrahedral meshes (tetra or tetra10)")
@@ -356,27 +282,22 @@ def solve(mesh, regions, region_of_cell=None, *, rotations=None, eigenstrain=Non
     stiff = np.array([c for c, _ in resolved])
     eig = np.array([e for _, e in resolved])
     extra = cell_values(eigenstrain, skm, nel, "eigenstrain")
-    sm = UnstructuredMesh(mesh=skm, layer=group.astype(np.int32), kind="api",
+    sm = UnstructuredMesh(mesh=skm, region=group.astype(np.int32), kind="api",
                           boundary_conditions=_boundary(supports, skm.p))
-    disc = discretise_mesh(sm, order)
-    K, f = assemble(disc, sm.layer, stiff, eig, extra)
+    disc = sm.discretise(order)
+    K, f = assemble(disc, sm.region, stiff, eig, extra)
     b = sm.boundary()
     if not b.supports and b.pin == (0, 1, 2):
         u, rep = _solve_free(K, f, disc, method, tol, max_iterations)
     else:
-        from mesastrain.case.parse import SolverSettings
-
         u, rep = solve_model(K, f, disc, b, SolverSettings(method, tol, max_iterations))
-    fl = recover(disc, u, sm.layer, stiff, eig, sm.nnodes, skm.t, extra)
+    fl = recover(disc, u, sm.region, stiff, eig, sm.nnodes, skm.t, extra)
     return Solution(mesh=sm, disc=disc, u=u, fields=fl, stiffness=stiff, eigenstrain=eig,
                     cell_eigenstrain=extra, region=reg, solver=rep)
 
 
 def _solve_free(K, f, disc, method, tol, maxiter):
     """A free body: hold 6 dofs at three vertices (3-2-1 rule), which adds no stress."""
-    from mesastrain.fem.assembly import rigid_body_modes
-    from mesastrain.fem.solve import solve_condensed
-
     x = disc.doflocs
     c = x.mean(axis=1, keepdims=True)
     a = int(np.argmin(np.linalg.norm(x - c, axis=0)))          # near the centre

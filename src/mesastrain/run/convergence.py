@@ -3,7 +3,7 @@
 ``mesastrain run CASE --convergence`` (or ``[mesh] convergence = true``)
 solves the case on the mesh it asks for and again with every element size
 divided by r and by r^2 (``mesh.refine``, a uniform refinement: sizes and the
-grading slope shrink together, see :func:`mesastrain.run.resources.geometry_of`).
+grading slope shrink together, see :func:`mesastrain.mesh.planning.layout_of`).
 For every headline figure f (each probe's normal stresses and von Mises
 stress, each region's mean normal stresses and peak von Mises stress) it
 reports the values f0, f1, f2, the changes d1 = f1 - f0 and d2 = f2 - f1 and,
@@ -38,6 +38,9 @@ import numpy as np
 
 from mesastrain.errors import ResourceError
 from mesastrain.fem.fields import von_mises
+from mesastrain.mesh.planning import refinement_of
+from mesastrain.run.pipeline import Derived, run_case
+from mesastrain.run.resources import available_memory_gb, estimate
 
 #: Element sizes are divided by this per refinement level.
 DEFAULT_RATIO = 1.5
@@ -112,7 +115,7 @@ def assess(values: list, ratio: float, scale: float) -> dict:
 
 def refined(case, factor: float):
     """The case with every element size divided by ``factor`` more."""
-    base = float(getattr(case.mesh, "refine", None) or 1.0)
+    base = refinement_of(case)
     mesh = dataclasses.replace(case.mesh, refine=base * factor, convergence=False)
     return dataclasses.replace(case, mesh=mesh)
 
@@ -142,9 +145,6 @@ def study(case, levels: int = DEFAULT_LEVELS, ratio: float = DEFAULT_RATIO, prog
         derived quantity (summary key ``convergence``, file ``convergence.csv``).
     report : dict
     """
-    from mesastrain.run.pipeline import Derived, run_case
-    from mesastrain.run.resources import available_memory_gb, estimate
-
     say = progress or (lambda msg: None)
     limit = max_memory_gb if max_memory_gb is not None else available_memory_gb()
     results, info = [], []

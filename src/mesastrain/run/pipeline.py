@@ -24,19 +24,20 @@ from typing import Callable, Sequence
 
 import numpy as np
 
-from mesastrain.fem.assembly import Discretisation, assemble, rigid_body_modes
 from mesastrain.case.parse import Case
 from mesastrain.errors import CaseError, ResourceError, SolverError
-from mesastrain.fem.fields import Fields, evaluate_at_points, hydrostatic, principal, recover, von_mises
-from mesastrain.fem.discretisation import discretise_mesh
-from mesastrain.mesh.structured import Boundary, StackMesh, build_stack_mesh
+from mesastrain.fem.assembly import SymbolicCache, assemble
+from mesastrain.fem.constraints import Boundary
+from mesastrain.fem.discretisation import Discretisation
+from mesastrain.fem.fields import Fields, hydrostatic, principal, recover, von_mises
+from mesastrain.fem.solve import SolverReport, solve_model
+from mesastrain.mesh.base import ModelMesh
+from mesastrain.mesh.kinds import build_mesh
+from mesastrain.mesh.unfold import unfold_model
 from mesastrain.model.regions import LayerModel, build_layers
-from mesastrain.fem.constraints import reduce_dofs, reduce_system, tie_faces
-from mesastrain.run.resources import available_memory_gb, estimate, geometry_of, mesh_kind
-from mesastrain.fem.solve import SolverReport, solve_condensed, solver_options
 from mesastrain.model.symmetry import Symmetry, reflect_points, reflect_tensors
 from mesastrain.model.symmetry import decide as decide_symmetry
-from mesastrain.mesh.unfold import unfold_model
+from mesastrain.run.resources import available_memory_gb, estimate
 
 log = logging.getLogger(__name__)
 
@@ -76,10 +77,10 @@ class Result:
     case : Case
     layers : list of LayerModel
         Substrate first.
-    mesh : StackMesh, UnstructuredMesh or SectionMesh
+    mesh : ModelMesh
         The whole modelled body (a half or quarter model is unfolded after
         the solve). ``mesh.mesh`` is a 3-D scikit-fem mesh (a cross-section
-        is exported as a thin slab), ``mesh.layer`` the region per element.
+        is exported as a thin slab), ``mesh.region`` the region per element.
     disc : Discretisation
         Of the whole body (for a mirrored model a
         :class:`mesastrain.mesh.unfold.MirroredDiscretisation`).
@@ -95,7 +96,7 @@ class Result:
 
     case: Case
     layers: list
-    mesh: StackMesh
+    mesh: ModelMesh
     disc: Discretisation
     u: np.ndarray = field(repr=False)
     fields: Fields = field(repr=False)
@@ -141,27 +142,27 @@ class Result:
             Region index (0 substrate, i layer i).
         """
         pts = np.atleast_2d(np.asarray(points, dtype=float))
-        mirrors = tuple(getattr(self.mesh, "mirrors", ()))
+        mirrors = tuple(self.mesh.mirrors)
         q, signs = reflect_points(pts, mirrors)
         elems = self.mesh.locate(q)
         bad = np.flatnonzero(elems < 0)
         if bad.size:
             raise CaseError(key, f"{pts[bad[0]].tolist()} nm lies outside the modelled body "
                                  f"({_extent_text(self.mesh)})")
-        evaluate = getattr(self.mesh, "evaluate", None) or evaluate_at_points
-        strain, stress, disp = evaluate(self.disc, self.u, elems, q, self.mesh.layer,
-                                        self.stiffness, self.eigenstrain, self.cell_eigenstrain)
+        strain, stress, disp = self.mesh.evaluate(self.disc, self.u, elems, q, self.mesh.region,
+                                                  self.stiffness, self.eigenstrain,
+                                                  self.cell_eigenstrain)
         if mirrors:
             strain = reflect_tensors(strain, signs)
             stress = reflect_tensors(stress, signs)
             disp = disp * signs
-        return strain, stress, disp, self.mesh.layer[elems]
+        return strain, stress, disp, self.mesh.region[elems]
 
 
 def _extent_text(mesh) -> str:
     """The modelled extent in words, for error messages (mirrored axes shown whole)."""
     b = np.array(mesh.bounds, dtype=float)
-    for a in getattr(mesh, "mirrors", ()):
+    for a in mesh.mirrors:
         b[a, 0] = -b[a, 1]
     parts = []
     for a, name in enumerate("xyz"):
@@ -170,83 +171,9 @@ def _extent_text(mesh) -> str:
     return ", ".join(parts) + " nm"
 
 
-def _boundary_dofs(disc, bounds) -> np.ndarray:
-    """Roller conditions: u_z = 0 on the bottom, u_n = 0 on the four sides."""
-    x = disc.doflocs
-    (x0, x1), (y0, y1), z0 = bounds
-    tol = 1e-9 * max(x1 - x0, y1 - y0)
-    bottom = np.flatnonzero(np.abs(x[2] - z0) <= tol) * 3 + 2
-    xside = np.flatnonzero((np.abs(x[0] - x0) <= tol) | (np.abs(x[0] - x1) <= tol)) * 3
-    yside = np.flatnonzero((np.abs(x[1] - y0) <= tol) | (np.abs(x[1] - y1) <= tol)) * 3 + 1
-    return np.unique(np.concatenate([bottom, xside, yside]))
-
-
-def support_dofs(doflocs: np.ndarray, boundary: Boundary) -> np.ndarray:
-    """Vector dofs held at zero by a :class:`mesastrain.mesh.structured.Boundary`.
-
-    A dof is on a support plane when its coordinate is within 1e-9 of the
-    model size of the plane. ``boundary.pin`` components are held at the one
-    bottom dof nearest the vertical axis (removes the rigid translations a
-    periodic cell or a cross-section would otherwise have).
-    """
-    x = np.asarray(doflocs, dtype=float)
-    tol = 1e-9 * (float(np.max(np.ptp(x, axis=1))) or 1.0)
-    parts = []
-    for comp, axis, value in boundary.supports:
-        parts.append(np.flatnonzero(np.abs(x[axis] - value) <= tol) * 3 + comp)
-    if boundary.pin:
-        bottom = np.flatnonzero(np.abs(x[2] - x[2].min()) <= tol)
-        k = bottom[np.argmin(x[0, bottom] ** 2 + x[1, bottom] ** 2)]
-        parts.append(np.array([3 * k + c for c in boundary.pin]))
-    return np.unique(np.concatenate(parts)) if parts else np.zeros(0, dtype=np.int64)
-
-
-def solve_model(K, f, disc: Discretisation, boundary: Boundary, solver, progress=None):
-    """Apply supports and periodic ties, solve, and return the full displacement.
-
-    Parameters
-    ----------
-    K, f : assembled stiffness and load
-    disc : Discretisation
-    boundary : Boundary
-    solver : SolverSettings
-        method, tolerance, max_iterations.
-    progress : callable(str), optional
-
-    Returns
-    -------
-    u : ndarray (ndofs,)
-    report : SolverReport
-    """
-    fixed = support_dofs(disc.doflocs, boundary)
-    modes = rigid_body_modes(disc.doflocs)
-    if not boundary.periodic:
-        return solve_condensed(K, f, fixed, modes, progress=progress, **solver_options(solver))
-    ties = tie_faces(disc.doflocs, boundary.periodic)
-    Kr, fr, P = reduce_system(K, f, ties)
-    rows = (ties.independent[:, None] * 3 + np.arange(3)).ravel()
-    ur, rep = solve_condensed(Kr, fr, reduce_dofs(fixed, ties), modes[rows], progress=progress,
-                              **solver_options(solver))
-    return P @ ur, rep
-
-
-def build_model_mesh(case: Case, layers: list, sym: Symmetry):
-    """The mesh object of a case, by pattern shape (see :func:`mesastrain.run.resources.mesh_kind`)."""
-    kind = mesh_kind(case)
-    if kind == "section":
-        from mesastrain.mesh.section import build_section_mesh
-
-        return build_section_mesh(case, mirrors=sym.mirrors)
-    if kind == "gmsh":
-        from mesastrain.mesh.shapes import build_shape_mesh
-
-        return build_shape_mesh(case, mirrors=sym.mirrors)
-    if kind == "file":
-        from mesastrain.mesh.imported import case_mesh_from_file
-
-        return case_mesh_from_file(case)
-    geom, spacing = geometry_of(case, mirrors=sym.mirrors)
-    return build_stack_mesh(geom, spacing)
+def build_model_mesh(case: Case, layers: list, sym: Symmetry) -> ModelMesh:
+    """The mesh object of a case, by its kind (:mod:`mesastrain.mesh.kinds`)."""
+    return build_mesh(case, mirrors=sym.mirrors)
 
 
 def run_case(case: Case, progress=None, max_memory_gb: float | None = None,
@@ -300,32 +227,32 @@ def run_case(case: Case, progress=None, max_memory_gb: float | None = None,
         sym = decide_symmetry(case, layers, extra_eigenstrain=True)
         sm = build_model_mesh(case, layers, sym)
         extra = _extra_eigenstrain(eigenstrain_sources, case, layers, sm)
-    disc = discretise_mesh(sm, case.mesh.order)
+    disc = sm.discretise(case.mesh.order)
     timings["mesh"] = time.perf_counter() - t
-    say(f"mesh: {sm.nnodes:,} nodes, {sm.nelems:,} {_element_word(sm)}, order {disc.order}, "
+    say(f"mesh: {sm.nnodes:,} nodes, {sm.nelems:,} {sm.element_name}, order {disc.order}, "
         f"{disc.ndofs:,} unknowns; {sym.name} model")
     t = time.perf_counter()
-    K, f = assemble(disc, sm.layer, stiff, eig, extra)
+    cache = SymbolicCache(disc)
+    K, f = assemble(disc, sm.region, stiff, eig, extra, cache=cache)
     timings["assembly"] = time.perf_counter() - t
     say(f"assembly: {K.nnz:,} nonzeros in {timings['assembly']:.1f} s")
     t = time.perf_counter()
     solver = case.solver
-    if getattr(sm, "kind", "") == "section" and solver.method == "auto":
+    if sm.kind == "section" and solver.method == "auto":
         # a cross-section factorises cheaply (2-D fill-in); multigrid gains nothing there
         solver = replace(solver, method="direct")
-    u, rep = solve_model(K, f, disc, sm.boundary(), solver, progress=say)
+    u, rep = solve_model(K, f, disc, sm.boundary(), solver, progress=say,
+                         spaces=cache.deferred_spaces(sm.region))
     timings["solve"] = time.perf_counter() - t
     say(f"solve: {rep.method}, {rep.iterations} iterations, residual {rep.residual:.1e}, "
         f"{timings['solve']:.1f} s")
-    del K
+    del K, cache
     t = time.perf_counter()
     model = model_summary(sm, sym, disc)
     if sym.mirrors:   # reflect the solved part: everything downstream sees the whole body
         sm, disc, u = unfold_model(sm, disc, u)
-    fl = recover(disc, u, sm.layer, stiff, eig, _n_vertices(sm), _element_vertices(sm), extra)
-    expand = getattr(sm, "expand_fields", None)
-    if expand is not None:
-        fl = expand(fl)
+    fl = recover(disc, u, sm.region, stiff, eig, sm.solve_nnodes, sm.solve_mesh.t, extra)
+    fl = sm.expand_fields(fl)
     if not (np.all(np.isfinite(fl.cell_stress)) and np.all(np.isfinite(fl.displacement))):
         raise SolverError("the recovered fields contain NaN or Inf; nothing was written")
     res = Result(case=case, layers=layers, mesh=sm, disc=disc, u=u, fields=fl,
@@ -352,30 +279,15 @@ def _extra_eigenstrain(sources, case, layers, sm):
     return extra
 
 
-def _element_word(sm) -> str:
-    return {"structured": "hexahedra", "section": "quadrilaterals (cross-section)"}.get(
-        getattr(sm, "kind", ""), "tetrahedra")
-
-
-def _n_vertices(sm) -> int:
-    return int(getattr(sm, "solve_nnodes", sm.nnodes))
-
-
-def _element_vertices(sm) -> np.ndarray:
-    own = getattr(sm, "solve_mesh", None)
-    return (own if own is not None else sm.mesh).t
-
-
 def model_summary(sm, sym: Symmetry, disc: Discretisation) -> dict:
     """What was modelled: mesh kind, symmetry, periodic ties, boundary conditions."""
     b = sm.boundary()
-    out = {"mesh_kind": getattr(sm, "kind", "structured"), **sym.to_dict(),
+    out = {"mesh_kind": sm.kind, **sym.to_dict(),
            "periodic_axes": ["xyz"[p[0]] for p in b.periodic],
            "element_order": disc.order,
            "boundary_conditions": _bc_text(b)}
-    extra = getattr(sm, "description", "")
-    if extra:
-        out["description"] = extra
+    if sm.description:
+        out["description"] = sm.description
     return out
 
 

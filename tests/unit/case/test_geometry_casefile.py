@@ -125,7 +125,8 @@ def test_shape_demos_load_and_estimate(name):
     from pathlib import Path
 
     from mesastrain.case.parse import load_case
-    from mesastrain.run.resources import estimate, mesh_kind
+    from mesastrain.mesh.kinds import mesh_kind
+    from mesastrain.run.resources import estimate
 
     root = Path(__file__).resolve().parents[3]
     case = load_case(root / "cases" / f"{name}.toml")

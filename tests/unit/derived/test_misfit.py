@@ -24,7 +24,7 @@ from mesastrain.derived import misfit as mf
 from mesastrain.case.parse import parse_case
 from mesastrain.physics.crystal import Frame, voigt_to_full
 from mesastrain.errors import CaseError, MesastrainError
-from mesastrain.mesh.structured import join_segments
+from mesastrain.mesh.grid import join_segments
 from mesastrain.model.regions import build_layers
 
 MU, NU = 50.0, 0.3          # REFERENCES 5a test constants (any consistent unit: GPa here)
@@ -403,7 +403,7 @@ def test_blanket_case_relaxes_by_the_requested_fraction():
     from mesastrain.fem.assembly import assemble
     from mesastrain.io.export import from_vtk6
     from mesastrain.fem.fields import recover
-    from mesastrain.run.pipeline import solve_model
+    from mesastrain.fem.solve import solve_model
 
     K, f = assemble(res.disc, res.mesh.layer, res.stiffness, res.eigenstrain, None)
     u0, _ = solve_model(K, f, res.disc, res.mesh.boundary(), case.solver)
@@ -507,12 +507,12 @@ def test_lines_ending_on_roller_faces_are_flagged(etch, warned):
     # has its displacement along y held there (rollers): its screw part is constrained.
     # Etched through the interface, the lines end on free sidewalls.
     from mesastrain.mesh.structured import build_stack_mesh
-    from mesastrain.run.resources import geometry_of
+    from mesastrain.mesh.planning import layout_of
 
     case = _case([{**SIXTY, "spacing": "50 nm"}], mesh={"order": 1, "size": "10 nm"},
                  pattern={"shape": "rectangle", "width": "100 nm", "etch_depth": etch})
     layers = build_layers(case)
-    sm = build_stack_mesh(*geometry_of(case, mirrors=()))
+    sm = build_stack_mesh(*layout_of(case, mirrors=()))
     lo, hi = mf.model_bounds(sm)
     fams = mf.resolve_families(case, layers, sm.layer, lo, hi, sm.boundary())
     assert bool(mf._roller_ends(fams[0], sm, lo, hi)) is warned

@@ -11,9 +11,9 @@ import numpy as np
 import pytest
 import scipy.sparse as sp
 
-from mesastrain.fem.assembly import (Discretisation, assemble, assemble_load, assemble_matrix,
-                                 brick_geometry, build_pattern, discretise, pattern_of,
-                                 rigid_body_modes)
+from mesastrain.fem.assembly import (SymbolicCache, assemble, assemble_load, assemble_matrix,
+                                     build_pattern, rigid_body_modes)
+from mesastrain.fem.discretisation import Discretisation, brick_maps, discretise
 from mesastrain.physics.crystal import voigt_to_full
 from small_cases import EIG, STIFF, rotated_cubic
 
@@ -37,7 +37,7 @@ def full_basis_disc(mesh, order):
     """The generic discretisation: a scikit-fem basis with all gradients stored."""
     from skfem import Basis, ElementHex1, ElementHex2
 
-    from mesastrain.fem.assembly import INTORDER
+    from mesastrain.fem.discretisation import INTORDER
 
     b = Basis(mesh, {1: ElementHex1, 2: ElementHex2}[order](), intorder=INTORDER[order])
     return Discretisation(basis=b, order=order, element_dofs=np.ascontiguousarray(b.element_dofs),
@@ -71,7 +71,7 @@ def skfem_reference(mesh, elem, intorder, group, cell_eig=None):
 def test_brick_and_generic_kernels_match_scikit_fem(order):
     from skfem import ElementHex1, ElementHex2
 
-    from mesastrain.fem.assembly import INTORDER
+    from mesastrain.fem.discretisation import INTORDER
 
     mesh = graded_mesh()
     nel = mesh.t.shape[1]
@@ -147,10 +147,11 @@ def test_pattern_is_the_element_connectivity():
 def test_symbolic_structure_is_reused():
     disc = discretise(graded_mesh(), 1)
     group = np.zeros(disc.nelems, int)
-    p1 = pattern_of(disc)
-    K1 = assemble_matrix(disc, group, STIFF[:1])
-    K2 = assemble_matrix(disc, group, 2.0 * STIFF[:1])
-    assert pattern_of(disc) is p1
+    cache = SymbolicCache(disc)
+    p1 = cache.pattern
+    K1 = assemble_matrix(disc, group, STIFF[:1], cache)
+    K2 = assemble_matrix(disc, group, 2.0 * STIFF[:1], cache)
+    assert cache.pattern is p1
     assert np.shares_memory(K1.indices, K2.indices)   # the same symbolic arrays, new values
     assert abs(K2 - 2.0 * K1).max() <= 1e-12 * abs(K1).max()
 
@@ -179,7 +180,7 @@ def test_brick_detection():
     mesh = graded_mesh()
     perm = np.random.default_rng(0).permutation(mesh.t.shape[1])
     shuffled = MeshHex(mesh.p, mesh.t[:, perm])
-    corner, h, axis = brick_geometry(shuffled)
+    corner, h, axis = brick_maps(shuffled)
     vol = np.abs(np.prod(h, axis=1))
     from skfem import Basis, ElementHex1
 
@@ -187,7 +188,7 @@ def test_brick_detection():
     np.testing.assert_allclose(vol, ref, rtol=1e-12)
     p = mesh.p.copy()
     p[0] += 0.05 * p[2]                                  # sheared: not bricks
-    assert brick_geometry(MeshHex(p, mesh.t)) is None
+    assert brick_maps(MeshHex(p, mesh.t)) is None
     assert discretise(MeshHex(p, mesh.t), 1).bricks is None
 
 
@@ -205,10 +206,10 @@ def test_estimate_counts_unknowns_and_nonzeros_exactly(order, refine):
     from pathlib import Path
 
     from mesastrain.case.parse import load_case
-    from mesastrain.fem.discretisation import discretise_mesh
     from mesastrain.model.regions import build_layers
     from mesastrain.run.pipeline import build_model_mesh, decide_symmetry
-    from mesastrain.run.resources import estimate, pattern_nonzeros
+    from mesastrain.fem.cost import pattern_nonzeros
+    from mesastrain.run.resources import estimate
 
     case = load_case(Path(__file__).resolve().parents[3] / "cases" / "sige_stressor_mesa.toml")
     case = dataclasses.replace(case, mesh=dataclasses.replace(case.mesh, order=order,
@@ -216,12 +217,13 @@ def test_estimate_counts_unknowns_and_nonzeros_exactly(order, refine):
     est = estimate(case)
     layers = build_layers(case)
     sm = build_model_mesh(case, layers, decide_symmetry(case, layers))
-    disc = discretise_mesh(sm, order)
+    disc = sm.discretise(order)
     assert est.solved_unknowns == disc.ndofs
     K = assemble_matrix(disc, sm.layer, np.array([lm.stiffness_sample for lm in layers]))
-    from mesastrain.run.resources import axis_coordinates, geometry_of, keep_mask
+    from mesastrain.mesh.grid import axis_coordinates, keep_mask
+    from mesastrain.mesh.planning import layout_of
 
-    geom, spacing = geometry_of(case)
+    geom, spacing = layout_of(case)
     xs, ys, zs = axis_coordinates(geom, spacing)
     xs, ys = xs[xs >= 0], ys[ys >= 0]                 # the quarter that is solved
     nnz = pattern_nonzeros(keep_mask(geom, xs, ys, zs), order)

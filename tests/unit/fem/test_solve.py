@@ -13,8 +13,10 @@ import numpy as np
 import pytest
 import scipy.sparse as sp
 
+from mesastrain.fem import coarsening as cg
 from mesastrain.fem import multigrid as mg
-from mesastrain.fem.assembly import assemble, discretise, rigid_body_modes
+from mesastrain.fem.assembly import SymbolicCache, assemble, rigid_body_modes
+from mesastrain.fem.discretisation import discretise
 from mesastrain.errors import CaseError, SolverError
 from mesastrain.fem.solve import (DIRECT_LIMIT, choose_method, condense, pcg, solve_condensed,
                               solver_options)
@@ -52,6 +54,11 @@ def held_system(order=1, **kw):
     return disc, group, K, f, fixed
 
 
+def spaces_of(disc, group):
+    """The geometric coarse spaces the solver is given for a brick discretisation."""
+    return SymbolicCache(disc).coarse_spaces(group)
+
+
 @pytest.fixture(scope="module")
 def system():
     return held_system()
@@ -75,7 +82,8 @@ def energy_error(K, u, ref, fixed):
 
 def test_geometric_multigrid_matches_direct(system, reference):
     disc, group, K, f, fixed = system
-    u, rep = solve_condensed(K, f, fixed, rigid_body_modes(disc.doflocs), method="iterative")
+    u, rep = solve_condensed(K, f, fixed, rigid_body_modes(disc.doflocs), method="iterative",
+                             spaces=spaces_of(disc, group))
     assert rep.method == "gmg-cg" and rep.levels >= 2
     assert rep.residual <= 1e-8
     assert energy_error(K, u, reference, fixed) < 1e-6
@@ -95,7 +103,7 @@ def test_algebraic_multigrid_matches_direct(system, reference):
 def test_precision_of_the_preconditioner_does_not_limit_accuracy(system, reference, precision):
     disc, group, K, f, fixed = system
     u, rep = solve_condensed(K, f, fixed, method="iterative", tol=1e-11, stress_tol=1e-9,
-                             precision=precision)
+                             precision=precision, spaces=spaces_of(disc, group))
     assert rep.precision == precision
     assert rep.residual <= 1e-10
     assert energy_error(K, u, reference, fixed) < 1e-8
@@ -105,7 +113,8 @@ def test_energy_error_estimate_bounds_the_true_error(system, reference):
     # stop early on purpose: the estimate must not be smaller than the true error by much
     disc, group, K, f, fixed = system
     for tol in (1e-3, 1e-5):
-        u, rep = solve_condensed(K, f, fixed, method="iterative", tol=tol, stress_tol=1.0)
+        u, rep = solve_condensed(K, f, fixed, method="iterative", tol=tol, stress_tol=1.0,
+                                 spaces=spaces_of(disc, group))
         true = energy_error(K, u, reference, fixed)
         assert true <= 2.0 * rep.energy_error
         assert rep.energy_error <= 1e3 * max(true, 1e-12)
@@ -113,8 +122,11 @@ def test_energy_error_estimate_bounds_the_true_error(system, reference):
 
 def test_stress_criterion_keeps_iterating_after_the_residual(system, reference):
     disc, group, K, f, fixed = system
-    loose = solve_condensed(K, f, fixed, method="iterative", tol=1e-2, stress_tol=1.0)[1]
-    strict = solve_condensed(K, f, fixed, method="iterative", tol=1e-2, stress_tol=1e-7)[1]
+    spaces = spaces_of(disc, group)
+    loose = solve_condensed(K, f, fixed, method="iterative", tol=1e-2, stress_tol=1.0,
+                            spaces=spaces)[1]
+    strict = solve_condensed(K, f, fixed, method="iterative", tol=1e-2, stress_tol=1e-7,
+                             spaces=spaces)[1]
     assert strict.iterations > loose.iterations
     assert strict.energy_error <= 1e-7
 
@@ -123,7 +135,7 @@ def test_more_smoothing_sweeps_give_the_same_solution(system, reference):
     disc, group, K, f, fixed = system
     free = np.ones(K.shape[0], bool)
     free[fixed] = False
-    H = mg.Hierarchy(K, mg.restrict_spaces(K.coarse_spaces(), free), np.float32, keep=free,
+    H = mg.Hierarchy(K, mg.restrict_spaces(spaces_of(disc, group), free), np.float32, keep=free,
                      sweeps=(3, 2))
     from mesastrain.fem.solve import _FreePart
 
@@ -132,14 +144,15 @@ def test_more_smoothing_sweeps_give_the_same_solution(system, reference):
     u = np.zeros(K.shape[0])
     u[idx] = x
     assert energy_error(K, u, reference, fixed) < 1e-7
-    one = solve_condensed(K, f, fixed, method="iterative", tol=1e-10, stress_tol=1e-8)[1]
+    one = solve_condensed(K, f, fixed, method="iterative", tol=1e-10, stress_tol=1e-8,
+                          spaces=spaces_of(disc, group))[1]
     assert it <= one.iterations
 
 
 def test_quadratic_elements_use_a_trilinear_coarse_level():
     disc, group, K, f, fixed = held_system(order=2, nx=6, ny=5, nz=6)
     u_d, _ = solve_condensed(K, f, fixed, method="direct")
-    u, rep = solve_condensed(K, f, fixed, method="iterative")
+    u, rep = solve_condensed(K, f, fixed, method="iterative", spaces=spaces_of(disc, group))
     assert rep.method == "gmg-cg"
     assert energy_error(K, u, u_d, fixed) < 1e-6
 
@@ -149,9 +162,9 @@ def test_coarse_spaces_are_nested_and_galerkin_equals_rediscretisation():
 
     mesh, group = block_mesh()
     disc = discretise(mesh, 1)
-    grid, verts = mg.grid_of(disc, group)
-    keep_lines = mg.choose_coarse_lines(grid)
-    coarse, P, inj = mg.coarsen(grid, keep_lines)
+    grid, verts = cg.grid_of(disc, group)
+    keep_lines = cg.choose_coarse_lines(grid)
+    coarse, P, inj = cg.coarsen(grid, keep_lines)
     assert P.shape == (grid.nnodes, coarse.nnodes)
     # feature lines (material interface, etch boundaries) survive
     for a in range(3):
@@ -174,7 +187,7 @@ def test_coarse_spaces_are_nested_and_galerkin_equals_rediscretisation():
     key = lambda x: np.round(x.T / 1e-9).astype(np.int64)  # noqa: E731
     lookup = {tuple(k): i for i, k in enumerate(key(cm.p))}
     perm = np.array([lookup[tuple(k)] for k in key(pts)])
-    Pv = mg._vector(P)
+    Pv = cg._vector(P)
     G = (Pv.T @ K @ Pv).tocsr()
     pv = (3 * perm[:, None] + np.arange(3)).ravel()
     Kc_perm = Kc[pv][:, pv]
@@ -191,7 +204,7 @@ def test_coarse_spaces_are_nested_and_galerkin_equals_rediscretisation():
 def test_quadratic_to_linear_prolongation_reproduces_trilinear_fields():
     mesh, group = block_mesh(6, 5, 6)
     d2 = discretise(mesh, 2)
-    spaces = mg.grid_hierarchy(d2, group, coarsest=0, max_levels=1)
+    spaces = cg.grid_hierarchy(d2, group, coarsest=0, max_levels=1)
     P = spaces.prolongations[0]
     verts = spaces.injections[0]
     x = d2.doflocs
@@ -240,7 +253,8 @@ def test_dof_without_stiffness_is_reported(system):
 def test_no_convergence_is_an_error(system):
     disc, group, K, f, fixed = system
     with pytest.raises(SolverError, match="did not converge"):
-        solve_condensed(K, f, fixed, method="iterative", maxiter=2)
+        solve_condensed(K, f, fixed, method="iterative", maxiter=2,
+                        spaces=spaces_of(disc, group))
 
 
 def test_pcg_with_identity_preconditioner_solves_spd_system():

@@ -1,0 +1,202 @@
+"""Cost model: memory and time of mesh + assembly + solve + recovery, before solving.
+
+The constants were measured with ``benchmarks/solver_scaling.py`` (demo mesa,
+30k-1M unknowns) and ``benchmarks/time_to_accuracy.py`` (27-node elements) on a
+2-core machine; see README "Performance". Every mesh kind turns its counts
+into an :class:`Estimate` with :func:`estimate_from_counts` or, for the
+structured grid, with :func:`count_unknowns`, :func:`pattern_nonzeros` and
+:func:`resources`.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from mesastrain.fem.solve import choose_method
+
+
+@dataclass(frozen=True)
+class Estimate:
+    """Size, memory and time expected for a case before solving.
+
+    ``unknowns`` counts the whole body of the result; ``solved_unknowns`` the
+    part that is solved when a mirror-symmetric half or quarter stands for it
+    (None: the same).
+    """
+
+    nodes: int
+    elements: int
+    unknowns: int
+    order: int
+    method: str
+    memory_gb: float
+    seconds: float
+    solved_unknowns: int | None = None
+
+    def to_dict(self) -> dict:
+        out = {"nodes": self.nodes, "elements": self.elements, "unknowns": self.unknowns,
+               "order": self.order, "solver": self.method,
+               "memory_gb": round(self.memory_gb, 3), "seconds": round(self.seconds, 1)}
+        if self.solved_unknowns is not None and self.solved_unknowns != self.unknowns:
+            out["solved_unknowns"] = self.solved_unknowns
+        return out
+
+
+
+#: Peak memory: bytes per stored nonzero (the matrix 12, its single-precision triangles 8,
+#: the coarse levels ~8 and the transient Galerkin products), per unknown, and the base.
+BYTES_PER_NONZERO = 36.0
+BYTES_PER_UNKNOWN = 60.0
+BASE_BYTES = 1.0e8
+#: Seconds per stored nonzero: assembly (symbolic pattern, element matrices, scatter).
+ASSEMBLY_S_PER_NONZERO = 1.0e-7
+#: Seconds per nonzero for the multigrid setup (Galerkin products, triangle split).
+SETUP_S_PER_NONZERO = 1.2e-7
+#: Seconds per nonzero and iteration, and iterations, per element order (geometric multigrid).
+ITERATION_S_PER_NONZERO = {1: 8.0e-9, 2: 5.0e-9}
+ITERATIONS = {1: 16, 2: 80}
+#: Smoothed aggregation (meshes that are not structured bricks): memory per nonzero,
+#: setup seconds per nonzero, iterations (cost per iteration as for order 2).
+AMG_BYTES_PER_NONZERO = 44.0
+AMG_SETUP_S_PER_NONZERO = 2.5e-7
+AMG_ITERATIONS = 40
+#: Seconds per solved unknown (mesh, supports) and per unknown of the whole body
+#: (unfolding a mirrored model, recovery, probes).
+MESH_S_PER_UNKNOWN = 1.2e-6
+RECOVERY_S_PER_UNKNOWN = 1.5e-6
+#: Direct solver (SuperLU on the condensed system, 3-D elasticity, measured from 30k to
+#: 127k unknowns): seconds = DIRECT_S n^DIRECT_EXP, bytes = DIRECT_BYTES n^DIRECT_MEM_EXP.
+DIRECT_S, DIRECT_EXP = 2.4e-7, 1.73
+DIRECT_BYTES, DIRECT_MEM_EXP = 2.3e3, 1.22
+
+
+def count_unknowns(keep: np.ndarray, order: int) -> tuple[int, int, int]:
+    """Exact node, element and unknown counts of a structured grid.
+
+    Parameters
+    ----------
+    keep : ndarray of bool (nx, ny, nz)
+        Cells of the grid that belong to the body.
+    order : int
+        1 or 2.
+
+    Returns
+    -------
+    (nodes, elements, unknowns)
+    """
+    nx, ny, nz = keep.shape
+    # on the doubled grid, a point belongs to the body if any adjacent cell does
+    k2 = np.zeros((2 * nx + 1, 2 * ny + 1, 2 * nz + 1), dtype=bool)
+    for dx in (0, 1, 2):
+        for dy in (0, 1, 2):
+            for dz in (0, 1, 2):
+                k2[dx:dx + 2 * nx:2, dy:dy + 2 * ny:2, dz:dz + 2 * nz:2] |= keep
+    vertices = int(k2[::2, ::2, ::2].sum())
+    scalar = vertices if order == 1 else int(k2.sum())
+    return vertices, int(keep.sum()), 3 * scalar
+
+
+
+def pattern_nonzeros(keep: np.ndarray, order: int) -> int:
+    """Stored nonzeros of the vector stiffness matrix of a structured grid.
+
+    Exact for order 1 (scalar dofs p, q are coupled when a kept cell holds
+    both, counted over the 27 grid offsets); for order 2 the interior count of
+    64 neighbours per scalar dof scaled by the boundary deficit of order 1.
+    """
+    nx, ny, nz = keep.shape
+    k = np.zeros((nx + 2, ny + 2, nz + 2), dtype=bool)
+    k[1:-1, 1:-1, 1:-1] = keep
+    allowed = {0: (-1, 0), 1: (0,), -1: (-1,)}
+    pairs = 0
+    for dx in (-1, 0, 1):
+        for dy in (-1, 0, 1):
+            for dz in (-1, 0, 1):
+                conn = np.zeros((nx + 1, ny + 1, nz + 1), dtype=bool)
+                for cx in allowed[dx]:
+                    for cy in allowed[dy]:
+                        for cz in allowed[dz]:
+                            conn |= k[cx + 1:cx + 2 + nx, cy + 1:cy + 2 + ny, cz + 1:cz + 2 + nz]
+                if dx or dy or dz:
+                    # q = p + d must be a grid point: shift the mask so both ends exist
+                    sx = slice(max(0, -dx), nx + 1 - max(0, dx))
+                    sy = slice(max(0, -dy), ny + 1 - max(0, dy))
+                    sz = slice(max(0, -dz), nz + 1 - max(0, dz))
+                    pairs += int(conn[sx, sy, sz].sum())
+                else:
+                    pairs += int(conn.sum())
+    if order == 1:
+        return 9 * pairs
+    verts = count_unknowns(keep, 1)[0]
+    scalar = count_unknowns(keep, 2)[2] // 3
+    deficit = pairs / (27.0 * verts)
+    return int(9 * 64 * scalar * deficit)
+
+
+
+def resources(unknowns: int, nonzeros: int, elements: int, nloc: int, order: int,
+              method: str, multigrid: str = "geometric",
+              whole_unknowns: int | None = None) -> tuple[float, float]:
+    """Peak memory (GB) and wall time (s) of mesh + assembly + solve + recovery.
+
+    Parameters
+    ----------
+    unknowns, nonzeros : int
+        Size and stored nonzeros of the stiffness matrix that is solved.
+    elements, nloc : int
+        Elements and scalar dofs per element (kept for callers; the measured
+        per-nonzero rates already include the per-element work).
+    order : int
+    method : {"direct", "iterative"}
+    multigrid : {"geometric", "algebraic"}
+        Preconditioner of the iterative solve: geometric on structured brick
+        meshes, smoothed aggregation on the others.
+    whole_unknowns : int, optional
+        Unknowns of the whole body when a mirrored part is solved (recovery
+        works on the whole body).
+    """
+    n, nnz = float(unknowns), float(nonzeros)
+    whole = float(whole_unknowns or unknowns)
+    mem = BASE_BYTES + BYTES_PER_UNKNOWN * max(n, whole / 4.0)
+    secs = (ASSEMBLY_S_PER_NONZERO * nnz + MESH_S_PER_UNKNOWN * n
+            + RECOVERY_S_PER_UNKNOWN * whole)
+    per_it = ITERATION_S_PER_NONZERO.get(order, ITERATION_S_PER_NONZERO[2])
+    if method == "direct":
+        mem += 12.0 * nnz + DIRECT_BYTES * n ** DIRECT_MEM_EXP
+        secs += DIRECT_S * n ** DIRECT_EXP
+    elif multigrid == "geometric":
+        mem += BYTES_PER_NONZERO * nnz
+        secs += (SETUP_S_PER_NONZERO + ITERATIONS.get(order, ITERATIONS[2]) * per_it) * nnz
+    else:
+        mem += AMG_BYTES_PER_NONZERO * nnz
+        secs += (AMG_SETUP_S_PER_NONZERO + AMG_ITERATIONS * per_it) * nnz
+    return mem / 1e9, secs
+
+
+
+def estimate_from_counts(case, nodes: int, elements: int, scalar_dofs: int,
+                         dofs_per_element: int, nnz_per_row: int) -> Estimate:
+    """An :class:`Estimate` from mesh counts, with the memory and time rules of :func:`resources`.
+
+    Used for the meshes that are not structured hexahedra (cross-sections,
+    tetrahedra), where the counts come from the mesher's own estimate.
+
+    Parameters
+    ----------
+    case : Case
+        Its ``solver`` and ``mesh.order`` settings are used.
+    nodes, elements, scalar_dofs : int
+    dofs_per_element : int
+        Scalar dofs per element.
+    nnz_per_row : int
+        Typical stored nonzeros per matrix row.
+    """
+    n = 3 * int(scalar_dofs)
+    nnz = n * nnz_per_row
+    method = choose_method(case.solver.method, n, case.solver.direct_limit)
+    mem, secs = resources(n, nnz, int(elements), int(dofs_per_element), case.mesh.order, method,
+                          multigrid="algebraic")
+    return Estimate(int(nodes), int(elements), n, case.mesh.order, method, mem, secs)
+

@@ -1,0 +1,126 @@
+"""What a case asks of the mesher: taper, pitch, mirrors, refinement and the stack layout.
+
+These functions read a validated case and its defaults; the mesh kinds
+(:mod:`mesastrain.mesh.kinds`) and the size estimate build on them.
+"""
+
+from __future__ import annotations
+
+from mesastrain.case.outline import taper_of
+from mesastrain.case.parse import Case
+from mesastrain.mesh.grid import GridSpacing, StackLayout
+from mesastrain.model.regions import build_layers
+from mesastrain.model.symmetry import decide
+
+
+def pattern_taper(case: Case) -> float:
+    """Horizontal offset of the feature's foot relative to its top edge, nm.
+
+    ``etch_depth / tan(sidewall_angle)`` (:func:`mesastrain.case.outline.taper_of`):
+    positive for sidewalls that slope outward toward the etch floor (angle
+    < 90 degrees), negative for an undercut, 0 for vertical sidewalls.
+    """
+    return taper_of(case.pattern) if case.pattern.patterned else 0.0
+
+
+def pattern_pitch(case: Case) -> tuple:
+    """(px, py) of a periodic array in nm, None per axis for an isolated feature."""
+    pitch = case.pattern.pitch
+    if pitch is None:
+        return (None, None)
+    return tuple(pitch)
+
+
+def auto_mirrors(case: Case) -> tuple:
+    """Mirror axes chosen automatically (:func:`mesastrain.model.symmetry.decide`)."""
+    return decide(case, build_layers(case)).mirrors
+
+
+def refinement_of(case: Case) -> float:
+    """The ``mesh.refine`` factor (1 when the case does not set it)."""
+    return float(case.mesh.refine or 1.0)
+
+
+def layout_of(case: Case, mirrors: tuple | None = None) -> tuple[StackLayout, GridSpacing]:
+    """Stack layout and element sizes of a structured model, from the case and its defaults.
+
+    Parameters
+    ----------
+    case : Case
+    mirrors : tuple of int, optional
+        Mirror axes of the model; None decides automatically
+        (:mod:`mesastrain.model.symmetry`).
+
+    Notes
+    -----
+    ``width``/``length`` are the feature's size at its top surface. With a
+    sloped sidewall the grid is built for the foot at the etch floor, wider
+    by ``2 * taper``. ``mesh.refine`` = r divides every element size and the
+    grading slope (growth - 1), so the size h(x) at every point is divided
+    by r: a uniform refinement, as a convergence study needs.
+    """
+    pat = case.pattern
+    stack = case.stack_thickness
+    thick = [lay.thickness for lay in case.layers]
+    patterned = pat.shape != "none"
+    order = case.mesh.order
+    taper = pattern_taper(case)
+    pitch = pattern_pitch(case)
+    margin_y = None
+    if patterned:
+        W, L = pat.width, (pat.length if pat.length is not None else pat.width)
+        etch = pat.etch_depth
+        if etch > stack:                    # etched into the substrate
+            thick.append(etch - stack)
+        feature = max(W, L)
+        margin = pat.margin if pat.margin is not None else max(0.5 * feature, 4.0 * etch)
+        if pitch[0] is not None:
+            margin = max(0.0, 0.5 * (pitch[0] - W) - taper)
+            if pitch[1] is not None:
+                margin_y = max(0.0, 0.5 * (pitch[1] - L) - taper)
+        depth_default = max(1.5 * feature, 4.0 * etch)
+        if pitch[0] is not None:
+            depth_default = max(1.5 * max(q for q in pitch if q is not None), 4.0 * etch)
+    else:
+        W = L = None
+        etch = 0.0
+        margin = max(stack, 1.0)
+        depth_default = max(2.0 * stack, 10.0)
+    depth = case.mesh.substrate_depth or min(case.substrate.thickness, depth_default)
+    t_min = min(thick)
+    per_layer = 4.0 if order == 1 else 2.0
+    size = case.mesh.size or t_min * 2.0 / per_layer
+    edge = case.mesh.edge_size or min(size, t_min / per_layer)
+    if patterned:
+        lateral_cap = case.mesh.size or max(size, min(W, L) / (16.0 if order == 1 else 8.0))
+    else:
+        lateral_cap = size
+    refine = refinement_of(case)
+    size, edge, lateral_cap = size / refine, edge / refine, lateral_cap / refine
+    if patterned:
+        if mirrors is None:
+            mirrors = auto_mirrors(case)
+        periodic = tuple(a for a in (0, 1) if pitch[a] is not None)
+    else:
+        mirrors, periodic = (), ()
+        if refine != 1.0:   # the blanket column is two elements wide; refine it in z only
+            lateral_cap = size
+        if case.dislocations:
+            # misfit dislocations in a blanket film: a periodic cell of whole line spacings
+            from mesastrain.derived.misfit import blanket_cell
+
+            (W, L), lateral_cap = blanket_cell(case, lateral_cap)
+            size, edge = min(size, 2.0 * lateral_cap), min(edge, lateral_cap)
+            margin, margin_y, periodic = 0.0, 0.0, (0, 1)
+            depth = case.mesh.substrate_depth or min(case.substrate.thickness,
+                                                     max(depth, 1.5 * max(W, L)))
+    geom = StackLayout(interfaces=tuple(case.interfaces), substrate_depth=float(depth),
+                         half_width=None if W is None else W / 2.0 + taper,
+                         half_length=None if L is None else L / 2.0 + taper,
+                         etch_depth=float(etch), margin=float(margin),
+                         margin_y=None if margin_y is None else float(margin_y),
+                       mirrors=tuple(mirrors), periodic=periodic, taper=float(taper))
+    return geom, GridSpacing(size=float(size), edge_size=float(edge),
+                             growth=1.0 + (float(case.mesh.growth) - 1.0) / refine,
+                             lateral_cap=float(lateral_cap), refine=refine)
+
