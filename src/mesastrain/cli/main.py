@@ -84,8 +84,9 @@ def results_table(summary: dict) -> str:
 
 def cmd_run(args) -> int:
     from mesastrain.io.export import jsonable
-    from mesastrain.io.folder import CAUTION, summary_of, write_result
-    from mesastrain.derived import EIGENSTRAIN_SOURCES, PROVIDERS, solve_and_derive
+    from mesastrain.io.folder import summary_of, write_result
+    from mesastrain.io.wording import CAUTION
+    from mesastrain.derived import PROVIDERS, solve_and_derive
 
     case = _load(args.case)
     out = Path(args.out) if args.out else Path(Path(args.case).stem + "-results")
@@ -99,8 +100,7 @@ def cmd_run(args) -> int:
         from mesastrain.run.convergence import study as convergence_study
 
         res, study = convergence_study(case, progress=progress, max_memory_gb=args.max_memory,
-                                            providers=PROVIDERS,
-                                            eigenstrain_sources=EIGENSTRAIN_SOURCES)
+                                            providers=PROVIDERS)
     else:
         res = solve_and_derive(case, progress=progress, max_memory_gb=args.max_memory)
     progress("writing results")

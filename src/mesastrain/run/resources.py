@@ -9,6 +9,7 @@ import numpy as np
 from mesastrain.case.parse import Case
 from mesastrain.mesh.structured import GridSpacing, StackGeometry, axis_coordinates
 from mesastrain.fem.solve import choose_method
+from mesastrain.model.dislocation_plan import blanket_cell
 
 # geometry and mesh sizes
 # --------------------------------------------------------------------------
@@ -136,8 +137,6 @@ def geometry_of(case: Case, mirrors: tuple | None = None) -> tuple[StackGeometry
             lateral_cap = size
         if getattr(case, "dislocations", ()):
             # misfit dislocations in a blanket film: a periodic cell of whole line spacings
-            from mesastrain.derived.misfit import blanket_cell
-
             (W, L), lateral_cap = blanket_cell(case, lateral_cap)
             size, edge = min(size, 2.0 * lateral_cap), min(edge, lateral_cap)
             margin, margin_y, periodic = 0.0, 0.0, (0, 1)

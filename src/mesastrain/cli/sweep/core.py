@@ -1567,7 +1567,7 @@ def _write_table(sweep: Sweep, out: Path, outcomes) -> list[str]:
 def _finish(sweep, out, outcomes, started, wall, cluster_desc, n_workers, interrupted, run_id,
             plots=True) -> dict:
     from mesastrain.io.export import write_json
-    from mesastrain.io.folder import CAUTION
+    from mesastrain.io.wording import CAUTION
 
     fig_errors, units = _collect_figures(sweep, out, outcomes)
     files = _write_table(sweep, out, outcomes)
