@@ -290,7 +290,8 @@ def resolve_families(case, layers, group, lo, hi, boundary=None) -> list[LineFam
         kept = []
         shifts = (0.0,) if per is None else (-per[0], 0.0, per[0])
         for j, p in enumerate(pos):
-            w = sheet_width(VolterraLine(template.shifted(p * e), half_plane=(0.0, 0.0, 1.0)), lo, hi)
+            w = sheet_width(VolterraLine(template.shifted(p * e), half_plane=(0.0, 0.0, 1.0)),
+                            lo, hi)
             if per is None and min(p - lo_e, hi_e - p) < 0.5 * w * (1 - 1e-9):
                 # a line on (or within half a sheet of) the end of the interface: at a free
                 # edge it would have left; an explicit position there is an input error

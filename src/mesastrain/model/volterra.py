@@ -1,4 +1,4 @@
-"""A straight dislocation in a finite-element model of bricks: a Volterra line as an eigenstrain sheet.
+"""A straight dislocation in a brick mesh: a Volterra line as an eigenstrain sheet.
 
 A straight dislocation is put into the finite-element model as a plastic
 eigenstrain on a thin sheet over its slipped half-plane (the Volterra cut),
@@ -88,11 +88,12 @@ class VolterraLine:
     def __post_init__(self):
         d = np.asarray(self.half_plane, dtype=float)
         if d.shape != (3,) or not np.all(np.isfinite(d)):
-            raise MesastrainError(f"half-plane direction must be 3 finite numbers, got {self.half_plane!r}")
+            raise MesastrainError(f"half-plane direction must be 3 finite numbers, got "
+                                  f"{self.half_plane!r}")
         axis = int(np.argmax(np.abs(d)))
         if np.linalg.norm(d) == 0 or np.count_nonzero(np.abs(d) > 1e-12 * np.abs(d).max()) != 1:
-            raise MesastrainError(f"half-plane direction must be a grid axis (+-x, +-y or +-z), got "
-                                  f"{list(np.round(d, 6))}")
+            raise MesastrainError(f"half-plane direction must be a grid axis (+-x, +-y or +-z), "
+                                  f"got {list(np.round(d, 6))}")
         d = np.sign(d[axis]) * np.eye(3)[axis]
         if abs(d @ self.dislocation.xi) > 1e-9:
             raise MesastrainError("the half-plane direction must be normal to the line direction "
@@ -165,7 +166,8 @@ def _below_fraction(s, smin, p, q):
     return np.where(thin, lin, np.clip(quad, 0.0, 1.0))
 
 
-def _sheet_fractions(line: VolterraLine, lo: np.ndarray, hi: np.ndarray, width: float) -> np.ndarray:
+def _sheet_fractions(line: VolterraLine, lo: np.ndarray, hi: np.ndarray,
+                     width: float) -> np.ndarray:
     """Volume fraction of each brick inside the sheet (thickness ``width``)."""
     k = line.axis
     P = line.dislocation.point

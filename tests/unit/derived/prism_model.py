@@ -1,4 +1,4 @@
-"""A one-element-thick periodic prism: the model of the straight-line checks of the dislocation sheets.
+"""A one-element-thick periodic prism: the model of the straight-line checks of the sheets.
 
 Test support for ``test_misfit.py``: a tensor grid of bricks one element
 thick along the line, whose two end faces share their displacement, solved
@@ -139,7 +139,8 @@ class PrismModel:
         eigenstrain : array (ngroups, 3, 3), optional
             Eigenstrain per group (default zero).
         cell_eigenstrain : array (nelems, 3, 3), optional
-            Extra eigenstrain per element (e.g. :func:`mesastrain.model.volterra.lines_eigenstrain`).
+            Extra eigenstrain per element (e.g.
+            :func:`mesastrain.model.volterra.lines_eigenstrain`).
         fixed : sequence of (nodes, components, values)
             Prescribed displacements: reduced node indices, a tuple of
             components (0, 1, 2) and values of shape (len(nodes), ncomp) or a
