@@ -23,7 +23,7 @@ from decimal import Decimal
 from mesastrain.errors import CaseError
 
 __all__ = ["LENGTH_UNITS", "TEMPERATURE_UNITS", "is_number", "parse_length",
-           "parse_temperature", "show_value"]
+           "parse_temperature", "safe_name", "show_value"]
 
 #: Length units accepted in strings, and their size in nanometres.
 LENGTH_UNITS = {
@@ -200,3 +200,24 @@ def parse_temperature(value, key: str) -> float:
         raise CaseError(key, f"{show_value(value)} is {kelvin:g} K, at or below absolute zero; "
                              f"give a temperature above 0 K (-273.15 C)")
     return kelvin
+
+
+def safe_name(name: str, default: str = "cut") -> str:
+    """A user-given name (of a cut, a channel) made safe for file and field names.
+
+    Every run of characters other than ASCII letters, digits, ``_``, ``.``
+    and ``-`` becomes one ``_``; leading and trailing ``.`` and ``_`` are
+    dropped, so that the result is never hidden or empty.
+
+    Parameters
+    ----------
+    name : str
+    default : str, default: "cut"
+        Returned when nothing is left.
+
+    Returns
+    -------
+    str
+        E.g. ``"through the stack"`` -> ``"through_the_stack"``.
+    """
+    return re.sub(r"[^A-Za-z0-9_.-]+", "_", name).strip("._") or default

@@ -56,7 +56,7 @@ def cmd_run(args) -> int:
     """``mesastrain run``: 0 when the result folder is written, 2 when ``--out`` exists."""
     from mesastrain.io.export import jsonable
     from mesastrain.io.folder import CAUTION, summary_of, write_result
-    from mesastrain.derived import EIGENSTRAIN_SOURCES, PROVIDERS, solve_and_derive
+    from mesastrain.derived import PROVIDERS, solve_and_derive
 
     case = load_case(args.case)
     out = Path(args.out) if args.out else Path(Path(args.case).stem + "-results")
@@ -70,8 +70,7 @@ def cmd_run(args) -> int:
         from mesastrain.run.convergence import study as convergence_study
 
         res, study = convergence_study(case, progress=progress, max_memory_gb=args.max_memory,
-                                            providers=PROVIDERS,
-                                            eigenstrain_sources=EIGENSTRAIN_SOURCES)
+                                            providers=PROVIDERS)
     else:
         res = solve_and_derive(case, progress=progress, max_memory_gb=args.max_memory)
     progress("writing results")

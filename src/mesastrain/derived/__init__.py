@@ -19,16 +19,12 @@ PROVIDERS = (
     misfit.derive,      # dislocation contribution, overlay, relaxation
 )
 
-#: Extra eigenstrain sources, ``source(case, layers, mesh) -> (nelems, 3, 3) or None``.
-EIGENSTRAIN_SOURCES = (misfit.eigenstrain_source,)   # [[dislocations]] -> eigenstrain sheets
-
-
 
 def solve_and_derive(case, progress=None, max_memory_gb: float | None = None):
     """Solve a case and compute every standard derived quantity.
 
-    :func:`mesastrain.run.pipeline.run_case` with :data:`PROVIDERS` and
-    :data:`EIGENSTRAIN_SOURCES`: what ``mesastrain run`` computes before writing.
+    :func:`mesastrain.run.pipeline.run_case` with :data:`PROVIDERS`: what
+    ``mesastrain run`` computes before writing.
 
     Parameters
     ----------
@@ -40,8 +36,7 @@ def solve_and_derive(case, progress=None, max_memory_gb: float | None = None):
     -------
     Result
     """
-    return run_case(case, progress=progress, max_memory_gb=max_memory_gb,
-                    providers=PROVIDERS, eigenstrain_sources=EIGENSTRAIN_SOURCES)
+    return run_case(case, progress=progress, max_memory_gb=max_memory_gb, providers=PROVIDERS)
 
 
-__all__ = ["PROVIDERS", "EIGENSTRAIN_SOURCES", "solve_and_derive"]
+__all__ = ["PROVIDERS", "solve_and_derive"]

@@ -34,9 +34,14 @@ import time
 
 import numpy as np
 
-from mesastrain.run.pipeline import Derived
+from mesastrain.derived.relaxation import blanket_state
+from mesastrain.fem.assembly import assemble
+from mesastrain.fem.discretisation import discretise
+from mesastrain.fem.fields import evaluate_at_points
+from mesastrain.fem.solve import solve_condensed
 from mesastrain.physics.thinfilm import (bow_height, radius_of_curvature, stoney_curvature,
                        timoshenko_curvature)
+from mesastrain.run.result import Derived
 
 log = logging.getLogger(__name__)
 
@@ -166,11 +171,6 @@ def free_plate_curvature(stiffness, eigenstrain, z_bottom, z_top, *, order: int 
         ``film_force`` (sum over layers of the mean in-plane stress times
         thickness at the centre, MPa nm), ``unknowns``, ``seconds``.
     """
-    from mesastrain.fem.assembly import assemble
-    from mesastrain.fem.discretisation import discretise
-    from mesastrain.fem.fields import evaluate_at_points
-    from mesastrain.fem.solve import solve_condensed
-
     t0 = time.perf_counter()
     z_bounds = np.concatenate([[z_bottom[0]], np.asarray(z_top, dtype=float)])
     h_s = z_top[0] - z_bottom[0]
@@ -228,8 +228,6 @@ def blanket_stack(res):
 
 def wafer_bow(res, fe: bool | None = None) -> dict:
     """All bow estimates of a result's blanket stack (see the module notes)."""
-    from mesastrain.derived.readouts import blanket_state
-
     case = res.case
     stiff, eig, zb, zt = blanket_stack(res)
     h_s = case.substrate.thickness

@@ -15,14 +15,15 @@ displacement in nm, all in the sample frame.
 from __future__ import annotations
 
 import csv
-import re
 from pathlib import Path
 
 import numpy as np
 
 from mesastrain.case.parse import FIELD_COMPONENTS
+from mesastrain.derived.sampling import sample_inside
 from mesastrain.fem.fields import hydrostatic, principal, von_mises
-from mesastrain.run.pipeline import Derived
+from mesastrain.run.result import Derived
+from mesastrain.units import safe_name
 
 _AX = {"x": 0, "y": 1, "z": 2}
 
@@ -85,11 +86,6 @@ def components(strain: np.ndarray, stress: np.ndarray, disp: np.ndarray,
     return out
 
 
-def safe_name(name: str) -> str:
-    """A file-name-safe version of a cut name."""
-    return re.sub(r"[^A-Za-z0-9_.-]+", "_", name).strip("._") or "cut"
-
-
 def sample_cut(res, start, end, points: int):
     """Sample the fields along a straight line.
 
@@ -100,8 +96,6 @@ def sample_cut(res, start, end, points: int):
     strain, stress, disp : sampled fields (NaN outside the body)
     region : ndarray of int (n,), -1 outside
     """
-    from mesastrain.derived.readouts import sample_inside
-
     a, b = np.asarray(start, dtype=float), np.asarray(end, dtype=float)
     t = np.linspace(0.0, 1.0, int(points))
     pts = a + t[:, None] * (b - a)

@@ -216,3 +216,27 @@ def evaluate_at_points(disc: Discretisation, u: np.ndarray, elements: np.ndarray
         el = el - cell_eigenstrain[elements]
     sig = np.einsum("nijkl,nkl->nij", C[region[elements]], el) * GPA_TO_MPA
     return el, sig, disp
+
+
+# --------------------------------------------------------------------------
+# 6-component layout of symmetric tensors in fields.vtu
+# --------------------------------------------------------------------------
+#: Component names of 6-component tensors in the VTU, in order (the order VTK-based
+#: viewers expect for symmetric tensors; not the Voigt order of :mod:`mesastrain.physics.crystal`).
+VTK_TENSOR_ORDER = ("XX", "YY", "ZZ", "XY", "YZ", "XZ")
+_VTK_PAIRS = ((0, 0), (1, 1), (2, 2), (0, 1), (1, 2), (0, 2))
+
+
+def to_vtk6(t: np.ndarray) -> np.ndarray:
+    """Symmetric tensors (..., 3, 3) -> (..., 6) in the order XX, YY, ZZ, XY, YZ, XZ."""
+    return np.stack([t[..., i, j] for i, j in _VTK_PAIRS], axis=-1)
+
+
+def from_vtk6(v: np.ndarray) -> np.ndarray:
+    """(..., 6) in the order XX, YY, ZZ, XY, YZ, XZ -> symmetric tensors (..., 3, 3)."""
+    v = np.asarray(v)
+    t = np.empty(v.shape[:-1] + (3, 3), dtype=v.dtype)
+    for k, (i, j) in enumerate(_VTK_PAIRS):
+        t[..., i, j] = v[..., k]
+        t[..., j, i] = v[..., k]
+    return t

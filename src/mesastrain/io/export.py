@@ -5,7 +5,8 @@ This is the only module that imports meshio, and it does so lazily.
 Tensor layout in the VTU: symmetric tensors as 6 components in the order
 XX, YY, ZZ, XY, YZ, XZ -- the order VTK-based viewers expect for 6-component
 symmetric tensors (this differs from the Voigt order used in
-:mod:`mesastrain.physics.crystal`).
+:mod:`mesastrain.physics.crystal`); :func:`to_vtk6` and :func:`from_vtk6` are
+those of :mod:`mesastrain.fem.fields`.
 """
 
 from __future__ import annotations
@@ -16,24 +17,8 @@ from pathlib import Path
 
 import numpy as np
 
-#: Component names of 6-component tensors in the VTU, in order.
-VTK_TENSOR_ORDER = ("XX", "YY", "ZZ", "XY", "YZ", "XZ")
-_VTK_PAIRS = ((0, 0), (1, 1), (2, 2), (0, 1), (1, 2), (0, 2))
-
-
-def to_vtk6(t: np.ndarray) -> np.ndarray:
-    """Symmetric tensors (..., 3, 3) -> (..., 6) in the order XX, YY, ZZ, XY, YZ, XZ."""
-    return np.stack([t[..., i, j] for i, j in _VTK_PAIRS], axis=-1)
-
-
-def from_vtk6(v: np.ndarray) -> np.ndarray:
-    """(..., 6) in the order XX, YY, ZZ, XY, YZ, XZ -> symmetric tensors (..., 3, 3)."""
-    v = np.asarray(v)
-    t = np.empty(v.shape[:-1] + (3, 3), dtype=v.dtype)
-    for k, (i, j) in enumerate(_VTK_PAIRS):
-        t[..., i, j] = v[..., k]
-        t[..., j, i] = v[..., k]
-    return t
+# the 6-component layout is defined with the fields (derived quantities use it too)
+from mesastrain.fem.fields import VTK_TENSOR_ORDER, from_vtk6, to_vtk6  # noqa: F401
 
 
 def write_vtu(path: Path, mesh, point_data: dict, cell_data: dict) -> None:

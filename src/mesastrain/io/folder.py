@@ -15,10 +15,14 @@ from mesastrain.errors import CaseError
 from mesastrain.io.export import to_vtk6, write_json, write_vtu
 from mesastrain.fem.fields import hydrostatic, von_mises
 from mesastrain.model.regions import LayerModel
-from mesastrain.run.pipeline import Result
+from mesastrain.io.render import render_section
+from mesastrain.io.report import write_report
+from mesastrain.io.wording import CAUTION
+from mesastrain.run.result import Result
 
-CAUTION = ("Linear-elastic estimates: they do not replace measurement, qualification, "
-           "local codes or the judgement of a licensed professional.")
+__all__ = ["CAUTION", "layer_figures", "layer_summary", "summary_of", "vtu_data",
+           "write_result"]
+
 
 def layer_summary(lm: LayerModel) -> dict:
     """JSON-ready description of one resolved region."""
@@ -190,9 +194,11 @@ def write_result(res: Result, out: Path, overwrite: bool = False) -> Path:
         for d in res.derived:
             for name, writer in d.files.items():
                 writer(tmp / name)
+        if res.case.output.vtu:     # pictures the providers ask for, drawn from fields.vtu
+            for d in res.derived:
+                for name, kwargs in d.section_maps.items():
+                    render_section(tmp / "fields.vtu", tmp / name, **kwargs)
         if getattr(res.case.output, "report", False):   # last: it embeds the files above
-            from mesastrain.io.report import write_report
-
             write_report(tmp)
         if out.exists():
             old = Path(tempfile.mkdtemp(prefix=f".{out.name}.old-", dir=parent))

@@ -12,7 +12,7 @@ from pathlib import Path
 
 import numpy as np
 
-from mesastrain.io.export import VTK_TENSOR_ORDER
+from mesastrain.io.export import VTK_TENSOR_ORDER, from_vtk6
 
 #: Quantities whose colour scale is centred on zero.
 SIGNED = ("stress", "strain", "total_strain", "stress_crystal", "strain_crystal", "hydrostatic",
@@ -172,8 +172,6 @@ def map_values(mesh, name: str):
         values, c = _component(mesh, "displacement", name[-1].upper(), "point")
         return values, "point", f"displacement {c} (nm)", True
     if name in _PRINCIPAL:
-        from mesastrain.io.export import from_vtk6
-
         sig = from_vtk6(np.asarray(mesh.cell_data["stress"]))
         ev = np.linalg.eigvalsh(sig)
         values = ev[:, -1] if name == "principal_max" else ev[:, 0]

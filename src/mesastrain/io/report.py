@@ -7,25 +7,34 @@ file can be mailed or archived on its own.
 
 The body is built from :data:`SECTIONS`: functions
 ``section(summary: dict, folder: Path) -> str | None`` returning an HTML
-fragment (or None to leave the section out), listed explicitly in order; the
-warnings come first and the caution
-text (:data:`mesastrain.io.folder.CAUTION`) always closes the report.
+fragment (or None to leave the section out), listed explicitly in order
+(:mod:`mesastrain.io.report_sections`, :mod:`mesastrain.io.report_misfit`,
+:mod:`mesastrain.io.report_device`; HTML helpers in
+:mod:`mesastrain.io.markup`); the warnings come first and the caution text
+(:data:`mesastrain.io.wording.CAUTION`) always closes the report.
 """
 
 from __future__ import annotations
 
-import base64
-import html
 import json
 import logging
-import math
 from pathlib import Path
 from typing import Callable
 
-from mesastrain.derived.device import report_section as device_section
-from mesastrain.derived.misfit import report_section as misfit_section
+from mesastrain.io.markup import esc, image, mpa, num, table
+from mesastrain.io.render import standard_pictures
+from mesastrain.io.report_device import section_device
+from mesastrain.io.report_misfit import section_misfit
+from mesastrain.io.report_sections import (section_bow, section_convergence, section_headline,
+                                           section_inputs, section_pictures, section_probes,
+                                           section_stack)
+from mesastrain.io.wording import CAUTION
 
 log = logging.getLogger(__name__)
+
+__all__ = ["REPORT_NAME", "SECTIONS", "esc", "image", "mpa", "num", "render_pictures", "table",
+           "write_report"]
+
 
 REPORT_NAME = "report.html"
 
@@ -53,422 +62,10 @@ figcaption { font-size: 0.86em; color: #4d5a66; }
 """
 
 
-# --------------------------------------------------------------------------
-# small helpers
-# --------------------------------------------------------------------------
-def esc(text) -> str:
-    """HTML-escaped text."""
-    return html.escape(str(text))
-
-
-def num(v, digits: int = 4, unit: str = "") -> str:
-    """A number with ``digits`` significant digits (and a unit), '-' for missing."""
-    if v is None or (isinstance(v, float) and not math.isfinite(v)):
-        return "-"
-    if isinstance(v, bool):
-        return "yes" if v else "no"
-    if isinstance(v, (int, float)):
-        s = f"{v:.{digits}g}"
-        if "e" in s:
-            m, e = s.split("e")
-            s = f"{m}&times;10<sup>{int(e)}</sup>"
-        return s + (f" {esc(unit)}" if unit else "")
-    return esc(v)
-
-
-def table(header, rows, left: int = 1) -> str:
-    """An HTML table; the first ``left`` columns are left-aligned. Cells are HTML already."""
-    th = "".join(f'<th class="l">{h}</th>' if i < left else f"<th>{h}</th>"
-                 for i, h in enumerate(header))
-    body = "".join("<tr>" + "".join(f'<td class="l">{c}</td>' if i < left else f"<td>{c}</td>"
-                                    for i, c in enumerate(r)) + "</tr>" for r in rows)
-    return f"<table><tr>{th}</tr>{body}</table>"
-
-
-def image(path: Path, caption: str = "") -> str:
-    """A figure with the PNG embedded as a data URI ('' if the file is missing)."""
-    path = Path(path)
-    if not path.is_file():
-        return ""
-    data = base64.b64encode(path.read_bytes()).decode("ascii")
-    cap = f"<figcaption>{caption}</figcaption>" if caption else ""
-    return f'<figure><img alt="{esc(path.name)}" src="data:image/png;base64,{data}">{cap}</figure>'
-
-
-def mpa(v, digits: int = 4) -> str:
-    """A stress in MPa; round-off below 1e-3 MPa is shown as 0."""
-    if isinstance(v, (int, float)) and not isinstance(v, bool) and abs(v) < 1e-3:
-        return "0"
-    return num(v, digits)
-
-
-def _stress_pair(s) -> str:
-    if not s:
-        return "-"
-    return f"{mpa(s[0][0])} / {mpa(s[1][1])}"
-
-
-# --------------------------------------------------------------------------
-# the stack drawing
-# --------------------------------------------------------------------------
-def feature_text(pat: dict) -> str:
-    """Short description of the pattern's size, e.g. ``rectangle 600 x 600 nm``."""
-    shape = pat.get("shape", "none")
-    w, ln, d = pat.get("width"), pat.get("length"), pat.get("diameter")
-    if shape == "rectangle" and w is not None:
-        return f"rectangle {w:g} x {ln if ln is not None else w:g} nm"
-    if shape == "stripe" and w is not None:
-        return f"stripe {w:g} nm wide (along y)"
-    if shape == "disk" and d is not None:
-        return f"disk {d:g} nm across"
-    return shape + (f" {w:g} nm wide" if w is not None else "")
-
-
-def draw_stack(summary: dict, path: Path) -> Path:
-    """Schematic cross-section of the stack and pattern (layers to scale in z, labelled).
-
-    Parameters
-    ----------
-    summary : dict
-        Content of ``summary.json``.
-    path : Path
-        PNG to write.
-    """
-    import matplotlib
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
-    from matplotlib.patches import Rectangle
-
-    case = summary["case"]
-    layers = [lay for lay in summary["layers"] if lay["index"] > 0]
-    top = max(lay["z_top"] for lay in layers)
-    pat = case.get("pattern", {"shape": "none"})
-    patterned = pat.get("shape", "none") != "none"
-    etch = float(pat.get("etch_depth") or 0.0) if patterned else 0.0
-    floor = top - etch
-    sub_show = max(0.6 * top, -min(floor, 0.0) + 0.5 * top)
-    fig, ax = plt.subplots(figsize=(8.0, 3.6), dpi=110)
-    # feature drawn over x in [-1, 1] (schematic width), field around it in [-1.6, 1.6]
-    xf, xo = 1.0, 1.6
-    ax.add_patch(Rectangle((-xo, -sub_show), 2 * xo, sub_show + min(floor, 0.0) if patterned
-                           else sub_show, facecolor="#c9ced3", edgecolor="k", lw=0.8))
-    if patterned and floor < 0:
-        ax.add_patch(Rectangle((-xf, floor), 2 * xf, -floor, facecolor="#c9ced3",
-                               edgecolor="k", lw=0.8))
-    sub = summary["layers"][0]
-    ax.text(-xo + 0.05, -0.55 * sub_show, f"substrate {sub['label']} "
-            f"{sub['normal']}, x = {sub['x_axis']}\n"
-            f"{case['substrate']['thickness'] / 1e3:g} um (cut)", fontsize=8, va="center")
-    for i, lay in enumerate(layers):
-        zb, zt = lay["z_bottom"], lay["z_top"]
-        colour = f"C{i}"
-        if patterned and zt > floor:
-            lo = max(zb, floor)
-            ax.add_patch(Rectangle((-xf, lo), 2 * xf, zt - lo, facecolor=colour, alpha=0.55,
-                                   edgecolor="k", lw=0.8))
-            if zb < floor:
-                ax.add_patch(Rectangle((-xo, zb), 2 * xo, floor - zb, facecolor=colour,
-                                       alpha=0.55, edgecolor="k", lw=0.8))
-        else:
-            ax.add_patch(Rectangle((-xo, zb), 2 * xo, zt - zb, facecolor=colour, alpha=0.55,
-                                   edgecolor="k", lw=0.8))
-        strain = ""
-        if lay.get("misfit"):
-            strain = f", lattice strain {100 * lay['misfit']:+.3g} %"
-        relaxed = f", relaxed {lay['relaxed']:g}" if lay.get("relaxed") else ""
-        ax.annotate(f"{lay['name']}: {lay['label']}, {zt - zb:g} nm{strain}{relaxed}",
-                    (xo + 0.05, 0.5 * (zb + zt)), fontsize=8, va="center",
-                    annotation_clip=False)
-    if patterned:
-        what = feature_text(pat)
-        ax.annotate("", (-xf, top + 0.12 * top), (xf, top + 0.12 * top),
-                    arrowprops={"arrowstyle": "<->", "lw": 0.8})
-        ax.text(0, top + 0.16 * top, f"{what} (width not to scale)", ha="center", fontsize=8,
-                va="bottom")
-        ax.annotate("", (xf + 0.12, top), (xf + 0.12, floor),
-                    arrowprops={"arrowstyle": "<->", "lw": 0.8, "color": "0.3"})
-        ax.text(xf + 0.16, floor + 0.5 * etch, f"etch {etch:g} nm", fontsize=7, color="0.3",
-                va="center", rotation=90)
-    ax.axhline(0.0, color="0.25", lw=0.6, ls=":")
-    ax.set_xlim(-xo - 0.05, xo + 2.4)
-    ax.set_ylim(-sub_show, top * 1.45)
-    ax.set_xticks([])
-    ax.set_ylabel("z (nm), to scale")
-    ax.spines[["top", "right", "bottom"]].set_visible(False)
-    ax.set_title("Stack and pattern (cross-section)", fontsize=10)
-    fig.tight_layout()
-    fig.savefig(path)
-    plt.close(fig)
-    return path
-
-
-# --------------------------------------------------------------------------
-# sections
-# --------------------------------------------------------------------------
-def section_inputs(summary: dict, folder: Path) -> str:
-    """Inputs: substrate, layers, pattern, thermal history, mesh and solver."""
-    case = summary["case"]
-    sub = summary["layers"][0]
-    rows = [[esc(sub["name"]), esc(sub["label"]), num(case["substrate"]["thickness"], 6, "nm"),
-             esc(sub["normal"]), esc(sub["x_axis"]), "-", "-", "-"]]
-    for lay in summary["layers"][1:]:
-        th = lay.get("thermal_eigenstrain")
-        rows.append([esc(lay["name"]), esc(lay["label"]), num(lay["z_top"] - lay["z_bottom"], 6,
-                                                              "nm"),
-                     esc(lay["normal"]), esc(lay["x_axis"]), num(lay["relaxed"], 3),
-                     num(100 * lay["misfit"], 4, "%"),
-                     num(-100 * th[0][0], 4, "%") if th else "-"])
-    out = ["<h2>Inputs</h2>",
-           table(["region", "material", "thickness", "normal", "x axis", "relaxed",
-                  "lattice strain (blanket)", "thermal strain (blanket, in-plane)"], rows, 2)]
-    pat = case.get("pattern", {})
-    bits = [f"shape <b>{esc(pat.get('shape', 'none'))}</b>"]
-    for k in ("width", "length", "diameter", "etch_depth", "margin", "corner_radius",
-              "sidewall_angle", "pitch"):
-        if pat.get(k) is not None:
-            bits.append(f"{esc(k.replace('_', ' '))} {esc(pat[k])}"
-                        + ("" if k in ("sidewall_angle", "pitch") else " nm"))
-    out.append(f"<p><b>Pattern:</b> {', '.join(bits)}.</p>")
-    th = case.get("thermal")
-    if th:
-        out.append(f"<p><b>Thermal history:</b> grown at {esc(th['growth_temperature'])}, "
-                   f"used at {esc(th['final_temperature'])}; the thermal eigenstrain "
-                   f"(integrated expansion mismatch) is added to the lattice mismatch.</p>")
-    mesh, solver = summary.get("mesh", {}), summary.get("solver", {})
-    sym = summary.get("model") or {}
-    out.append(f"<p><b>Model:</b> elements of order {esc(mesh.get('order'))}, "
-               f"{num(solver.get('unknowns') or mesh.get('unknowns'), 8)} unknowns solved"
-               + (f", {esc(sym.get('model'))} model" if sym.get("model") else "")
-               + f"; solver {esc(solver.get('method'))}, relative residual "
-               f"{num(solver.get('relative_residual'), 2)}; total time "
-               f"{num(sum(summary.get('timings', {}).values()), 3, 's')}.</p>")
-    out.append('<p class="note">Conventions: sample frame z = wafer normal (up), x = the '
-               'substrate x axis; z = 0 at the substrate surface; stress in MPa, positive in '
-               'tension; lattice strain = in-plane elastic strain of the blanket layer.</p>')
-    return "\n".join(out)
-
-
-def section_stack(summary: dict, folder: Path) -> str | None:
-    """The stack drawing."""
-    png = Path(folder) / "stack.png"
-    try:
-        draw_stack(summary, png)
-    except Exception as exc:  # a drawing problem must not lose the report
-        log.warning("stack drawing failed: %s", exc)
-        return None
-    return image(png, "Layers to scale in z; the lateral size is written, not drawn to scale.")
-
-
-def section_headline(summary: dict, folder: Path) -> str | None:
-    """Per-layer headline figures: blanket vs centre, relaxation, peaks, energy, h_c."""
-    ro = summary.get("readouts")
-    if not ro:
-        return None
-    rows = []
-    for e in ro["layers"]:
-        if e["index"] == 0:
-            continue
-        rl = e.get("relaxation") or {}
-
-        def length(ax):
-            vals = [v["length"] for k, v in rl.items() if k.endswith(ax) and v]
-            return num(max(vals), 3, "nm") if vals else "-"
-
-        en = e.get("energy_per_area", {})
-        ct = e.get("critical_thickness") or {}
-        mb = ct.get("matthews_blakeslee")
-        pb = ct.get("people_bean")
-        flag = ""
-        if ct.get("exceeds_matthews_blakeslee"):
-            flag = ' <span class="sing">exceeded</span>'
-        vm = (e.get("peaks") or {}).get("von_mises", {})
-        rows.append([
-            f"{esc(e['name'])}: {esc(e['label'])}",
-            _stress_pair(e.get("blanket_stress")),
-            _stress_pair(e.get("centre_stress")),
-            num((e.get("centre_over_blanket") or {}).get("xx"), 3),
-            length("x"), length("y"),
-            num(vm.get("value"), 4),
-            f"{num(en.get('blanket'), 3)} / {num(en.get('patterned'), 3)}",
-            (num(mb, 3, "nm") if mb is not None else "-") + flag,
-            num(pb, 3, "nm") if pb is not None else "-"])
-    out = ["<h2>Headline figures</h2>",
-           table(["layer", "blanket &sigma;<sub>xx</sub> / &sigma;<sub>yy</sub> (MPa)",
-                  "centre &sigma;<sub>xx</sub> / &sigma;<sub>yy</sub> (MPa)", "centre / blanket",
-                  "relaxation length x", "relaxation length y",
-                  "peak von Mises (MPa, mesh-dependent)",
-                  "energy blanket / patterned (J/m&sup2;)", "critical thickness MB",
-                  "critical thickness PB"], rows),
-           f'<p class="note">Relaxation length: {esc(ro["relaxation_definition"])}. Energy: '
-           f'elastic energy per unit plan area of the layer. MB: Matthews &amp; Blakeslee '
-           f'(1974), single layer on a thick substrate (8&pi; form), 60&deg; dislocations; '
-           f'PB: People &amp; Bean (1985), for SiGe/Ge on Si only. Peaks are element averages '
-           f'at sharp corners: <span class="sing">singular</span>, they grow as the mesh is '
-           f'refined.</p>']
-    feats = ro.get("edges") or []
-    if feats:
-        out.append(f"<h3>Corners and edges: stress at a stand-off of "
-                   f"{num(ro['standoff'], 3, 'nm')} ({esc(ro['standoff_rule'])})</h3>")
-        out.append(_edge_table(feats))
-        out.append(f'<p class="note">{esc(ro["singular_note"])}. The element size at each '
-                   f'stand-off point is listed so that runs on different meshes can be '
-                   f'compared: a value that changes when the mesh is refined is not '
-                   f'converged.</p>')
-        coarse = [v["element_size"] for f in feats for v in f["values"].values()
-                  if v.get("element_size") and v["element_size"] > ro["standoff"]]
-        if coarse:
-            out.append(f'<p class="warn">The elements holding some stand-off points are larger '
-                       f'than the stand-off itself (up to {num(max(coarse), 3, "nm")} against '
-                       f'{num(ro["standoff"], 3, "nm")}): these values are not resolved. '
-                       f'Refine near the edges (mesh.edge_size) or state a larger stand-off '
-                       f'([readouts] standoff) before relying on them.</p>')
-    ifs = ro.get("interfaces") or []
-    if ifs:
-        rows = []
-        for it in ifs:
-            bal = it.get("balance") or {}
-            rows.append([f"{esc(it['between'][1])} on {esc(it['between'][0])}",
-                         num(it["z"], 4, "nm"), num(it.get("peel_peak"), 4),
-                         num(it.get("shear_peak"), 4),
-                         num(bal.get("peel_force_relative"), 2),
-                         num(bal.get("shear_force_relative"), 2)])
-        out.append("<h3>Interface tractions near the sidewall</h3>")
-        out.append(table(["interface", "z", "peak peel &sigma;<sub>zz</sub> (MPa)",
-                          "peak shear toward sidewall (MPa)",
-                          "net peel force / &int;|&sigma;<sub>zz</sub>|",
-                          "net shear force / &int;|&tau;|"], rows))
-        out.append(f'<p class="note">{esc(ro["traction_definition"])}. Peaks sit at the '
-                   f'sidewall, where the traction of a sharp edge is singular. A free feature '
-                   f'carries no net force across an interface, so the last two columns measure '
-                   f'the discretisation error.</p>')
-    return "\n".join(out)
-
-
-def _edge_table(feats: list) -> str:
-    """Stand-off values; entries equal on all sides (symmetric feature) are shown once."""
-    groups = {}
-    for f in feats:
-        key = (f["kind"], f["name"].split(" edge ")[0].split(" corner ")[0].split(" vertex ")[0],
-               round(f["z"], 9))
-        groups.setdefault(key, []).append(f)
-    rows = []
-    for (kind, name, z), items in groups.items():
-        sides = [next(iter(it["values"].values()), {}).get("von_mises") for it in items]
-        same = all(s is not None for s in sides) and (
-            max(sides) - min(sides) <= 1e-6 * max(abs(max(sides)), 1.0))
-        show = items[:1] if same else items
-        for it in show:
-            for region, v in it["values"].items():
-                where = "all sides" if same and len(items) > 1 else it["side"]
-                sing = '<span class="sing">singular</span>' if it["singular"] else "bounded"
-                rows.append([esc(it["name"].rsplit(" ", 1)[0]), esc(where), esc(kind), sing,
-                             esc(region), num(v["von_mises"], 4), num(v["principal_max"], 4),
-                             num(v["principal_min"], 4), num(v["peel"], 4),
-                             num(v["element_size"], 3, "nm")])
-    return table(["place", "side", "kind", "", "evaluated in", "von Mises (MPa)",
-                  "max principal (MPa)", "min principal (MPa)", "&sigma;<sub>zz</sub> (MPa)",
-                  "element size"], rows, 5)
-
-
-def section_bow(summary: dict, folder: Path) -> str | None:
-    """Wafer bow: finite elements next to Stoney and the laminate (Timoshenko) result."""
-    wb = summary.get("wafer_bow")
-    if not wb:
-        return None
-    rows = []
-    names = (("finite_element", "finite elements, free-standing wafer"),
-             ("stoney", "Stoney (1909), blanket film stress"),
-             ("stoney_with_fe_film_force", "Stoney, film force of the bent wafer"),
-             ("laminate", "laminate theory (Timoshenko 1925 for one layer)"),
-             ("timoshenko", "Timoshenko (1925) bimetal formula"))
-    for key, label in names:
-        e = wb.get(key)
-        if e:
-            rows.append([esc(label), num(e["curvature"], 4), num(e["radius"], 4),
-                         num(e["bow_height"], 4)])
-    return ("<h2>Wafer bow of the blanket stack</h2>"
-            + table(["estimate", "curvature (1/m)", "radius (m)",
-                     f"bow over {num(wb['wafer_diameter_mm'], 4)} mm (&micro;m)"], rows)
-            + f'<p class="note">{esc(wb["notes"])}. Substrate {num(wb["substrate_thickness_nm"] / 1e3, 5)} '
-              f'&micro;m, films {num(wb["film_thickness_nm"], 4)} nm in total.</p>')
-
-
-def section_probes(summary: dict, folder: Path) -> str | None:
-    """Stress at the case's probes."""
-    probes = summary.get("probes") or []
-    if not probes:
-        return None
-    rows = []
-    for p in probes:
-        s = p["stress"]
-        rows.append([esc(p["name"]), esc(", ".join(f"{v:g}" for v in p["at"])),
-                     esc(p.get("material", "")), mpa(s[0][0]), mpa(s[1][1]),
-                     mpa(s[2][2]), mpa(s[1][2], 3), mpa(s[0][2], 3), mpa(s[0][1], 3),
-                     mpa(p.get("von_mises"))])
-    return ("<h2>Probes</h2>" + table(
-        ["probe", "at (nm)", "material", "&sigma;<sub>xx</sub>", "&sigma;<sub>yy</sub>",
-         "&sigma;<sub>zz</sub>", "&sigma;<sub>yz</sub>", "&sigma;<sub>xz</sub>",
-         "&sigma;<sub>xy</sub>", "von Mises"], rows, 3)
-        + '<p class="note">MPa, sample frame, exact finite-element values at the point.</p>')
-
-
-def section_pictures(summary: dict, folder: Path) -> str | None:
-    """Maps, edge relaxation and traction plots, line cuts."""
-    folder = Path(folder)
-    parts = []
-    views = {"section": "cross-section y = 0", "edge": "close-up of the +x sidewall",
-             "plan": "plan view at mid-height of layer 1"}
-    for kind in ("section", "edge", "plan"):
-        figs = []
-        for png in sorted(folder.glob(f"map_{kind}_*.png")):
-            name = png.stem.split("_", 2)[2].replace("_", " ")
-            figs.append(image(png, f"{esc(name)}: {views[kind]}. Colour scale clipped at the "
-                                   f"99th percentile (corner peaks are singular)."))
-        if figs:
-            parts.append('<div class="gallery">' + "".join(figs) + "</div>"
-                         if kind == "plan" else "".join(figs))
-    parts.append(image(folder / "edge_relaxation.png",
-                       "Stress normal to each sidewall over its centre value, at mid-height of "
-                       "each layer (edge_relaxation.csv)."))
-    parts.append(image(folder / "interface_tractions.png",
-                       "Peel and shear traction along each interface toward the sidewall "
-                       "(interface_tractions.csv)."))
-    for c in summary.get("cuts") or []:
-        parts.append(image(folder / c["plot"], f"Line cut {esc(c['name'])} "
-                                               f"({esc(c['csv'])})."))
-    parts = [p for p in parts if p]
-    if not parts:
-        return None
-    note = summary.get("_pictures_note")
-    return "<h2>Pictures</h2>" + (f'<p class="note">{esc(note)}</p>' if note else "") + \
-        "\n".join(parts)
-
-
-def section_convergence(summary: dict, folder: Path) -> str | None:
-    """The mesh-convergence study, when the run made one (``--convergence``)."""
-    cv = summary.get("convergence")
-    if not cv or not cv.get("figures"):
-        return None
-    rows = []
-    for f in cv["figures"]:
-        vals = " / ".join(num(v, 5) for v in f.get("values", []))
-        last = f.get("relative_changes") or []
-        rows.append([esc(f["name"]), vals, num(100 * last[-1], 2, "%") if last else "-",
-                     num(f.get("observed_order"), 3), esc(f.get("verdict", ""))])
-    done = [x for x in cv.get("levels", []) if "unknowns" in x]
-    return ("<h2>Mesh dependence</h2>"
-            + f"<p>{len(done)} meshes, element sizes divided by {num(cv.get('ratio'), 3)} per "
-              f"level (unknowns {', '.join(num(x['unknowns'], 8) for x in done)}).</p>"
-            + table(["figure (MPa)", "values, coarse to fine", "last change", "observed order",
-                     "verdict"], rows)
-            + '<p class="note">A value at a sharp corner or edge does not converge: it grows '
-              'as the mesh is refined. Read stand-off values instead.</p>')
-
-
 #: Report sections in order: ``section(summary, folder) -> HTML fragment or None``.
 SECTIONS: tuple[Callable[[dict, Path], str | None], ...] = (
     section_inputs, section_stack, section_headline, section_bow, section_probes,
-    misfit_section, device_section, section_convergence, section_pictures)
+    section_misfit, section_device, section_convergence, section_pictures)
 
 
 # --------------------------------------------------------------------------
@@ -490,8 +87,6 @@ def render_pictures(folder: Path, maps) -> str | None:
     if not vtu.is_file():
         return "No maps: fields.vtu was not written (output.vtu = false)."
     try:
-        from mesastrain.io.render import standard_pictures
-
         standard_pictures(vtu, folder, tuple(maps))
     except Exception as exc:   # no OpenGL, no pyvista ...: keep the rest of the report
         log.warning("maps not drawn: %s", exc)
@@ -499,7 +94,8 @@ def render_pictures(folder: Path, maps) -> str | None:
     return None
 
 
-def write_report(folder: Path, maps=None, pictures: bool = True) -> Path:
+def write_report(folder: Path, maps=None, pictures: bool = True,
+                 sections: tuple = SECTIONS) -> Path:
     """Write ``report.html`` into a result folder.
 
     Parameters
@@ -511,14 +107,14 @@ def write_report(folder: Path, maps=None, pictures: bool = True) -> Path:
     pictures : bool
         Render the maps (pyvista, offscreen). Other pictures already in the
         folder are embedded regardless.
+    sections : tuple of callable(summary, folder) -> str or None, default: SECTIONS
+        The body, in order.
 
     Returns
     -------
     Path
         The report file.
     """
-    from mesastrain.io.folder import CAUTION
-
     folder = Path(folder)
     summary = json.loads((folder / "summary.json").read_text(encoding="utf-8"))
     if maps is None:
@@ -527,7 +123,7 @@ def write_report(folder: Path, maps=None, pictures: bool = True) -> Path:
     if note:
         summary["_pictures_note"] = note
     body = []
-    for section in SECTIONS:
+    for section in sections:
         try:
             frag = section(summary, folder)
         except Exception as exc:  # one broken section must not lose the others

@@ -9,6 +9,7 @@ from __future__ import annotations
 from mesastrain.case.outline import taper_of
 from mesastrain.case.parse import Case
 from mesastrain.mesh.grid import GridSpacing, StackLayout
+from mesastrain.model.dislocation_plan import blanket_cell
 from mesastrain.model.regions import build_layers
 from mesastrain.model.symmetry import decide
 
@@ -107,8 +108,6 @@ def layout_of(case: Case, mirrors: tuple | None = None) -> tuple[StackLayout, Gr
             lateral_cap = size
         if case.dislocations:
             # misfit dislocations in a blanket film: a periodic cell of whole line spacings
-            from mesastrain.derived.misfit import blanket_cell
-
             (W, L), lateral_cap = blanket_cell(case, lateral_cap)
             size, edge = min(size, 2.0 * lateral_cap), min(edge, lateral_cap)
             margin, margin_y, periodic = 0.0, 0.0, (0, 1)

@@ -36,6 +36,7 @@ from mesastrain.case.parse import Case
 from mesastrain.physics.crystal import Frame, sample_frame
 from mesastrain.errors import CaseError, MaterialError
 from mesastrain.physics.materials import Material, get_material
+from mesastrain.physics.thermal import thermal_mismatch_strain
 
 #: Temperature at which the materials table gives lattice constants, K.
 LATTICE_TABLE_TEMPERATURE = 300.0
@@ -156,8 +157,6 @@ def _thermal_part(case: Case, i: int, mat: Material, smat: Material, r: float,
     c axis of a hexagonal layer, whose reference follows the c chain below a
     hexagonal layer and the a chain below a cubic one).
     """
-    from mesastrain.physics.thermal import thermal_mismatch_strain
-
     t0 = LATTICE_TABLE_TEMPERATURE
     tg, tf = case.thermal.growth_temperature, case.thermal.final_temperature
     same = mat.name == smat.name and mat.x == smat.x

@@ -39,8 +39,9 @@ import numpy as np
 from mesastrain.errors import ResourceError
 from mesastrain.fem.fields import von_mises
 from mesastrain.mesh.planning import refinement_of
-from mesastrain.run.pipeline import Derived, run_case
+from mesastrain.run.pipeline import run_case
 from mesastrain.run.resources import available_memory_gb, estimate
+from mesastrain.run.result import Derived
 
 #: Element sizes are divided by this per refinement level.
 DEFAULT_RATIO = 1.5
@@ -121,7 +122,7 @@ def refined(case, factor: float):
 
 
 def study(case, levels: int = DEFAULT_LEVELS, ratio: float = DEFAULT_RATIO, progress=None,
-          max_memory_gb: float | None = None, providers=(), eigenstrain_sources=()):
+          max_memory_gb: float | None = None, providers=()):
     """Solve a case on ``levels`` meshes and assess its headline figures.
 
     Parameters
@@ -134,9 +135,9 @@ def study(case, levels: int = DEFAULT_LEVELS, ratio: float = DEFAULT_RATIO, prog
     progress : callable(str), optional
     max_memory_gb : float, optional
         Levels whose estimate exceeds this are skipped (reported).
-    providers, eigenstrain_sources : sequences of callables
-        As for :func:`mesastrain.run.pipeline.run_case`; the providers run on the
-        case's own mesh only, the eigenstrain sources on every level.
+    providers : sequence of callables
+        As for :func:`mesastrain.run.pipeline.run_case`; they run on the case's
+        own mesh only.
 
     Returns
     -------
@@ -160,8 +161,7 @@ def study(case, levels: int = DEFAULT_LEVELS, ratio: float = DEFAULT_RATIO, prog
         say(f"convergence: level {k}, element sizes / {ratio ** k:.3g}")
         t = time.perf_counter()
         res = run_case(c, progress=progress if k == 0 else None, max_memory_gb=max_memory_gb,
-                       providers=providers if k == 0 else (),
-                       eigenstrain_sources=eigenstrain_sources)
+                       providers=providers if k == 0 else ())
         if first is None:
             first = res
         info.append({"level": k, "refine": ratio ** k, "unknowns": int(res.u.size),

@@ -8,6 +8,10 @@
 :func:`run_case` chains the stages; each is a function of the previous
 stage's result. Writing the output folder is :mod:`mesastrain.io.folder`'s job.
 
+The model's eigenstrain is the regions' own plus the sheets of the case's
+misfit dislocations (:func:`mesastrain.model.dislocation_plan.dislocation_eigenstrain`),
+plus an optional ``extra_eigenstrain`` given to :func:`run_case`.
+
 Derived quantities (readouts, device physics, ...) are the ``providers`` given to
 :func:`run_case`: each entry is a function ``derive(result) -> Derived`` that
 adds entries to ``summary.json``, arrays to ``fields.vtu``, warnings, and
@@ -19,156 +23,29 @@ from __future__ import annotations
 
 import logging
 import time
-from dataclasses import dataclass, field, replace
+from dataclasses import replace
 from typing import Callable, Sequence
 
 import numpy as np
 
 from mesastrain.case.parse import Case
-from mesastrain.errors import CaseError, ResourceError, SolverError
+from mesastrain.errors import ResourceError, SolverError
 from mesastrain.fem.assembly import SymbolicCache, assemble
 from mesastrain.fem.constraints import Boundary
 from mesastrain.fem.discretisation import Discretisation
-from mesastrain.fem.fields import Fields, hydrostatic, principal, recover, von_mises
-from mesastrain.fem.solve import SolverReport, solve_model
+from mesastrain.fem.fields import hydrostatic, principal, recover, von_mises
+from mesastrain.fem.solve import solve_model
 from mesastrain.mesh.base import ModelMesh
 from mesastrain.mesh.kinds import build_mesh
 from mesastrain.mesh.unfold import unfold_model
+from mesastrain.model.dislocation_plan import dislocation_eigenstrain
 from mesastrain.model.regions import LayerModel, build_layers
-from mesastrain.model.symmetry import Symmetry, reflect_points, reflect_tensors
+from mesastrain.model.symmetry import Symmetry
 from mesastrain.model.symmetry import decide as decide_symmetry
 from mesastrain.run.resources import available_memory_gb, estimate
+from mesastrain.run.result import Derived, Result
 
 log = logging.getLogger(__name__)
-
-
-@dataclass
-class Derived:
-    """What one derived-quantity provider adds to a result.
-
-    Attributes
-    ----------
-    summary : dict
-        Top-level entries merged into ``summary.json``.
-    probe_entries : dict of str -> list
-        Per-probe entries (one list item per probe, in probe order) merged into
-        each ``summary.json`` probe.
-    cell_data, point_data : dict of str -> ndarray
-        Arrays added to ``fields.vtu`` (tensors already as 6 components).
-    warnings : list of str
-    files : dict of str -> callable(Path)
-        Extra files: name in the output folder -> function that writes it.
-    """
-
-    summary: dict = field(default_factory=dict)
-    probe_entries: dict = field(default_factory=dict)
-    cell_data: dict = field(default_factory=dict)
-    point_data: dict = field(default_factory=dict)
-    warnings: list = field(default_factory=list)
-    files: dict = field(default_factory=dict)
-
-
-@dataclass(frozen=True)
-class Result:
-    """Everything a run produced, in memory.
-
-    Attributes
-    ----------
-    case : Case
-    layers : list of LayerModel
-        Substrate first.
-    mesh : ModelMesh
-        The whole modelled body (a half or quarter model is unfolded after
-        the solve). ``mesh.mesh`` is a 3-D scikit-fem mesh (a cross-section
-        is exported as a thin slab), ``mesh.region`` the region per element.
-    disc : Discretisation
-        Of the whole body (for a mirrored model a
-        :class:`mesastrain.mesh.unfold.MirroredDiscretisation`).
-    u : ndarray (ndofs,)
-        Displacement, nm, node-major (a cross-section: per node of the section).
-    fields : Fields
-    solver : SolverReport
-    probes : list of dict
-    timings : dict of str -> float, s
-    warnings : list of str
-    derived : list of Derived
-    """
-
-    case: Case
-    layers: list
-    mesh: ModelMesh
-    disc: Discretisation
-    u: np.ndarray = field(repr=False)
-    fields: Fields = field(repr=False)
-    cell_eigenstrain: np.ndarray | None = field(default=None, repr=False)
-    solver: SolverReport = None
-    probes: list = field(default_factory=list)
-    timings: dict = field(default_factory=dict)
-    warnings: list = field(default_factory=list)
-    derived: list = field(default_factory=list)
-
-    @property
-    def order(self) -> int:
-        return self.disc.order
-
-    @property
-    def stiffness(self) -> np.ndarray:
-        """(nregions, 6, 6) sample-frame stiffness per region, GPa."""
-        return np.array([lm.stiffness_sample for lm in self.layers])
-
-    @property
-    def eigenstrain(self) -> np.ndarray:
-        """(nregions, 3, 3) sample-frame eigenstrain per region."""
-        return np.array([lm.eigenstrain_sample for lm in self.layers])
-
-    def sample(self, points: np.ndarray, key: str = "point"):
-        """Exact fields at points.
-
-        Parameters
-        ----------
-        points : array (npts, 3), nm
-        key : str
-            Name used in the error message for a point outside the body.
-
-        Returns
-        -------
-        strain : ndarray (npts, 3, 3)
-            Elastic strain, sample frame.
-        stress : ndarray (npts, 3, 3)
-            MPa, sample frame.
-        displacement : ndarray (npts, 3)
-            nm.
-        region : ndarray of int (npts,)
-            Region index (0 substrate, i layer i).
-        """
-        pts = np.atleast_2d(np.asarray(points, dtype=float))
-        mirrors = tuple(self.mesh.mirrors)
-        q, signs = reflect_points(pts, mirrors)
-        elems = self.mesh.locate(q)
-        bad = np.flatnonzero(elems < 0)
-        if bad.size:
-            raise CaseError(key, f"{pts[bad[0]].tolist()} nm lies outside the modelled body "
-                                 f"({_extent_text(self.mesh)})")
-        strain, stress, disp = self.mesh.evaluate(self.disc, self.u, elems, q, self.mesh.region,
-                                                  self.stiffness, self.eigenstrain,
-                                                  self.cell_eigenstrain)
-        if mirrors:
-            strain = reflect_tensors(strain, signs)
-            stress = reflect_tensors(stress, signs)
-            disp = disp * signs
-        return strain, stress, disp, self.mesh.region[elems]
-
-
-def _extent_text(mesh) -> str:
-    """The modelled extent in words, for error messages (mirrored axes shown whole)."""
-    b = np.array(mesh.bounds, dtype=float)
-    for a in mesh.mirrors:
-        b[a, 0] = -b[a, 1]
-    parts = []
-    for a, name in enumerate("xyz"):
-        if np.all(np.isfinite(b[a])):
-            parts.append(f"{name} in [{b[a, 0]:g}, {b[a, 1]:g}]")
-    return ", ".join(parts) + " nm"
 
 
 def build_model_mesh(case: Case, layers: list, sym: Symmetry) -> ModelMesh:
@@ -177,7 +54,7 @@ def build_model_mesh(case: Case, layers: list, sym: Symmetry) -> ModelMesh:
 
 
 def run_case(case: Case, progress=None, max_memory_gb: float | None = None,
-             providers: Sequence[Callable] = (), eigenstrain_sources: Sequence[Callable] = ()
+             providers: Sequence[Callable] = (), extra_eigenstrain: Callable | None = None
              ) -> Result:
     """Solve a case.
 
@@ -192,9 +69,11 @@ def run_case(case: Case, progress=None, max_memory_gb: float | None = None,
     providers : sequence of callable(Result) -> Derived
         Derived-quantity providers run after the solve, in order
         (:data:`mesastrain.derived.PROVIDERS` is the standard list; empty: none).
-    eigenstrain_sources : sequence of callable(case, layers, mesh) -> ndarray or None
-        Extra per-element eigenstrains, sample frame, added to the regions' own
-        (:data:`mesastrain.derived.EIGENSTRAIN_SOURCES` is the standard list).
+    extra_eigenstrain : callable(case, layers, mesh) -> ndarray or None, optional
+        A further per-element eigenstrain, (nelems, 3, 3) sample frame, added to
+        the regions' own and to the dislocation sheets (checks and studies; None
+        adds nothing). Like the sheets, it need not share the mirror planes: a
+        non-None answer on a mirrored mesh makes the run solve the whole feature.
 
     Returns
     -------
@@ -221,12 +100,13 @@ def run_case(case: Case, progress=None, max_memory_gb: float | None = None,
     sm = build_model_mesh(case, layers, sym)
     stiff = np.array([lm.stiffness_sample for lm in layers])
     eig = np.array([lm.eigenstrain_sample for lm in layers])
-    extra = _extra_eigenstrain(eigenstrain_sources, case, layers, sm)
+    extra = _cell_eigenstrain(case, layers, sm, extra_eigenstrain)
     if extra is not None and sym.mirrors:
-        # an extra source need not share the mirror planes: solve the whole feature
+        # dislocation sheets (or an extra eigenstrain) need not share the mirror planes:
+        # solve the whole feature
         sym = decide_symmetry(case, layers, extra_eigenstrain=True)
         sm = build_model_mesh(case, layers, sym)
-        extra = _extra_eigenstrain(eigenstrain_sources, case, layers, sm)
+        extra = _cell_eigenstrain(case, layers, sm, extra_eigenstrain)
     disc = sm.discretise(case.mesh.order)
     timings["mesh"] = time.perf_counter() - t
     say(f"mesh: {sm.nnodes:,} nodes, {sm.nelems:,} {sm.element_name}, order {disc.order}, "
@@ -270,13 +150,21 @@ def run_case(case: Case, progress=None, max_memory_gb: float | None = None,
     return res
 
 
-def _extra_eigenstrain(sources, case, layers, sm):
-    extra = None
-    for source in sources:
-        e = source(case, layers, sm)
-        if e is not None:
-            extra = e if extra is None else extra + e
-    return extra
+def _cell_eigenstrain(case, layers, sm, extra_eigenstrain=None):
+    """Per-element eigenstrain beyond the regions' own: dislocation sheets + the extra one.
+
+    Returns
+    -------
+    ndarray (nelems, 3, 3) or None
+        Sample frame; None when there is neither.
+    """
+    parts = [dislocation_eigenstrain(case, layers, sm)]
+    if extra_eigenstrain is not None:
+        parts.append(extra_eigenstrain(case, layers, sm))
+    parts = [e for e in parts if e is not None]
+    if not parts:
+        return None
+    return parts[0] if len(parts) == 1 else parts[0] + parts[1]
 
 
 def model_summary(sm, sym: Symmetry, disc: Discretisation) -> dict:

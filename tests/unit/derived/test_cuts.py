@@ -6,7 +6,8 @@ import numpy as np
 import pytest
 
 from mesastrain.case.parse import DEFAULT_CUT_COMPONENTS, parse_case
-from mesastrain.derived.cuts import components, safe_name
+from mesastrain.derived.cuts import components
+from mesastrain.units import safe_name
 from mesastrain.errors import CaseError
 from mesastrain.io.folder import write_result
 from mesastrain.derived import solve_and_derive

@@ -49,8 +49,8 @@ def blanket(substrate="SiGe", sub_x=0.2, layer="Si", layer_x=None, normal=(0, 0,
     return d
 
 
-def run(d: dict, sources=()):
-    return pipeline.run_case(parse_case(d), providers=PROVIDERS, eigenstrain_sources=sources)
+def run(d: dict, extra=None):
+    return pipeline.run_case(parse_case(d), providers=PROVIDERS, extra_eigenstrain=extra)
 
 
 def summary(res) -> dict:
@@ -223,7 +223,7 @@ def test_channel_along_110_under_uniaxial_stress(kind, monkeypatch):
     d = blanket(substrate="Si", sub_x=None,
                 channel=[{"name": "along", "direction": [1, 0], "carrier": kind},
                          {"name": "cube", "direction": [1, 1], "carrier": kind}])
-    s = summary(run(d, sources=[_uniaxial_source(100.0)]))
+    s = summary(run(d, extra=_uniaxial_source(100.0)))
     p = s["probes"][0]
     assert np.allclose(p["stress"], np.diag([100.0, 0.0, 0.0]), atol=1e-3)
     c = piezo_coefficients(f"{kind}-Si")
@@ -292,7 +292,7 @@ def test_pdp_choice_is_used():
 
 
 def test_cut_csv_and_report(tmp_path):
-    from mesastrain.derived.device import report_text
+    from mesastrain.io.report_device import report_text
 
     d = blanket(cut=[{"name": "down", "from": [0, 0, 20], "to": [0, 0, -10], "points": 7}])
     res = run(d)
@@ -310,10 +310,10 @@ def test_cut_csv_and_report(tmp_path):
     text = report_text(summ, out)
     assert "Raman" in text and "cm^-1" in text and "delta_z" in text
     from mesastrain.io import report
-    from mesastrain.derived.device import report_section
+    from mesastrain.io.report_device import section_device
 
-    assert report_section in report.SECTIONS
-    html = report_section(summ, out)
+    assert section_device in report.SECTIONS
+    html = section_device(summ, out)
     assert "<h2>Device readouts" in html and "p_x" in html and "cut_down_device.csv" in html
 
 

@@ -1,11 +1,12 @@
-"""Tests of mesastrain.derived.misfit: dislocations as eigenstrain sheets in the FE model.
+"""Tests of dislocations as eigenstrain sheets in the FE model (mesastrain.model.volterra,
+mesastrain.model.dislocation_plan) and of their readout (mesastrain.derived.misfit).
 
 The finite-element field of the sheets is compared with published closed-form
 solutions of straight dislocations (REFERENCES.md 5a and 9b), computed by
 mesastrain.physics.dislocations (itself tested against the tables and matscipy in
 test_dislocations.py) and, for the anisotropic case, by matscipy directly.
 
-Model of the straight-line checks (PrismModel): a block one element thick
+Model of the straight-line checks (PrismModel, prism_model.py beside this file): a block one element thick
 along the line whose two end faces share their displacement (the field does
 not depend on the coordinate along the line: zero axial strain, all three
 displacement components free, as in the closed-form solutions), embedded in
@@ -21,11 +22,15 @@ import pytest
 
 from mesastrain.physics import dislocations as dl
 from mesastrain.derived import misfit as mf
+from mesastrain.io.report_misfit import section_misfit
+from mesastrain.model import dislocation_plan as plan
+from mesastrain.model import volterra as vt
 from mesastrain.case.parse import parse_case
 from mesastrain.physics.crystal import Frame, voigt_to_full
 from mesastrain.errors import CaseError, MesastrainError
 from mesastrain.mesh.grid import join_segments
 from mesastrain.model.regions import build_layers
+from prism_model import PrismModel
 
 MU, NU = 50.0, 0.3          # REFERENCES 5a test constants (any consistent unit: GPa here)
 # Si: C11, C12, C44 = 165.7, 63.9, 79.6 GPa (Hopcroft, Nix & Kenny, J. MEMS 19, 229 (2010),
@@ -52,7 +57,7 @@ def block(bl, core_axis_planes=True, R=40.0, h=0.5, growth=1.05):
     h, R = h * bl, R * bl
     xs = join_segments([-R, 0.0, R], [None, h, None], [R, R], growth)
     ys = join_segments([-R, -h / 2, h / 2, R], [None, h, h, None], [R, h, R], growth)
-    return mf.PrismModel(xs, ys, [0.0, h], axis=2), h
+    return PrismModel(xs, ys, [0.0, h], axis=2), h
 
 
 def ring(pm, bl, r0=5.0, r1=20.0):
@@ -63,7 +68,7 @@ def ring(pm, bl, r0=5.0, r1=20.0):
 
 def embedded_solve(pm, d, c6, line, displacement):
     """Solve with the sheet of ``line`` and the closed-form displacement on the outer faces."""
-    eig = mf.lines_eigenstrain([line], pm.lo, pm.hi)
+    eig = vt.lines_eigenstrain([line], pm.lo, pm.hi)
     outer = np.unique(np.concatenate([pm.boundary_nodes(f) for f in ("x-", "x+", "y-", "y+")]))
     u = pm.solve(c6, cell_eigenstrain=eig,
                  fixed=[(outer, (0, 1, 2), displacement(pm.node_points[outer]))])
@@ -83,9 +88,9 @@ def test_sheet_fractions_are_exact_for_oblique_lines():
         t = np.radians(angle)
         xi = np.array([np.cos(t), np.sin(t), 0.0])
         d = dl.Dislocation(xi=xi, b=[0.1, 0.2, 0.3], point=[0.3, -0.2, -1.0])
-        line = mf.CutLine(d, cut=[0, 0, 1])
+        line = vt.VolterraLine(d, half_plane=[0, 0, 1])
         w = 1.3
-        frac = mf._sheet_fractions(line, lo, hi, w)
+        frac = vt._sheet_fractions(line, lo, hi, w)
         n = 400
         g = (np.arange(n) + 0.5) / n
         nu = line.normal
@@ -107,11 +112,11 @@ def test_sheet_carries_the_whole_burgers_vector():
     zs = np.linspace(-3.0, 5.0, 9)
     from skfem import MeshHex
 
-    lo, hi = mf.brick_bounds(MeshHex.init_tensor(xs, ys, zs))
+    lo, hi = vt.brick_bounds(MeshHex.init_tensor(xs, ys, zs))
     xi = np.array([np.cos(0.4), np.sin(0.4), 0.0])
     d = dl.Dislocation(xi=xi, b=[0.2, -0.1, 0.35], point=[0.4, 0.7, 0.0])
-    line = mf.CutLine(d, cut=[0, 0, 1])
-    eig = mf.sheet_eigenstrain(line, lo, hi, width=0.9)
+    line = vt.VolterraLine(d, half_plane=[0, 0, 1])
+    eig = vt.sheet_eigenstrain(line, lo, hi, width=0.9)
     vol = np.prod(hi - lo, axis=1)
     total = np.einsum("n,nij->ij", vol, eig)
     # trace of the line through the rectangle [xs0, xs1] x [ys0, ys1] (the sheet is
@@ -126,16 +131,16 @@ def test_sheet_carries_the_whole_burgers_vector():
     assert np.allclose(total, want, rtol=1e-9, atol=1e-12 * np.abs(want).max())
 
 
-def test_cut_line_checks():
+def test_volterra_line_checks():
     d = dl.Dislocation(xi=[0, 0, 1], b=[1.0, 0, 0])
     with pytest.raises(MesastrainError, match="grid axis"):
-        mf.CutLine(d, cut=[1, 1, 0])
+        vt.VolterraLine(d, half_plane=[1, 1, 0])
     with pytest.raises(MesastrainError, match="normal to the line"):
-        mf.CutLine(d, cut=[0, 0, 1])
+        vt.VolterraLine(d, half_plane=[0, 0, 1])
     with pytest.raises(MesastrainError, match="width"):
-        mf.CutLine(d, cut=[1, 0, 0], width=-1.0)
+        vt.VolterraLine(d, half_plane=[1, 0, 0], width=-1.0)
     # J = -b across nu = xi x d (see the module docstring)
-    line = mf.CutLine(d, cut=[-1, 0, 0])
+    line = vt.VolterraLine(d, half_plane=[-1, 0, 0])
     assert np.allclose(line.normal, [0, -1, 0]) and np.allclose(line.jump, [-1, 0, 0])
 
 
@@ -151,7 +156,7 @@ def test_isotropic_block_matches_hirth_lothe(kind):
     d = dl.Dislocation(xi=[0, 0, 1], b=[b, 0, 0] if kind == "edge" else [0, 0, b])
     c6 = dl.isotropic_stiffness(MU, NU)
     pm, h = block(b)
-    line = mf.CutLine(d, cut=[-1, 0, 0], width=h)     # the closed form's own cut
+    line = vt.VolterraLine(d, half_plane=[-1, 0, 0], width=h)     # the closed form's own half-plane
     sig, _, _ = embedded_solve(pm, d, c6, line,
                                lambda p: dl.isotropic_fields(d, p, MU, NU)[1])
     sel = ring(pm, b)
@@ -185,12 +190,12 @@ def test_sixty_degree_in_silicon_matches_matscipy(cut):
     assert dl.character_angle(d) == pytest.approx(60.0)
     pm, h = block(bl)
     if cut == "closed-form cut":
-        line = mf.CutLine(d, cut=[-1, 0, 0], width=h)
+        line = vt.VolterraLine(d, half_plane=[-1, 0, 0], width=h)
 
         def disp(p):
             return dl.anisotropic_fields(d, p, c6)[1]
     else:
-        line = mf.CutLine(d, cut=[0, 1, 0], width=h)
+        line = vt.VolterraLine(d, half_plane=[0, 1, 0], width=h)
 
         def disp(p):
             u = dl.anisotropic_fields(d, p, c6)[1]
@@ -220,11 +225,11 @@ def test_screw_below_free_surface_has_its_image_and_no_surface_traction():
     h, R = 0.5, 40.0
     xs = join_segments([-R, -h / 2, h / 2, R], [None, h, h, None], [R, h, R], 1.05)
     ys = join_segments([-R, 0.0, D], [None, h, h], [R, h], 1.05)
-    pm = mf.PrismModel(xs, ys, [0.0, h], axis=2)
+    pm = PrismModel(xs, ys, [0.0, h], axis=2)
     c6 = dl.isotropic_stiffness(MU, NU)
     d = dl.Dislocation(xi=[0, 0, 1], b=[0, 0, b])
     image = dl.Dislocation(xi=[0, 0, 1], b=[0, 0, -b], point=[0, 2 * D, 0])
-    line = mf.CutLine(d, cut=[0, 1, 0], width=h)
+    line = vt.VolterraLine(d, half_plane=[0, 1, 0], width=h)
 
     def exact(p):
         s1, u1 = dl.isotropic_fields(d, p, MU, NU)
@@ -233,7 +238,7 @@ def test_screw_below_free_surface_has_its_image_and_no_surface_traction():
         u[(p[:, 0] < 0) & (p[:, 1] >= 0)] -= d.b      # cut moved to {x = 0, y > 0}
         return s1 + s2, u
 
-    eig = mf.lines_eigenstrain([line], pm.lo, pm.hi)
+    eig = vt.lines_eigenstrain([line], pm.lo, pm.hi)
     far = np.unique(np.concatenate([pm.boundary_nodes(f) for f in ("x-", "x+", "y-")]))
     u = pm.solve(c6, cell_eigenstrain=eig,
                  fixed=[(far, (0, 1, 2), exact(pm.node_points[far])[1])])
@@ -293,12 +298,12 @@ def test_sige_array_relaxes_film_by_b_edge_over_spacing():
     zs = join_segments([-2 * L, 0.0, t], [None, 1.5, 1.5], [L / 4, 1.5], 1.15)
     zc = 0.5 * (zs[1:] + zs[:-1])
     group = np.repeat((zc > 0).astype(int), len(xs) - 1)      # x fastest, one y cell
-    pm = mf.PrismModel(xs, [0.0, 1.5], zs, axis=1, group=group)
+    pm = PrismModel(xs, [0.0, 1.5], zs, axis=1, group=group)
     stiff = np.array([sub.stiffness_sample, film.stiffness_sample])
     eig0 = np.array([sub.eigenstrain_sample, film.eigenstrain_sample])
-    lines = [mf.CutLine(dl.Dislocation(d0.xi, b, ((k + 0.5) * S - L / 2, 0.0, 0.0)),
-                        cut=[0, 0, 1]) for k in range(n_lines)]
-    sheets = mf.lines_eigenstrain(lines, pm.lo, pm.hi)
+    lines = [vt.VolterraLine(dl.Dislocation(d0.xi, b, ((k + 0.5) * S - L / 2, 0.0, 0.0)),
+                             half_plane=[0, 0, 1]) for k in range(n_lines)]
+    sheets = vt.lines_eigenstrain(lines, pm.lo, pm.hi)
     held = [(pm.boundary_nodes("x-"), (0,), 0.0), (pm.boundary_nodes("x+"), (0,), 0.0),
             (pm.boundary_nodes("z-"), (1, 2), 0.0)]
     inside = group == 1
@@ -422,8 +427,8 @@ def test_blanket_surface_is_traction_free_but_overlay_is_not():
     case, res = _blanket_run(0.15, size="2 nm")
     d = _dislocation_part(res)
     sm = res.mesh
-    lo, hi = mf.model_bounds(sm)
-    fams, _, _ = mf._families_of(case, res.layers, sm)
+    lo, hi = plan.model_bounds(sm)
+    fams, _, _ = plan.families_of(case, res.layers, sm)
     w = fams[0].lines[0].width
     c = 0.5 * (lo + hi)
     top_z = np.sort(np.unique(np.round(c[:, 2], 9)))[-2:]
@@ -467,11 +472,11 @@ def test_output_folder_and_report(tmp_path):
     assert "dislocation_stress" in summary["probes"][0]
     header = (out / "cut_c_dislocations.csv").read_text().splitlines()[0]
     assert "dislocation_infinite_medium_stress_xz_MPa" in header
-    html = mf.report_section(summary, out)
+    html = section_misfit(summary, out)
     assert "Misfit dislocations" in html and "data:image/png" in html
     from mesastrain.io import report
 
-    assert mf.report_section in report.SECTIONS
+    assert section_misfit in report.SECTIONS
 
 
 def test_relaxation_needs_a_mismatch():
@@ -495,10 +500,10 @@ def test_mirrored_model_asks_for_the_whole_feature():
         mirrors = (0,)
         nelems = 7
 
-    out = mf.eigenstrain_source(case, layers, Half())
+    out = plan.dislocation_eigenstrain(case, layers, Half())
     assert out.shape == (7, 3, 3) and not out.any()
     plain = parse_case({k: v for k, v in case.to_dict().items() if k != "dislocations"})
-    assert mf.eigenstrain_source(plain, layers, Half()) is None
+    assert plan.dislocation_eigenstrain(plain, layers, Half()) is None
 
 
 @pytest.mark.parametrize("etch, warned", [("10 nm", True), ("40 nm", False)])
@@ -513,6 +518,6 @@ def test_lines_ending_on_roller_faces_are_flagged(etch, warned):
                  pattern={"shape": "rectangle", "width": "100 nm", "etch_depth": etch})
     layers = build_layers(case)
     sm = build_stack_mesh(*layout_of(case, mirrors=()))
-    lo, hi = mf.model_bounds(sm)
-    fams = mf.resolve_families(case, layers, sm.layer, lo, hi, sm.boundary())
+    lo, hi = plan.model_bounds(sm)
+    fams = plan.resolve_families(case, layers, sm.layer, lo, hi, sm.boundary())
     assert bool(mf._roller_ends(fams[0], sm, lo, hi)) is warned

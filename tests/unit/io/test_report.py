@@ -7,7 +7,8 @@ import pytest
 
 from mesastrain.io import report
 from mesastrain.case.parse import parse_case
-from mesastrain.io.folder import CAUTION, write_result
+from mesastrain.io.folder import write_result
+from mesastrain.io.wording import CAUTION
 from mesastrain.derived import solve_and_derive
 
 CASE = {
@@ -59,15 +60,15 @@ def test_report_has_what_an_engineer_reads(folder):
 
 
 @pytest.mark.slow
-def test_sections_registry(folder, monkeypatch):
+def test_sections_registry(folder):
     def extra(summary, path):
         return f"<h2>Extra section</h2><p>{report.esc(summary['title'])}</p>"
 
     def broken(summary, path):
         raise RuntimeError("boom")
 
-    monkeypatch.setattr(report, "SECTIONS", report.SECTIONS + (extra, broken))
-    out = report.write_report(folder, pictures=False)
+    out = report.write_report(folder, pictures=False,
+                              sections=report.SECTIONS + (extra, broken))
     html = out.read_text(encoding="utf-8")
     assert "<h2>Extra section</h2><p>report check: SiGe island</p>" in html
     assert "could not be written: boom" in html and report.esc(CAUTION) in html

@@ -1,0 +1,219 @@
+"""Peaks, free edges and corners of the feature, and the stress at a stand-off from them.
+
+Where an interface meets the sidewall and where the sidewall meets the etch
+floor, linear elasticity gives a singular stress: the peak there grows under
+mesh refinement. The readout is the stress at a stated stand-off distance
+from each such feature, with the element size there.
+
+Units: stress MPa, lengths nm, sample frame.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from mesastrain.derived.sampling import (directions, element_size_at, etch_floor, sample_inside,
+                                         sidewall_distance)
+from mesastrain.fem.fields import hydrostatic, principal, von_mises
+
+__all__ = [
+    "SINGULAR_NOTE",
+    "default_standoff",
+    "edge_features",
+    "free_edge_interfaces",
+    "nearest_feature",
+    "region_peaks",
+    "standoff_values",
+]
+
+
+SINGULAR_NOTE = ("stress at a sharp reentrant corner or where a bimaterial interface meets a "
+                 "free surface is singular in linear elasticity: a peak there grows under mesh "
+                 "refinement and is never a converged number; compare the values at the stated "
+                 "stand-off distance between runs")
+
+
+# --------------------------------------------------------------------------
+# peaks
+# --------------------------------------------------------------------------
+def region_peaks(res, region: int, centres: np.ndarray) -> dict:
+    """Peak von Mises, principal and hydrostatic element stresses of one region (MPa)."""
+    m = np.flatnonzero(res.mesh.layer == region)
+    if m.size == 0:
+        return {}
+    sig = res.fields.cell_stress[m]
+    vm = von_mises(sig)
+    pr = principal(sig)
+    hy = hydrostatic(sig)
+
+    def at(k):
+        return [float(v) for v in centres[m[k]]]
+
+    i_vm, i_pmax, i_pmin = int(np.argmax(vm)), int(np.argmax(pr[:, 0])), int(np.argmin(pr[:, 2]))
+    i_hmax, i_hmin = int(np.argmax(hy)), int(np.argmin(hy))
+    return {
+        "von_mises": {"value": float(vm[i_vm]), "at": at(i_vm)},
+        "principal_max": {"value": float(pr[i_pmax, 0]), "at": at(i_pmax)},
+        "principal_min": {"value": float(pr[i_pmin, 2]), "at": at(i_pmin)},
+        "hydrostatic_max": {"value": float(hy[i_hmax]), "at": at(i_hmax)},
+        "hydrostatic_min": {"value": float(hy[i_hmin]), "at": at(i_hmin)},
+    }
+
+
+# --------------------------------------------------------------------------
+# free edges and corners, stand-off values
+# --------------------------------------------------------------------------
+def _differs(a, b) -> bool:
+    """True when two regions differ in stiffness or eigenstrain (an interface is singular)."""
+    return (not np.allclose(a.stiffness_sample, b.stiffness_sample, rtol=1e-9, atol=1e-9)
+            or not np.allclose(a.eigenstrain_sample, b.eigenstrain_sample, rtol=1e-9,
+                               atol=1e-12))
+
+
+def free_edge_interfaces(res) -> list[tuple[int, float]]:
+    """(index k, z) of interfaces z_k that reach the sidewall: floor <= z_k < top.
+
+    Interface k lies between region k (below) and k + 1 (above).
+    """
+    floor = etch_floor(res)
+    if floor is None:
+        return []
+    zs = res.case.interfaces
+    top = res.case.top
+    tol = 1e-9 * max(top, 1.0)
+    return [(k, float(z)) for k, z in enumerate(zs[:-1]) if z >= floor - tol and z < top - tol]
+
+
+def edge_features(res, standoff: float) -> list[dict]:
+    """Singular and near-singular places of the feature with their stand-off points.
+
+    Each item: ``name``, ``kind``, ``singular`` (bool), ``at`` (the edge or
+    corner point, nm), ``points`` (label -> stand-off point, nm) and ``note``.
+    """
+    floor = etch_floor(res)
+    if floor is None:
+        return []
+    layers = res.layers
+    feats = []
+    tol = 1e-9 * max(res.case.top, 1.0)
+    ifaces = free_edge_interfaces(res)
+    floor_on_interface = any(abs(z - floor) <= tol for _, z in ifaces)
+    eps = 1e-6 * max(standoff, 1.0)
+    for label, d, _ in directions():
+        for k, z in ifaces:
+            ext = sidewall_distance(res, d, z + eps)
+            if ext is None:
+                continue
+            below, above = layers[k], layers[k + 1]
+            edge = np.array([d[0] * ext, d[1] * ext, z])
+            inward = np.array([-d[0], -d[1], 0.0])
+            p = edge + standoff * inward
+            at_floor = abs(z - floor) <= tol
+            sing = _differs(below, above) or at_floor
+            kind = ("reentrant corner at an interface (sidewall meets etch floor)" if at_floor
+                    else "interface meets sidewall (free edge)")
+            feats.append({
+                "name": f"{above.name}/{below.name} edge {label}", "kind": kind,
+                "singular": bool(sing), "at": edge.tolist(), "side": label, "z": z,
+                "points": {above.name: (p + [0, 0, eps]).tolist(),
+                           below.name: (p - [0, 0, eps]).tolist()},
+                "direction": "along the interface, into the feature",
+            })
+        if not floor_on_interface:
+            ext = sidewall_distance(res, d, floor + eps)
+            if ext is None:
+                continue
+            edge = np.array([d[0] * ext, d[1] * ext, floor])
+            p = edge + standoff * np.array([-d[0], -d[1], -1.0]) / np.sqrt(2.0)
+            region = int(np.searchsorted(np.asarray(res.case.interfaces[:-1]), floor - eps,
+                                         side="right"))
+            feats.append({
+                "name": f"etch-floor corner {label}", "kind": "reentrant corner (sidewall meets "
+                "etch floor)", "singular": True, "at": edge.tolist(), "side": label, "z": floor,
+                "points": {layers[region].name: p.tolist()},
+                "direction": "bisector of the 270 degree material angle",
+            })
+    pat = res.case.pattern
+    sharp = not (getattr(pat, "corner_radius", None) or getattr(pat, "sidewall_angle", None))
+    if pat.shape == "rectangle" and sharp:
+        hx, hy = pat.width / 2.0, pat.length / 2.0
+        for sx in (1, -1):
+            for sy in (1, -1):
+                lab = f"({'+' if sx > 0 else '-'}x,{'+' if sy > 0 else '-'}y)"
+                diag = np.array([-sx, -sy, 0.0]) / np.sqrt(2.0)
+                for k, z in ifaces:
+                    below, above = layers[k], layers[k + 1]
+                    corner = np.array([sx * hx, sy * hy, z])
+                    p = corner + standoff * diag
+                    feats.append({
+                        "name": f"{above.name}/{below.name} corner {lab}",
+                        "kind": "interface meets a vertical mesa corner (3-D vertex)",
+                        "singular": bool(_differs(below, above) or abs(z - floor) <= tol),
+                        "at": corner.tolist(), "side": lab, "z": z,
+                        "points": {above.name: (p + [0, 0, eps]).tolist(),
+                                   below.name: (p - [0, 0, eps]).tolist()},
+                        "direction": "along the in-plane diagonal, into the feature"})
+                if not floor_on_interface:
+                    corner = np.array([sx * hx, sy * hy, floor])
+                    p = corner + standoff * np.array([-sx, -sy, -1.0]) / np.sqrt(3.0)
+                    region = int(np.searchsorted(np.asarray(res.case.interfaces[:-1]),
+                                                 floor - eps, side="right"))
+                    feats.append({
+                        "name": f"etch-floor vertex {lab}",
+                        "kind": "reentrant 3-D vertex (mesa corner meets etch floor)",
+                        "singular": True, "at": corner.tolist(), "side": lab, "z": floor,
+                        "points": {layers[region].name: p.tolist()},
+                        "direction": "into the substrate, equally inward in x, y and down"})
+    return feats
+
+
+def standoff_values(res, feats: list[dict]) -> list[dict]:
+    """Evaluate the stress at every stand-off point of :func:`edge_features`."""
+    keys, pts = [], []
+    for i, f in enumerate(feats):
+        for side, p in f["points"].items():
+            keys.append((i, side))
+            pts.append(p)
+    if not pts:
+        return []
+    pts = np.array(pts)
+    _, sig, _, region = sample_inside(res, pts)
+    h = element_size_at(res, pts)
+    out = [dict(f, values={}) for f in feats]
+    for (i, side), p, s, r, hk in zip(keys, pts, sig, region, h):
+        if r < 0:
+            continue
+        pr = principal(s)
+        out[i]["values"][side] = {
+            "at": p.tolist(), "stress": s, "von_mises": float(von_mises(s)),
+            "principal_max": float(pr[0]), "principal_min": float(pr[2]),
+            "hydrostatic": float(hydrostatic(s)),
+            "peel": float(s[2, 2]),
+            "element_size": float(hk)}
+    for f in out:
+        f.pop("points", None)
+    return out
+
+
+def nearest_feature(point, feats: list[dict]) -> tuple[str | None, float]:
+    """Name of the feature (edge line point or corner) closest to ``point`` and the distance."""
+    if not feats:
+        return None, float("nan")
+    p = np.asarray(point, dtype=float)
+    best, dist = None, np.inf
+    for f in feats:
+        a = np.asarray(f["at"], dtype=float)
+        if f["side"] in ("+x", "-x"):
+            dd = np.hypot(p[0] - a[0], p[2] - a[2])        # an edge line along y
+        elif f["side"] in ("+y", "-y"):
+            dd = np.hypot(p[1] - a[1], p[2] - a[2])        # an edge line along x
+        else:
+            dd = np.linalg.norm(p - a)
+        if dd < dist:
+            best, dist = f, dd
+    return best["name"], float(dist)
+
+
+def default_standoff(case) -> float:
+    """Stand-off distance used when ``[readouts] standoff`` is not given: half the thinnest layer."""
+    return 0.5 * min(layer.thickness for layer in case.layers)
