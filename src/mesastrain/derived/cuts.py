@@ -3,9 +3,9 @@
 Each cut is sampled at ``points`` equally spaced points from ``from`` to ``to``
 with the exact finite-element fields (``res.sample``). The CSV holds, per
 point, the distance along the cut, the coordinates, the region and its
-material, and every component of :data:`mesastrain.case.parse.FIELD_COMPONENTS`
+material, and every component of :data:`mesastrain.case.schema.FIELD_COMPONENTS`
 with its unit in the column name. The plot shows the cut's ``components``
-(default :data:`mesastrain.case.parse.DEFAULT_CUT_COMPONENTS`), one panel per
+(default :data:`mesastrain.case.schema.DEFAULT_CUT_COMPONENTS`), one panel per
 unit, with the layer boundaries crossed by the cut drawn as vertical lines.
 
 Stress in MPa (positive in tension), strain dimensionless (plotted in %),
@@ -20,7 +20,7 @@ from pathlib import Path
 
 import numpy as np
 
-from mesastrain.case.parse import FIELD_COMPONENTS
+from mesastrain.case.schema import FIELD_COMPONENTS
 from mesastrain.fem.fields import hydrostatic, principal, von_mises
 from mesastrain.run.pipeline import Derived
 
@@ -55,7 +55,7 @@ def components(strain: np.ndarray, stress: np.ndarray, disp: np.ndarray,
     disp : ndarray (n, 3)
         Displacement, nm.
     names : sequence of str
-        Names from :data:`mesastrain.case.parse.FIELD_COMPONENTS`.
+        Names from :data:`mesastrain.case.schema.FIELD_COMPONENTS`.
 
     Returns
     -------

@@ -364,7 +364,7 @@ def solve(mesh, regions, region_of_cell=None, *, rotations=None, eigenstrain=Non
     if not b.supports and b.pin == (0, 1, 2):
         u, rep = _solve_free(K, f, disc, method, tol, max_iterations)
     else:
-        from mesastrain.case.parse import SolverSettings
+        from mesastrain.case.types import SolverSettings
 
         u, rep = solve_model(K, f, disc, b, SolverSettings(method, tol, max_iterations))
     fl = recover(disc, u, sm.layer, stiff, eig, sm.nnodes, skm.t, extra)

@@ -25,7 +25,7 @@ from typing import Callable, Sequence
 import numpy as np
 
 from mesastrain.fem.assembly import Discretisation, assemble, rigid_body_modes
-from mesastrain.case.parse import Case
+from mesastrain.case.types import Case
 from mesastrain.errors import CaseError, ResourceError, SolverError
 from mesastrain.fem.fields import Fields, evaluate_at_points, hydrostatic, principal, recover, von_mises
 from mesastrain.fem.discretisation import discretise_mesh

@@ -6,7 +6,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from mesastrain.case.parse import Case
+from mesastrain.case.types import Case
 from mesastrain.mesh.structured import GridSpacing, StackGeometry, axis_coordinates
 from mesastrain.fem.solve import choose_method
 

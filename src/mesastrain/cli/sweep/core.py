@@ -99,7 +99,8 @@ from pathlib import Path
 import numpy as np
 
 from mesastrain import __version__
-from mesastrain.case.parse import Case, parse_case
+from mesastrain.case.parse import parse_case
+from mesastrain.case.types import Case
 from mesastrain.errors import CaseError, MesastrainError
 from mesastrain.units import is_number, parse_length, parse_temperature, show_value
 
