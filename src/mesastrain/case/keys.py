@@ -66,6 +66,10 @@ class Key:
         Attribute of the dataclass that holds the value, when not ``name``.
     echo_if
         ``item -> bool``: echo the key only when true (default: always).
+    shapes : tuple of str
+        ``[pattern]`` keys: the shapes that take the key (empty: every shape).
+    required_for : tuple of (str, str)
+        ``[pattern]`` keys: (shape, what to give) for the shapes that require it.
     """
 
     name: str
@@ -76,6 +80,8 @@ class Key:
     computed: str = ""
     attr: str = ""
     echo_if: Callable | None = None
+    shapes: tuple = ()
+    required_for: tuple = ()
 
     @property
     def field(self) -> str:

@@ -281,7 +281,7 @@ class _Parser:
         shape = t["shape"]
         allowed = SHAPE_KEYS[shape]
         for name in t:
-            if name in ("shape", "symmetry") or name in allowed:
+            if not PATTERN.key(name).shapes or name in allowed:
                 continue
             if shape == "none":
                 raise CaseError(f"{key}.{name}", 'only for patterned shapes; remove it or '
@@ -291,7 +291,7 @@ class _Parser:
                     (shape, name) == ("stripe", "length") else
                     "allowed for " + ", ".join(f'"{s}"' for s in takers))
             raise CaseError(f"{key}.{name}", f'not a key of shape = "{shape}"; {hint}')
-        for name, what in SHAPE_REQUIRES.get(shape, ()):
+        for name, what in SHAPE_REQUIRES[shape]:
             if name not in t:
                 raise rd.missing(f"{key}.{name}", what)
         if shape == "mesh":

@@ -34,7 +34,8 @@ from mesastrain.physics.raman import device_parameters, pdp_sets
 from mesastrain.units import LENGTH_UNITS, TEMPERATURE_UNITS
 
 __all__ = [
-    "CARRIERS", "DEFAULT_CUT_COMPONENTS", "DEFAULT_MAPS", "FIELD_COMPONENTS", "INSIDE_RTOL",
+    "CARRIERS", "DEFAULT_CUT_COMPONENTS", "DEFAULT_MAPS", "FEATURE_SHAPES", "FIELD_COMPONENTS",
+    "INSIDE_RTOL",
     "PATTERN_SHAPES", "SCHEMA_FILE", "SCHEMA_VERSION", "SHAPE_KEYS",
     "SHAPE_REQUIRES", "SIDEWALL_ANGLE_RANGE", "SOLVER_METHODS", "SOLVER_PRECISIONS",
     "SYMMETRY_CHOICES", "TABLES", "TITLE", "TOP_KEYS", "default_order", "json_schema",
@@ -46,27 +47,8 @@ __all__ = [
 # --------------------------------------------------------------------------
 #: Pattern shapes that can be modelled now.
 PATTERN_SHAPES = ("none", "rectangle", "stripe", "disk", "polygon", "mesh")
-#: Keys of [pattern] that each shape accepts (besides shape, symmetry).
-SHAPE_KEYS = {
-    "none": (),
-    "rectangle": ("width", "length", "etch_depth", "margin", "corner_radius", "sidewall_angle",
-                  "pitch"),
-    "stripe": ("width", "etch_depth", "margin", "sidewall_angle", "pitch"),
-    "disk": ("diameter", "etch_depth", "margin", "sidewall_angle", "pitch"),
-    "polygon": ("vertices", "etch_depth", "margin", "sidewall_angle", "pitch"),
-    "mesh": ("file", "unit", "groups"),
-}
-#: The [pattern] keys each shape requires, in the order they are checked, with the hint.
-SHAPE_REQUIRES = {
-    "rectangle": (("width", 'the rectangle width along sample x, e.g. "2 um"'),),
-    "stripe": (("width", 'the stripe width along sample x, e.g. "2 um"'),),
-    "disk": (("diameter", 'the disk diameter, e.g. "1 um"'),),
-    "polygon": (("vertices", ('the outline as [[x, y], ...] in nm, e.g. '
-                              '[[0, 0], [500, 0], [0, 400]]')),),
-    "mesh": (("file", 'the mesh file, e.g. "device.msh"'),
-             ("groups", ('a table mapping physical groups to regions, '
-                         'e.g. groups = { substrate = 0, film = 1 }'))),
-}
+#: The shapes that are an etched feature (the others: a blanket film, an imported mesh).
+FEATURE_SHAPES = ("rectangle", "stripe", "disk", "polygon")
 #: Model symmetry choices: "auto" uses mirror planes where geometry and crystal allow.
 SYMMETRY_CHOICES = ("auto", "full")
 #: Allowed sidewall angles, degrees from the substrate plane (90 = vertical).
@@ -216,33 +198,51 @@ PATTERN = Table("pattern", "pattern", "The etched feature, centred on x = y = 0.
     Key("shape", Kind(rd.shape_name(PATTERN_SHAPES), _enum(PATTERN_SHAPES)),
         '"none" (blanket film), a feature, or "mesh" (an imported mesh).',
         required="the pattern shape; allowed: " + ", ".join(f'"{s}"' for s in PATTERN_SHAPES)),
-    Key("width", POSITIVE_LENGTH, "Feature size at its top along sample x (rectangle, stripe)."),
-    Key("length", POSITIVE_LENGTH, "Feature size at its top along sample y (rectangle).",
-        computed="the width (a square)"),
+    Key("width", POSITIVE_LENGTH, "Feature size at its top along sample x.",
+        shapes=("rectangle", "stripe"),
+        required_for=(("rectangle", 'the rectangle width along sample x, e.g. "2 um"'),
+                      ("stripe", 'the stripe width along sample x, e.g. "2 um"'))),
+    Key("length", POSITIVE_LENGTH, "Feature size at its top along sample y.",
+        computed="the width (a square)", shapes=("rectangle",)),
     Key("etch_depth", POSITIVE_LENGTH, "Depth of the etch, measured down from the top surface.",
-        computed="the whole layer stack"),
+        computed="the whole layer stack", shapes=FEATURE_SHAPES),
     Key("margin", POSITIVE_LENGTH, "Width of etched-floor substrate modelled around the "
-                                   "feature (default: the mesher chooses)."),
-    Key("corner_radius", NONNEGATIVE_LENGTH, "Rounding radius of a rectangle's vertical edges."),
-    Key("diameter", POSITIVE_LENGTH, "Disk diameter at its top."),
+                                   "feature (default: the mesher chooses).",
+        shapes=FEATURE_SHAPES),
+    Key("corner_radius", NONNEGATIVE_LENGTH, "Rounding radius of a rectangle's vertical edges.",
+        shapes=("rectangle",)),
+    Key("diameter", POSITIVE_LENGTH, "Disk diameter at its top.", shapes=("disk",),
+        required_for=(("disk", 'the disk diameter, e.g. "1 um"'),)),
     Key("vertices", Kind(rd.vertices, {"type": "array", "minItems": 3, "items": {
         "type": "array", "items": _ref("length"), "minItems": 2, "maxItems": 2}}),
-        "Polygon outline at its top, [[x, y], ...] in order (either sense)."),
+        "Polygon outline at its top, [[x, y], ...] in order (either sense).",
+        shapes=("polygon",),
+        required_for=(("polygon", ('the outline as [[x, y], ...] in nm, e.g. '
+                                   '[[0, 0], [500, 0], [0, 400]]')),)),
     Key("sidewall_angle", Kind(rd.angle_between(*SIDEWALL_ANGLE_RANGE),
                                _number(minimum=SIDEWALL_ANGLE_RANGE[0],
                                        maximum=SIDEWALL_ANGLE_RANGE[1])),
         "Angle between sidewall and substrate plane, degrees (90 vertical, < 90 widening "
-        "toward the foot, > 90 undercut; default 90)."),
+        "toward the foot, > 90 undercut; default 90).", shapes=FEATURE_SHAPES),
     Key("pitch", PITCH, "Period of an infinite array of the feature: one length (along x; "
-                        "a stripe grating, or the same along y) or [px, py]."),
+                        "a stripe grating, or the same along y) or [px, py].",
+        shapes=FEATURE_SHAPES),
     Key("symmetry", _choice(SYMMETRY_CHOICES), '"auto" uses the mirror planes that geometry '
                                                'and crystal share (default), "full" none.'),
-    Key("file", STRING, "Imported mesh file, relative to the case file (shape = \"mesh\")."),
+    Key("file", STRING, "Imported mesh file, relative to the case file.", shapes=("mesh",),
+        required_for=(("mesh", 'the mesh file, e.g. "device.msh"'),)),
     Key("unit", Kind(rd.length_unit, _enum(LENGTH_UNITS)),
-        "Length unit of the imported mesh coordinates (default nm)."),
+        "Length unit of the imported mesh coordinates (default nm).", shapes=("mesh",)),
     Key("groups", GROUPS, 'Imported mesh: physical group name -> region (0 or "substrate", '
-                          'i = layer i counted from 1).'),
+                          'i = layer i counted from 1).', shapes=("mesh",),
+        required_for=(("mesh", ('a table mapping physical groups to regions, '
+                                'e.g. groups = { substrate = 0, film = 1 }')),)),
 ))
+#: Keys of [pattern] that each shape accepts (besides those every shape takes: shape, symmetry).
+SHAPE_KEYS = {s: tuple(k.name for k in PATTERN.keys if s in k.shapes) for s in PATTERN_SHAPES}
+#: The [pattern] keys each shape requires, in the order they are checked, with the hint.
+SHAPE_REQUIRES = {s: tuple((k.name, hint) for k in PATTERN.keys for shape, hint in k.required_for
+                           if shape == s) for s in PATTERN_SHAPES}
 
 THERMAL = Table("thermal", "thermal", "Growth and final (use) temperatures; both or neither.", (
     Key("growth_temperature", TEMPERATURE, "Temperature at which the layers grew.",
@@ -406,11 +406,12 @@ def _table_schema(tab: Table) -> dict:
     if required:
         out["required"] = required
     if tab is PATTERN:
+        every = tuple(k.name for k in PATTERN.keys if not k.shapes)
         out["allOf"] = [
             {"if": {"properties": {"shape": {"const": shape}}, "required": ["shape"]},
-             "then": {"propertyNames": _enum(("shape", "symmetry") + allowed),
+             "then": {"propertyNames": _enum(every + allowed),
                       **({"required": [n for n, _ in SHAPE_REQUIRES[shape]]}
-                         if shape in SHAPE_REQUIRES else {})}}
+                         if SHAPE_REQUIRES[shape] else {})}}
             for shape, allowed in SHAPE_KEYS.items()]
     if tab.array:
         del out["description"]
