@@ -23,6 +23,7 @@ stack, probes inside the body) are code in :mod:`mesastrain.case.parse` and
 
 from __future__ import annotations
 
+import copy
 import json
 import re
 from pathlib import Path
@@ -435,6 +436,7 @@ def json_schema() -> dict:
     """
     props = {TITLE.name: _key_schema(TITLE)}
     props.update({t.name: _table_schema(t) for t in TABLES})
+    props = copy.deepcopy(props)        # the kinds' fragments are shared
     return {
         "$schema": "https://json-schema.org/draft/2020-12/schema",
         "title": "mesastrain case file",
@@ -445,7 +447,7 @@ def json_schema() -> dict:
         "properties": props,
         "required": [SUBSTRATE.name, LAYER.name],
         "additionalProperties": False,
-        "$defs": _DEFS,
+        "$defs": copy.deepcopy(_DEFS),
     }
 
 
