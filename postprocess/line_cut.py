@@ -17,7 +17,7 @@ from pathlib import Path
 
 import numpy as np
 
-from mesastrain.case.parse import DEFAULT_CUT_COMPONENTS, FIELD_COMPONENTS
+from mesastrain.case.schema import DEFAULT_CUT_COMPONENTS, FIELD_COMPONENTS
 from mesastrain.derived.cuts import components, plot_cut, write_cut_csv
 from mesastrain.io.export import from_vtk6
 from mesastrain.io.render import load

@@ -16,7 +16,7 @@ import argparse
 import sys
 from pathlib import Path
 
-from mesastrain.case.parse import FIELD_COMPONENTS
+from mesastrain.case.schema import FIELD_COMPONENTS
 from mesastrain.io.render import render_map
 
 

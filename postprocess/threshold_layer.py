@@ -17,7 +17,7 @@ from pathlib import Path
 
 import numpy as np
 
-from mesastrain.case.parse import FIELD_COMPONENTS
+from mesastrain.case.schema import FIELD_COMPONENTS
 from mesastrain.io.render import load, render_layer
 
 

@@ -205,7 +205,7 @@ class Outline:
 
 
 def outline_of(pattern) -> Outline:
-    """The top outline of a case's pattern (``casefile.Pattern``)."""
+    """The top outline of a case's pattern (:class:`mesastrain.case.types.Pattern`)."""
     shape = pattern.shape
     if shape == "rectangle":
         length = pattern.length if pattern.length is not None else pattern.width

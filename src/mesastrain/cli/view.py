@@ -78,7 +78,7 @@ def cmd_view(args) -> int:
 
 def add_command(subparsers) -> None:
     """``mesastrain view DIR [--component NAME ...] [--pictures] [--out DIR]``."""
-    from mesastrain.case.parse import FIELD_COMPONENTS
+    from mesastrain.case.schema import FIELD_COMPONENTS
 
     p = subparsers.add_parser("view", help="open a result in a 3-D window, or write its "
                                            "standard pictures when there is no display")

@@ -19,7 +19,7 @@ from pathlib import Path
 
 import numpy as np
 
-from mesastrain.case.parse import FIELD_COMPONENTS
+from mesastrain.case.schema import FIELD_COMPONENTS
 from mesastrain.derived.sampling import sample_inside
 from mesastrain.fem.fields import hydrostatic, principal, von_mises
 from mesastrain.run.result import Derived

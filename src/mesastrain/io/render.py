@@ -152,7 +152,7 @@ def map_values(mesh, name: str):
     name : str
         ``stress_xx`` ... ``strain_xy``, ``displacement_x|y|z``, ``von_mises``,
         ``hydrostatic``, ``principal_max``, ``principal_min`` (the names of
-        :data:`mesastrain.case.parse.FIELD_COMPONENTS`), or any cell-data name.
+        :data:`mesastrain.case.schema.FIELD_COMPONENTS`), or any cell-data name.
 
     Returns
     -------

@@ -23,7 +23,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import Callable
 
-from mesastrain.case.parse import Case
+from mesastrain.case.types import Case
 from mesastrain.errors import MeshError
 
 

@@ -7,7 +7,7 @@ These functions read a validated case and its defaults; the mesh kinds
 from __future__ import annotations
 
 from mesastrain.case.outline import taper_of
-from mesastrain.case.parse import Case
+from mesastrain.case.types import Case
 from mesastrain.mesh.grid import GridSpacing, StackLayout
 from mesastrain.model.dislocation_plan import blanket_cell
 from mesastrain.model.regions import build_layers

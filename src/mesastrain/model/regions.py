@@ -32,7 +32,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from mesastrain.case.parse import Case
+from mesastrain.case.types import Case
 from mesastrain.physics.crystal import Frame, sample_frame
 from mesastrain.errors import CaseError, MaterialError
 from mesastrain.physics.materials import Material, get_material

@@ -37,7 +37,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from mesastrain.case.parse import SolverSettings
+from mesastrain.case.types import SolverSettings
 from mesastrain.errors import MeshError, MesastrainError
 from mesastrain.fem.assembly import assemble, rigid_body_modes
 from mesastrain.fem.constraints import Boundary

@@ -28,7 +28,7 @@ from typing import Callable, Sequence
 
 import numpy as np
 
-from mesastrain.case.parse import Case
+from mesastrain.case.types import Case
 from mesastrain.errors import ResourceError, SolverError
 from mesastrain.fem.assembly import SymbolicCache, assemble
 from mesastrain.fem.constraints import Boundary

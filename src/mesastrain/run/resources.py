@@ -8,7 +8,7 @@ memory and wall time.
 
 from __future__ import annotations
 
-from mesastrain.case.parse import Case
+from mesastrain.case.types import Case
 from mesastrain.fem.cost import Estimate
 from mesastrain.mesh.kinds import KINDS, kind_of
 

@@ -12,7 +12,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from mesastrain.case.parse import Case
+from mesastrain.case.types import Case
 from mesastrain.errors import CaseError
 from mesastrain.fem.discretisation import Discretisation
 from mesastrain.fem.fields import Fields

@@ -16,7 +16,8 @@ from pathlib import Path
 
 import pytest
 
-from mesastrain.case.parse import (Case, Cut, Layer, Pattern, Probe, load_case, parse_case)
+from mesastrain.case.parse import load_case, parse_case
+from mesastrain.case.types import Case, Layer, LineCut, Pattern, Probe
 from mesastrain.errors import CaseError
 from mesastrain.units import parse_length, parse_temperature
 
@@ -143,8 +144,8 @@ def test_good_mesa_values():
     assert case.probes == (Probe("centre_film", (0.0, 0.0, 20.0)),
                            Probe("probe2", (1000.0, 0.0, 140.0)),
                            Probe("probe3", (1400.0, 0.0, -60.0)))
-    assert case.cuts == (Cut("across", (-1000.0, 0.0, 20.0), (1000.0, 0.0, 20.0), 201),
-                         Cut("cut2", (0.0, 0.0, 140.0), (0.0, 0.0, -2000.0), 101))
+    assert case.cuts == (LineCut("across", (-1000.0, 0.0, 20.0), (1000.0, 0.0, 20.0), 201),
+                         LineCut("cut2", (0.0, 0.0, 140.0), (0.0, 0.0, -2000.0), 101))
     assert (case.output.vtu, case.output.crystal_frame) == (False, True)
     assert case.stack_thickness == 140.0
     assert case.top == 140.0
@@ -415,7 +416,7 @@ def test_probe_and_cut_names_default_in_order():
     d["cut"] = [{"from": [0, 0, 0], "to": [0, 0, 40], "points": 2}]
     case = parse_case(d)
     assert [p.name for p in case.probes] == ["probe1", "mid", "probe3"]
-    assert case.cuts == (Cut("cut1", (0.0, 0.0, 0.0), (0.0, 0.0, 40.0), 2),)
+    assert case.cuts == (LineCut("cut1", (0.0, 0.0, 0.0), (0.0, 0.0, 40.0), 2),)
 
 
 def test_default_name_clash_is_an_error():

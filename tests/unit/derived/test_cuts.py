@@ -5,7 +5,9 @@ import csv
 import numpy as np
 import pytest
 
-from mesastrain.case.parse import DEFAULT_CUT_COMPONENTS, parse_case
+from mesastrain.case.parse import parse_case
+
+from mesastrain.case.schema import DEFAULT_CUT_COMPONENTS
 from mesastrain.derived.cuts import components
 from mesastrain.units import safe_name
 from mesastrain.errors import CaseError

@@ -233,7 +233,7 @@ def test_choice_of_method_and_options():
     assert choose_method("auto", DIRECT_LIMIT + 1) == "iterative"
     assert choose_method("auto", 5000, direct_limit=10000) == "direct"
     assert choose_method("direct", 10**7) == "direct"
-    from mesastrain.case.parse import SolverSettings
+    from mesastrain.case.types import SolverSettings
 
     opts = solver_options(SolverSettings("iterative", 1e-9, 50, 1e-5, "double", 100))
     assert opts == {"method": "iterative", "tol": 1e-9, "maxiter": 50, "stress_tol": 1e-5,

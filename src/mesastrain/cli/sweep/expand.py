@@ -10,7 +10,9 @@ import json
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from mesastrain.case.parse import Case, parse_case
+from mesastrain.case.parse import parse_case
+
+from mesastrain.case.types import Case
 from mesastrain.cli.sweep.spec import KEY_UNITS, Sweep, parse_path, set_path
 from mesastrain.errors import CaseError
 from mesastrain.units import is_number, parse_length, parse_temperature, show_value

@@ -23,7 +23,7 @@ from datetime import datetime, timezone
 from pathlib import Path
 
 from mesastrain import __version__
-from mesastrain.case.parse import Case
+from mesastrain.case.types import Case
 from mesastrain.errors import CaseError, MesastrainError
 
 

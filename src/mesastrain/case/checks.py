@@ -1,0 +1,277 @@
+"""Checks that combine tables: phase 2 of :func:`mesastrain.case.parse.parse_case`.
+
+After each table has been read on its own (:mod:`mesastrain.case.schema`),
+:class:`CrossChecks` checks what needs several of them: a layer inheriting the
+substrate's orientation, the pattern against the stack (etch depth, corner
+radius, sloped sidewalls, pitch), the modelled substrate depth, probes and line
+cuts inside the modelled body, and misfit dislocations against layers and
+pattern. The tables are the plain dicts of the first phase; a check may fill
+in a value that depends on another table (a layer's orientation, a square
+pitch). The first failing check raises :class:`mesastrain.errors.CaseError`.
+"""
+
+from __future__ import annotations
+
+import math
+
+from mesastrain.case.outline import outline_at, outline_of, taper_of
+from mesastrain.case.schema import INSIDE_RTOL
+from mesastrain.errors import CaseError, OrientationError
+from mesastrain.physics.crystal import direction_vector, sample_frame
+
+__all__ = ["CrossChecks", "PatternView"]
+
+
+class PatternView:
+    """Attribute access to a pattern table being validated (as outline.outline_of expects)."""
+
+    def __init__(self, t: dict):
+        self._t = t
+
+    def __getattr__(self, name):
+        if name.startswith("_"):
+            raise AttributeError(name)
+        return self._t.get(name)
+
+
+
+class CrossChecks:
+    """The checks across tables of one case being parsed.
+
+    Parameters
+    ----------
+    substrate : dict
+        The read ``[substrate]`` with its resolved ``system``, ``c_over_a`` and ``label``.
+    layers : list of dict
+        The read ``[[layer]]`` tables, likewise resolved.
+    pattern : dict
+        The read ``[pattern]`` (``{"shape": "none"}`` when absent), with the
+        defaults that depend on the stack (length, etch depth) filled in.
+    mesh : dict
+        The read ``[mesh]`` (possibly empty).
+    """
+
+    def __init__(self, substrate: dict, layers: list, pattern: dict, mesh: dict):
+        self.substrate = substrate
+        self.layers = layers
+        self.pattern = pattern
+        self.mesh = mesh
+
+    def dislocations(self, sets: list) -> None:
+        """Interface index in range, line in the interface, a pattern the lines fit.
+
+        ``sets`` are the read ``[[dislocations]]`` tables.
+        """
+        shape = self.pattern["shape"]
+        for i, ds in enumerate(sets):
+            ik = f"dislocations[{i}]"
+            if ds["interface"] >= len(self.layers):
+                raise CaseError(f"{ik}.interface", f"{ds['interface']} is not a layer's bottom "
+                                                   f"interface; allowed: 0 to "
+                                                   f"{len(self.layers) - 1}")
+            if shape not in ("none", "rectangle", "stripe") or self.pattern.get(
+                    "corner_radius") or self.pattern.get("sidewall_angle") not in (None, 90.0):
+                raise CaseError(ik, "dislocations need a model of axis-aligned bricks: "
+                                    "pattern shape \"none\", \"rectangle\" (no corner_radius, "
+                                    "vertical sidewalls) or \"stripe\"")
+            lay = self.layers[ds["interface"]]
+            normal = lay["normal"] if lay["normal"] is not None else self.substrate["normal"]
+            x_axis = lay["x_axis"] if lay["x_axis"] is not None else self.substrate["x_axis"]
+            try:
+                R = sample_frame(normal, x_axis, lay["system"], lay["c_over_a"]).R
+                xi = R @ direction_vector(ds["line"], lay["system"], lay["c_over_a"],
+                                          what="line direction")
+            except OrientationError as err:
+                raise CaseError(f"{ik}.line", str(err)) from None
+            xi = xi / math.sqrt(float(xi @ xi))
+            if abs(xi[2]) > 1e-6:
+                ang = math.degrees(math.asin(min(1.0, abs(float(xi[2])))))
+                raise CaseError(f"{ik}.line", f"{list(ds['line'])} makes {ang:.3g} deg with the "
+                                              f"interface; misfit dislocations lie in the "
+                                              f"interface plane")
+            if shape == "stripe" and abs(xi[1]) < 1 - 1e-9:
+                raise CaseError(f"{ik}.line", "a stripe is modelled as its x-z cross-section: "
+                                              "only lines along the stripe (sample y) fit")
+            if shape == "none" and "positions" in ds:
+                raise CaseError(f"{ik}.positions", "a blanket film is modelled as a periodic "
+                                                   "cell: give spacing or relaxation")
+
+    def layer_orientations(self) -> None:
+        """Give layers without their own orientation the substrate's (same crystal system)."""
+        s = self.substrate
+        for i, t in enumerate(self.layers):
+            if t["normal"] is not None:
+                continue
+            if t["system"] != s["system"]:
+                raise CaseError(f"layer[{i}].normal",
+                                f"required key is missing; {t['label']} is {t['system']} but "
+                                f"the substrate {s['label']} is {s['system']}, so this layer "
+                                f"needs its own normal and x_axis")
+            t["normal"], t["x_axis"] = s["normal"], s["x_axis"]
+
+    def stack(self) -> float:
+        """Total thickness of the layers, nm."""
+        return math.fsum(t["thickness"] for t in self.layers)
+
+    def pattern_fits(self) -> None:
+        """Etch depth, corner radius, sloped sidewalls and pitch against the feature and stack.
+
+        Fills in a square pitch when one length is given for a 2-D array.
+        """
+        p = self.pattern
+        if p["shape"] in ("none", "mesh"):
+            if p["shape"] == "mesh":
+                n = len(self.layers)
+                for name, region in p["groups"]:
+                    if region > n:
+                        raise CaseError(f"pattern.groups.{name}",
+                                        f"region {region} does not exist; the case has the "
+                                        f"substrate (0) and {n} layer(s) (1..{n})")
+            return
+        limit = self.stack() + self.substrate["thickness"]
+        if p["etch_depth"] > limit:
+            raise CaseError("pattern.etch_depth",
+                            f"{p['etch_depth']:.10g} nm is deeper than the layers plus the "
+                            f"substrate ({limit:.10g} nm); give at most {limit:.10g} nm")
+        if p["shape"] == "rectangle" and p.get("corner_radius"):
+            most = min(p["width"], p["length"]) / 2.0
+            if p["corner_radius"] > most:
+                raise CaseError("pattern.corner_radius",
+                                f"{p['corner_radius']:.10g} nm is more than half the shorter "
+                                f"side; give at most {most:.10g} nm")
+        view = PatternView(p)
+        top = outline_of(view)
+        taper = taper_of(view)
+        foot = top.offset(taper)
+        problem = foot.problem()
+        if problem:
+            raise CaseError("pattern.sidewall_angle",
+                            f"{p['sidewall_angle']:.10g} degrees over the etch depth of "
+                            f"{p['etch_depth']:.10g} nm moves the sidewall by {abs(taper):.10g} "
+                            f"nm, which leaves no valid outline at the "
+                            f"{'foot' if taper < 0 else 'etch floor'} ({problem}); use a "
+                            f"steeper sidewall")
+        if p.get("pitch") is None:
+            return
+        if p["shape"] == "stripe":
+            if p["pitch"][1] is not None:
+                raise CaseError("pattern.pitch", "a stripe grating repeats along x only; give "
+                                                 "the pitch as one length")
+        elif p["pitch"][1] is None:
+            p["pitch"] = (p["pitch"][0], p["pitch"][0])
+        if p.get("margin") is not None:
+            raise CaseError("pattern.margin", "the pitch sets the modelled cell of an array; "
+                                              "remove margin or pitch")
+        hx = max(top.half_extent()[0], foot.half_extent()[0])
+        hy = max(top.half_extent()[1], foot.half_extent()[1])
+        px, py = p["pitch"]
+        sharp = p["shape"] in ("rectangle", "stripe") and not taper and not p.get("corner_radius")
+        for name, h, period in (("x", hx, px), ("y", hy, py)):
+            if period is None:
+                continue
+            too_big = 2 * h > period * (1 + INSIDE_RTOL) if sharp else 2 * h >= period
+            if too_big:
+                need = "at least" if sharp else "more than"
+                raise CaseError("pattern.pitch",
+                                f"{period:.10g} nm along {name} is shorter than the feature "
+                                f"({2 * h:.10g} nm across, sidewall slope included); give "
+                                f"{need} {2 * h:.10g} nm")
+
+    def mesh_fits(self) -> None:
+        """The modelled substrate depth: within the wafer and below the etch floor."""
+        depth = self.mesh.get("substrate_depth")
+        if depth is None:
+            return
+        thickness = self.substrate["thickness"]
+        if depth > thickness:
+            raise CaseError("mesh.substrate_depth",
+                            f"{depth:.10g} nm is more than the substrate thickness "
+                            f"({thickness:.10g} nm); give at most {thickness:.10g} nm")
+        p = self.pattern
+        if p["shape"] != "none" and p["etch_depth"] >= self.stack() + depth:
+            raise CaseError("mesh.substrate_depth",
+                            f"{depth:.10g} nm does not reach below the etch floor at z = "
+                            f"{self.stack() - p['etch_depth']:.10g} nm; model a deeper substrate "
+                            f"or etch less deep")
+
+    def inside(self, point: tuple, key: str) -> None:
+        """Raise unless ``point`` lies in the modelled body (surface included).
+
+        Each bound is compared with a relative tolerance of INSIDE_RTOL of
+        that bound (of the layer stack for the etch floor).
+        """
+        x, y, z = point
+        rel = 1.0 + INSIDE_RTOL
+        top = self.stack()
+        depth = self.mesh.get("substrate_depth") or self.substrate["thickness"]
+        p = self.pattern
+        where = f"({x:.10g}, {y:.10g}, {z:.10g}) nm"
+        span = f"allowed: {-depth:.10g} <= z <= {top:.10g}"
+        if z > top * rel:
+            raise CaseError(key, f"{where} is above the top surface at z = {top:.10g} nm; {span}")
+        if z < -depth * rel:
+            raise CaseError(key, f"{where} is below the modelled substrate bottom at z = "
+                                 f"{-depth:.10g} nm; {span}")
+        if p["shape"] in ("none", "mesh"):    # an imported mesh is checked when it is read
+            return
+        view = PatternView(p)
+        floor = top - p["etch_depth"]
+        if z > floor + INSIDE_RTOL * max(top, p["etch_depth"]):
+            ol = outline_at(view, top, z)
+            hx, hy = ol.half_extent()
+            tol = INSIDE_RTOL * max(hx, hy if math.isfinite(hy) else hx)
+            if not bool(ol.contains(x, y, tol)):
+                if p["shape"] == "rectangle" and ol.radius == 0:
+                    raise CaseError(key, f"{where} is outside the {p['shape']} (|x| <= "
+                                         f"{hx:.10g}, |y| <= {hy:.10g} nm above the etch "
+                                         f"floor at z = {floor:.10g} nm)")
+                if p["shape"] == "stripe":
+                    raise CaseError(key, f"{where} is outside the stripe (|x| <= {hx:.10g} nm "
+                                         f"at this height, above the etch floor at z = "
+                                         f"{floor:.10g} nm)")
+                raise CaseError(key, f"{where} is outside the {p['shape']} (at this height its "
+                                     f"outline is a {ol.describe()}; the etch floor is at z = "
+                                     f"{floor:.10g} nm)")
+        elif p.get("pitch") is not None:
+            px, py = p["pitch"]
+            if abs(x) > px / 2 * rel or (py is not None and abs(y) > py / 2 * rel):
+                ylim = f", |y| <= {py / 2:.10g}" if py is not None else ""
+                raise CaseError(key, f"{where} is outside the periodic cell (|x| <= "
+                                     f"{px / 2:.10g}{ylim} nm)")
+        elif p.get("margin") is not None:
+            foot = outline_at(view, top, floor)
+            half_w, half_l = foot.half_extent()
+            mx, my = half_w + p["margin"], half_l + p["margin"]
+            if abs(x) > mx * rel or abs(y) > my * rel:
+                raise CaseError(key, f"{where} is outside the modelled region (|x| <= "
+                                     f"{mx:.10g}, |y| <= {my:.10g} nm: feature plus margin)")
+
+    def probes_inside(self, probes: list) -> None:
+        """Every probe point inside the modelled body."""
+        for i, t in enumerate(probes):
+            self.inside(t["at"], f"probe[{i}].at")
+
+    def cuts_inside(self, cuts: list) -> None:
+        """Both ends of every line cut inside the body, and the line not through the etched gap."""
+        p = self.pattern
+        for i, t in enumerate(cuts):
+            self.inside(t["from"], f"cut[{i}].from")
+            self.inside(t["to"], f"cut[{i}].to")
+            if p["shape"] in ("none", "mesh"):
+                continue
+            # Both ends inside, but a cut from the feature down to the etched
+            # floor beside it would pass through the etched-away gap: check
+            # where the segment crosses the plane of the etch floor.
+            floor = self.stack() - p["etch_depth"]
+            level = floor + INSIDE_RTOL * max(self.stack(), p["etch_depth"])
+            (x0, y0, z0), (x1, y1, z1) = t["from"], t["to"]
+            if (z0 > level) != (z1 > level):     # one end beside the feature, one in it
+                s = (floor - z0) / (z1 - z0)
+                xc, yc = x0 + s * (x1 - x0), y0 + s * (y1 - y0)
+                foot = outline_at(PatternView(p), self.stack(), floor)
+                hx, hy = foot.half_extent()
+                tol = INSIDE_RTOL * max(hx, hy if math.isfinite(hy) else hx)
+                if not bool(foot.contains(xc, yc, tol)):
+                    raise CaseError(f"cut[{i}]", f"the line leaves the body: it crosses the "
+                                                 f"etch floor z = {floor:.10g} nm at ({xc:.10g}, "
+                                                 f"{yc:.10g}) nm, outside the {p['shape']}")

@@ -1,0 +1,461 @@
+"""The case-file schema: every key declared once.
+
+Each key of the case file is one :class:`mesastrain.case.keys.Key` (name,
+kind of value, doc, default or the hint given when a required key is
+missing), grouped into one :class:`mesastrain.case.keys.Table` per TOML table
+(``[substrate]``, ``[[layer]]``, ...). From these declarations come:
+
+- the allowed keys of each table and the unknown-key errors, the reading of
+  each value and the missing-key errors
+  (:func:`mesastrain.case.keys.read_table`);
+- the defaults (:meth:`~mesastrain.case.keys.Table.default`, also used by the
+  dataclasses of :mod:`mesastrain.case.types`);
+- the echo of a case in case-file form, :meth:`mesastrain.case.types.Case.to_dict`
+  (:func:`mesastrain.case.keys.echo`);
+- the JSON Schema (draft 2020-12) of the case file, :func:`json_schema`,
+  shipped as ``mesastrain/case/schemas/case-1.json`` (:data:`SCHEMA_FILE`;
+  ``python -m mesastrain.case.schema`` rewrites it).
+
+Checks that combine keys (a width for a rectangle, etch depth against the
+stack, probes inside the body) are code in :mod:`mesastrain.case.parse` and
+:mod:`mesastrain.case.checks`.
+"""
+
+from __future__ import annotations
+
+import copy
+import json
+import re
+from pathlib import Path
+
+from mesastrain.case import readers as rd
+from mesastrain.case.keys import Key, Kind, Table
+from mesastrain.physics.materials import known_materials
+from mesastrain.physics.raman import device_parameters, pdp_sets
+from mesastrain.units import LENGTH_UNITS, TEMPERATURE_UNITS
+
+__all__ = [
+    "CARRIERS", "DEFAULT_CUT_COMPONENTS", "DEFAULT_MAPS", "FEATURE_SHAPES", "FIELD_COMPONENTS",
+    "INSIDE_RTOL",
+    "PATTERN_SHAPES", "SCHEMA_FILE", "SCHEMA_VERSION", "SHAPE_KEYS",
+    "SHAPE_REQUIRES", "SIDEWALL_ANGLE_RANGE", "SOLVER_METHODS", "SOLVER_PRECISIONS",
+    "SYMMETRY_CHOICES", "TABLES", "TITLE", "TOP_KEYS", "default_order", "json_schema",
+    "json_schema_text", "table",
+]
+
+# --------------------------------------------------------------------------
+# vocabulary
+# --------------------------------------------------------------------------
+#: Pattern shapes that can be modelled now.
+PATTERN_SHAPES = ("none", "rectangle", "stripe", "disk", "polygon", "mesh")
+#: The shapes that are an etched feature (the others: a blanket film, an imported mesh).
+FEATURE_SHAPES = ("rectangle", "stripe", "disk", "polygon")
+#: Model symmetry choices: "auto" uses mirror planes where geometry and crystal allow.
+SYMMETRY_CHOICES = ("auto", "full")
+#: Allowed sidewall angles, degrees from the substrate plane (90 = vertical).
+SIDEWALL_ANGLE_RANGE = (10.0, 170.0)
+#: Linear-solver choices.
+SOLVER_METHODS = ("auto", "direct", "iterative")
+#: Precisions of the multigrid preconditioner (the iteration itself is double).
+SOLVER_PRECISIONS = ("single", "double")
+#: Carrier types of a [[channel]] (piezoresistance).
+CARRIERS = ("n", "p")
+
+#: Field components that line cuts and maps can show: stress (MPa) and elastic strain tensor
+#: components in the sample frame, displacement (nm), von Mises and hydrostatic stress and the
+#: largest/smallest principal stress (MPa).
+FIELD_COMPONENTS = tuple(f"{q}_{c}" for q in ("stress", "strain")
+                         for c in ("xx", "yy", "zz", "yz", "xz", "xy")) + (
+    "displacement_x", "displacement_y", "displacement_z", "von_mises", "hydrostatic",
+    "principal_max", "principal_min")
+#: Components a line cut plots when its ``components`` key is not given.
+DEFAULT_CUT_COMPONENTS = ("stress_xx", "stress_yy", "stress_zz", "stress_xz")
+#: Components drawn as plan-view and cross-section maps when ``output.maps`` is not given.
+DEFAULT_MAPS = ("stress_xx", "von_mises")
+
+#: Relative tolerance of the inside-the-body test for probes and cuts.
+INSIDE_RTOL = 1e-9
+
+#: Version of the case-file format, the N of the shipped ``schemas/case-N.json``.
+SCHEMA_VERSION = 1
+#: The shipped copy of :func:`json_schema` (package data).
+SCHEMA_FILE = Path(__file__).parent / "schemas" / f"case-{SCHEMA_VERSION}.json"
+
+
+# --------------------------------------------------------------------------
+# kinds of values
+# --------------------------------------------------------------------------
+_UNSIGNED = r"(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?"
+_NUMBER = r"[+-]?" + _UNSIGNED
+
+
+def _with_unit(units, number: str = _NUMBER) -> str:
+    names = "|".join(re.escape(u) for u in sorted(units, key=len, reverse=True))
+    return rf"^\s*{number}\s*(?:{names})\s*$"
+
+
+_DEFS = {
+    "material": {"description": "A material name, or an alloy spelled as a formula.",
+                 "type": "string", "examples": list(known_materials())},
+    "length": {"description": "A length: a number in nm or a string with a unit, e.g. "
+                              '"40 nm", "2 um", "0.5 mm", "3.2 A".',
+               "anyOf": [{"type": "number"},
+                         {"type": "string", "pattern": _with_unit(LENGTH_UNITS)}]},
+    "positiveLength": {"description": "A length > 0.",
+                       "anyOf": [{"type": "number", "exclusiveMinimum": 0},
+                                 {"type": "string",
+                                  "pattern": _with_unit(LENGTH_UNITS, r"\+?" + _UNSIGNED)}]},
+    "temperature": {"description": 'A temperature: a number in degrees Celsius or a string '
+                                   'with a unit, e.g. "700 C", "973.15 K".',
+                    "anyOf": [{"type": "number"},
+                              {"type": "string", "pattern": _with_unit(TEMPERATURE_UNITS)}]},
+    "indices": {"description": "Miller indices [h, k, l] or Miller-Bravais [h, k, i, l].",
+                "type": "array", "items": {"type": "integer"}, "minItems": 3, "maxItems": 4},
+    "point": {"description": "A point [x, y, z] of three lengths.",
+              "type": "array", "items": {"$ref": "#/$defs/length"}, "minItems": 3,
+              "maxItems": 3},
+    "components": {"description": "Field components.", "type": "array", "minItems": 1,
+                   "items": {"enum": list(FIELD_COMPONENTS)}},
+}
+
+
+def _ref(name: str) -> dict:
+    return {"$ref": f"#/$defs/{name}"}
+
+
+def _number(**limits) -> dict:
+    return {"type": "number", **limits}
+
+
+def _enum(values) -> dict:
+    return {"enum": list(values)}
+
+
+def _raman_pdp_json() -> dict:
+    known = {m: pdp_sets(m) for m in device_parameters()["raman"]}
+    return {"type": "object", "additionalProperties": False,
+            "properties": {m: _enum(s) for m, s in known.items()}}
+
+
+def _int_at_least(low: int) -> Kind:
+    return Kind(rd.int_at_least(low), {"type": "integer", "minimum": low})
+
+
+def _choice(values) -> Kind:
+    return Kind(rd.choice(values), _enum(values))
+
+
+STRING = Kind(rd.string, {"type": "string"})
+BOOL = Kind(rd.boolean, {"type": "boolean"})
+LENGTH = Kind(rd.length, _ref("length"))
+POSITIVE_LENGTH = Kind(rd.positive_length, _ref("positiveLength"))
+NONNEGATIVE_LENGTH = Kind(rd.nonnegative_length, _ref("length"))
+TEMPERATURE = Kind(rd.temperature, _ref("temperature"), echo=lambda kelvin: f"{kelvin!r} K")
+FRACTION = Kind(rd.fraction, _number(minimum=0, maximum=1))
+MATERIAL = Kind(rd.material_name, _ref("material"))
+INDICES = Kind(rd.indices, _ref("indices"))
+POINT = Kind(rd.point, _ref("point"))
+COMPONENTS = Kind(rd.component_list(FIELD_COMPONENTS), _ref("components"))
+PITCH = Kind(rd.pitch, {"anyOf": [_ref("positiveLength"),
+                                  {"type": "array", "items": _ref("positiveLength"),
+                                   "minItems": 1, "maxItems": 2}]},
+             echo=lambda p: p[0] if p[1] is None else [p[0], p[1]])
+GROUPS = Kind(rd.groups, {"type": "object", "minProperties": 1,
+                          "additionalProperties": {"anyOf": [{"type": "integer", "minimum": 0},
+                                                             {"const": "substrate"}]}},
+              echo=dict)
+
+# --------------------------------------------------------------------------
+# the tables
+# --------------------------------------------------------------------------
+TITLE = Key("title", STRING, "Title of the case.", computed="the file name without extension")
+
+SUBSTRATE = Table("substrate", "substrate", "The wafer.", (
+    Key("material", MATERIAL, "Material name, as `mesastrain materials` lists them.",
+        required="the substrate material"),
+    Key("x", FRACTION, "Alloy fraction of the second member (alloys only)."),
+    Key("thickness", POSITIVE_LENGTH, "Wafer thickness.",
+        required='the wafer thickness, e.g. "0.5 mm"'),
+    Key("normal", INDICES, "Surface plane (hkl) or (hkil): sample +z.",
+        required="the surface plane as Miller indices, e.g. [0, 0, 1]"),
+    Key("x_axis", INDICES, "Crystal direction [uvw] or [UVTW] along sample +x, in the surface.",
+        required="the crystal direction along sample x, e.g. [1, 1, 0]"),
+))
+
+LAYER = Table("layer", "layers", "The grown layers, bottom to top; at least one.", (
+    Key("material", MATERIAL, "Material name.", required="the layer material"),
+    Key("x", FRACTION, "Alloy fraction of the second member (alloys only)."),
+    Key("thickness", POSITIVE_LENGTH, "Layer thickness.",
+        required='the layer thickness, e.g. "40 nm"'),
+    Key("relaxed", FRACTION, "0 = pseudomorphic to the layer below, 1 = fully relaxed.",
+        default=0.0),
+    Key("normal", INDICES, "The layer's surface plane; give both normal and x_axis or neither.",
+        computed="the substrate's (when the crystal systems agree)"),
+    Key("x_axis", INDICES, "The layer's crystal direction along sample +x.",
+        computed="the substrate's (when the crystal systems agree)"),
+), array=True)
+
+PATTERN = Table("pattern", "pattern", "The etched feature, centred on x = y = 0.", (
+    Key("shape", Kind(rd.shape_name(PATTERN_SHAPES), _enum(PATTERN_SHAPES)),
+        '"none" (blanket film), a feature, or "mesh" (an imported mesh).',
+        required="the pattern shape; allowed: " + ", ".join(f'"{s}"' for s in PATTERN_SHAPES)),
+    Key("width", POSITIVE_LENGTH, "Feature size at its top along sample x.",
+        shapes=("rectangle", "stripe"),
+        required_for=(("rectangle", 'the rectangle width along sample x, e.g. "2 um"'),
+                      ("stripe", 'the stripe width along sample x, e.g. "2 um"'))),
+    Key("length", POSITIVE_LENGTH, "Feature size at its top along sample y.",
+        computed="the width (a square)", shapes=("rectangle",)),
+    Key("etch_depth", POSITIVE_LENGTH, "Depth of the etch, measured down from the top surface.",
+        computed="the whole layer stack", shapes=FEATURE_SHAPES),
+    Key("margin", POSITIVE_LENGTH, "Width of etched-floor substrate modelled around the "
+                                   "feature (default: the mesher chooses).",
+        shapes=FEATURE_SHAPES),
+    Key("corner_radius", NONNEGATIVE_LENGTH, "Rounding radius of a rectangle's vertical edges.",
+        shapes=("rectangle",)),
+    Key("diameter", POSITIVE_LENGTH, "Disk diameter at its top.", shapes=("disk",),
+        required_for=(("disk", 'the disk diameter, e.g. "1 um"'),)),
+    Key("vertices", Kind(rd.vertices, {"type": "array", "minItems": 3, "items": {
+        "type": "array", "items": _ref("length"), "minItems": 2, "maxItems": 2}}),
+        "Polygon outline at its top, [[x, y], ...] in order (either sense).",
+        shapes=("polygon",),
+        required_for=(("polygon", ('the outline as [[x, y], ...] in nm, e.g. '
+                                   '[[0, 0], [500, 0], [0, 400]]')),)),
+    Key("sidewall_angle", Kind(rd.angle_between(*SIDEWALL_ANGLE_RANGE),
+                               _number(minimum=SIDEWALL_ANGLE_RANGE[0],
+                                       maximum=SIDEWALL_ANGLE_RANGE[1])),
+        "Angle between sidewall and substrate plane, degrees (90 vertical, < 90 widening "
+        "toward the foot, > 90 undercut; default 90).", shapes=FEATURE_SHAPES),
+    Key("pitch", PITCH, "Period of an infinite array of the feature: one length (along x; "
+                        "a stripe grating, or the same along y) or [px, py].",
+        shapes=FEATURE_SHAPES),
+    Key("symmetry", _choice(SYMMETRY_CHOICES), '"auto" uses the mirror planes that geometry '
+                                               'and crystal share (default), "full" none.'),
+    Key("file", STRING, "Imported mesh file, relative to the case file.", shapes=("mesh",),
+        required_for=(("mesh", 'the mesh file, e.g. "device.msh"'),)),
+    Key("unit", Kind(rd.length_unit, _enum(LENGTH_UNITS)),
+        "Length unit of the imported mesh coordinates (default nm).", shapes=("mesh",)),
+    Key("groups", GROUPS, 'Imported mesh: physical group name -> region (0 or "substrate", '
+                          'i = layer i counted from 1).', shapes=("mesh",),
+        required_for=(("mesh", ('a table mapping physical groups to regions, '
+                                'e.g. groups = { substrate = 0, film = 1 }')),)),
+))
+#: Keys of [pattern] that each shape accepts (besides those every shape takes: shape, symmetry).
+SHAPE_KEYS = {s: tuple(k.name for k in PATTERN.keys if s in k.shapes) for s in PATTERN_SHAPES}
+#: The [pattern] keys each shape requires, in the order they are checked, with the hint.
+SHAPE_REQUIRES = {s: tuple((k.name, hint) for k in PATTERN.keys for shape, hint in k.required_for
+                           if shape == s) for s in PATTERN_SHAPES}
+
+THERMAL = Table("thermal", "thermal", "Growth and final (use) temperatures; both or neither.", (
+    Key("growth_temperature", TEMPERATURE, "Temperature at which the layers grew.",
+        required='both temperatures, e.g. growth_temperature = "700 C", '
+                 'final_temperature = "20 C"'),
+    Key("final_temperature", TEMPERATURE, "Temperature of use.",
+        required='both temperatures, e.g. growth_temperature = "700 C", '
+                 'final_temperature = "20 C"'),
+))
+
+MESH = Table("mesh", "mesh", "Mesh requests.", (
+    Key("size", POSITIVE_LENGTH, "Target element size (default: the mesher chooses)."),
+    Key("edge_size", POSITIVE_LENGTH, "Element size at edges and interfaces."),
+    Key("order", Kind(rd.mesh_order, _enum((1, 2))), "Polynomial order of the elements.",
+        computed="1 on structured hexahedra (blanket, rectangle without corner_radius), "
+                 "else 2"),
+    Key("growth", Kind(rd.growth, _number(exclusiveMinimum=1, maximum=3)),
+        "Geometric grading ratio between neighbouring elements.", default=1.3),
+    Key("substrate_depth", POSITIVE_LENGTH, "Modelled depth of substrate below z = 0 "
+                                            "(default: the mesher chooses)."),
+    Key("refine", Kind(rd.refine, _number(minimum=0.25, maximum=16)),
+        "Divides every element size (default 1)."),
+    Key("convergence", BOOL, "Repeat the solve on two refinements and report how the "
+                             "headline figures move."),
+))
+
+_TOLERANCE = Kind(rd.tolerance, _number(exclusiveMinimum=0, maximum=1e-2))
+SOLVER = Table("solver", "solver", "Linear solver settings.", (
+    Key("method", _choice(SOLVER_METHODS), "Linear solver.", default="auto"),
+    Key("tolerance", _TOLERANCE, "Relative residual tolerance.", default=1e-8),
+    Key("max_iterations", _int_at_least(1), "Iteration cap.", default=2000),
+    Key("stress_tolerance", _TOLERANCE, "Relative energy-norm (stress) error at which the "
+                                        "iteration may stop.", default=1e-4),
+    Key("precision", _choice(SOLVER_PRECISIONS), "Precision of the multigrid "
+                                                 "preconditioner.", default="single"),
+    Key("direct_limit", _int_at_least(0), "Free unknowns up to which method = \"auto\" "
+                                          "factorises directly (default: the solver's)."),
+))
+
+_NAME = Key("name", STRING, "Name, unique among its kind.", computed="the kind and its number, "
+                                                                     "e.g. probe2")
+PROBE = Table("probe", "probes", "Points where tensors are reported.", (
+    Key("at", POINT, "The point [x, y, z].", required='the point [x, y, z], e.g. [0, 0, "20 nm"]'),
+    _NAME,
+), array=True)
+
+CUT = Table("cut", "cuts", "Straight line cuts, written as CSV and plotted.", (
+    Key("from", POINT, "Start point [x, y, z].", required="the start point [x, y, z]",
+        attr="start"),
+    Key("to", POINT, "End point [x, y, z].", required="the end point [x, y, z]", attr="end"),
+    Key("points", _int_at_least(2), "Number of sample points.", default=101),
+    _NAME,
+    Key("components", COMPONENTS, "Components plotted.", default=DEFAULT_CUT_COMPONENTS),
+), array=True)
+
+OUTPUT = Table("output", "output", "Output switches.", (
+    Key("vtu", BOOL, "Write fields.vtu.", default=True),
+    Key("crystal_frame", BOOL, "Also report tensors in each layer's crystal axes.",
+        default=True),
+    Key("report", BOOL, "Write report.html with its pictures.", default=True),
+    Key("maps", COMPONENTS, "Components drawn as plan-view and cross-section maps.",
+        default=DEFAULT_MAPS),
+))
+
+CHANNEL = Table("channel", "channels", "Conduction channels for the piezoresistance readout.", (
+    Key("direction", Kind(rd.channel_direction, {"type": "array", "items": {"type": "number"},
+                                                 "minItems": 2, "maxItems": 3}),
+        "Current direction [x, y] or [x, y, 0] in the sample frame (wafer plane).",
+        required="the in-plane current direction [x, y] in the sample frame, e.g. [1, 0] "
+                 "along x_axis"),
+    Key("carrier", _choice(CARRIERS), '"n" (electrons) or "p" (holes).',
+        required='the carrier type, "n" or "p"'),
+    _NAME,
+), array=True)
+
+DEVICE = Table("device", "device", "Switches of the device-physics readouts.", (
+    Key("bands", BOOL, "Band-edge shifts.", default=True),
+    Key("raman", BOOL, "Raman shift.", default=True),
+    Key("piezo", BOOL, "Piezoresistance change.", default=True),
+    Key("raman_pdp", Kind(rd.raman_pdp, _raman_pdp_json(), echo=dict),
+        'Phonon deformation potential set per material, e.g. { Si = "..." } '
+        '(default: each material\'s own).', default=()),
+    Key("maps", BOOL, "Draw PNG sections of the device fields.", default=True),
+))
+
+READOUTS = Table("readouts", "readouts", "Settings of the engineering readouts.", (
+    Key("standoff", POSITIVE_LENGTH, "Distance from singular corners and edges at which "
+                                     "stresses are reported (default: half the thinnest "
+                                     "layer)."),
+    Key("wafer_diameter", POSITIVE_LENGTH, "Wafer diameter for the bow height.", default=2.0e8),
+    Key("bow", BOOL, "Solve the free-standing blanket wafer for its curvature.", default=True),
+))
+
+DISLOCATIONS = Table("dislocations", "dislocations", "Families of parallel straight misfit "
+                     "dislocations; each gives one of positions, spacing and relaxation.", (
+    _NAME,
+    Key("interface", _int_at_least(0), "The lines lie at the bottom of layer[interface].",
+        required="the interface index: the lines lie at the bottom of layer[interface]"),
+    Key("line", INDICES, "Line direction [uvw] in the crystal axes of the layer above.",
+        required="the line direction [u, v, w] (crystal axes of the layer above)"),
+    Key("burgers", INDICES, "Direction of the Burgers vector, same axes.",
+        required="the Burgers vector direction [u, v, w], e.g. [1, 0, 1] with "
+                 "burgers_fraction = 0.5"),
+    Key("burgers_fraction", Kind(rd.positive_number, _number(exclusiveMinimum=0)),
+        "b = burgers_fraction * a * [uvw].", default=1.0),
+    Key("positions", Kind(rd.lengths_list, {"type": "array", "items": _ref("length"),
+                                            "minItems": 1}),
+        "Positions of the lines from the pattern centre, normal to the lines."),
+    Key("spacing", POSITIVE_LENGTH, "Line spacing of a periodic array."),
+    Key("relaxation", Kind(rd.relaxation, _number(exclusiveMinimum=0, maximum=1)),
+        "Target relaxation of the layer's mismatch; sets the spacing."),
+    Key("offset", LENGTH, "Position of one line of a spacing/relaxation array.", default=0.0,
+        echo_if=lambda d: d.positions is None),
+), array=True)
+
+#: Every table, in the order the unknown-key error lists them (after ``title``).
+TABLES = (SUBSTRATE, LAYER, PATTERN, THERMAL, MESH, SOLVER, PROBE, CUT, OUTPUT, CHANNEL,
+          DEVICE, READOUTS, DISLOCATIONS)
+#: The allowed top-level keys.
+TOP_KEYS = (TITLE.name,) + tuple(t.name for t in TABLES)
+_BY_NAME = {t.name: t for t in TABLES}
+
+
+def table(name: str) -> Table:
+    """The declaration of table ``name`` (``"mesh"``, ``"layer"``, ...)."""
+    return _BY_NAME[name]
+
+
+def default_order(pattern: dict) -> int:
+    """Element order when ``[mesh] order`` is not given.
+
+    1 (trilinear) on the structured hexahedral meshes (blanket stacks and
+    rectangles without rounded corners, as :func:`mesastrain.run.resources.mesh_kind`
+    decides): on the demo mesa it reaches the centre stress within 0.5 % and
+    the stress 5 nm from the edge within 2 % about four times sooner than
+    27-node elements (benchmarks/time_to_accuracy.py). 2 (quadratic) on
+    tetrahedra and cross-sections, where linear elements are too stiff.
+    """
+    shape = pattern.get("shape", "none")
+    if shape == "none" or (shape == "rectangle" and not pattern.get("corner_radius")):
+        return 1
+    return 2
+
+
+def _key_schema(k: Key) -> dict:
+    out = dict(k.kind.json)
+    doc = k.doc
+    if k.computed:
+        doc += f" Default: {k.computed}."
+    out["description"] = doc
+    if k.default is not None:
+        out["default"] = k.kind.echo(k.default)
+    return out
+
+
+def _table_schema(tab: Table) -> dict:
+    out = {"type": "object", "description": tab.doc,
+           "properties": {k.name: _key_schema(k) for k in tab.keys},
+           "additionalProperties": False}
+    required = [k.name for k in tab.keys if k.required]
+    if required:
+        out["required"] = required
+    if tab is PATTERN:
+        every = tuple(k.name for k in PATTERN.keys if not k.shapes)
+        out["allOf"] = [
+            {"if": {"properties": {"shape": {"const": shape}}, "required": ["shape"]},
+             "then": {"propertyNames": _enum(every + allowed),
+                      **({"required": [n for n, _ in SHAPE_REQUIRES[shape]]}
+                         if SHAPE_REQUIRES[shape] else {})}}
+            for shape, allowed in SHAPE_KEYS.items()]
+    if tab.array:
+        del out["description"]
+        out = {"type": "array", "description": tab.doc, "items": out}
+        if tab is LAYER:
+            out["minItems"] = 1
+    return out
+
+
+def json_schema() -> dict:
+    """The JSON Schema (draft 2020-12) of the case file, from the declarations.
+
+    It checks names, types and the ranges a schema can express; the checks
+    that combine keys (a rectangle's width, probes inside the body, ...) are
+    made by :func:`mesastrain.case.parse.parse_case` only. The shipped copy
+    is ``mesastrain/case/schemas/case-1.json``.
+
+    Returns
+    -------
+    dict
+    """
+    props = {TITLE.name: _key_schema(TITLE)}
+    props.update({t.name: _table_schema(t) for t in TABLES})
+    props = copy.deepcopy(props)        # the kinds' fragments are shared
+    return {
+        "$schema": "https://json-schema.org/draft/2020-12/schema",
+        "title": "mesastrain case file",
+        "description": "A stack of crystalline layers on a wafer, an etched pattern, and the "
+                       "mesh, solver and output settings of one mesastrain run. Lengths are "
+                       "in nm unless a unit is given; z = 0 at the substrate's top surface.",
+        "type": "object",
+        "properties": props,
+        "required": [SUBSTRATE.name, LAYER.name],
+        "additionalProperties": False,
+        "$defs": copy.deepcopy(_DEFS),
+    }
+
+
+def json_schema_text() -> str:
+    """:func:`json_schema` as the text of :data:`SCHEMA_FILE` (2-space indent, final newline)."""
+    return json.dumps(json_schema(), indent=2, ensure_ascii=False) + "\n"
+
+
+if __name__ == "__main__":      # python -m mesastrain.case.schema: rewrite the shipped file
+    SCHEMA_FILE.write_text(json_schema_text(), encoding="utf-8")
+    print(f"wrote {SCHEMA_FILE}")

@@ -1,0 +1,437 @@
+"""The validated case: small frozen dataclasses, one per case-file table.
+
+:func:`mesastrain.case.parse.parse_case` builds them; everything downstream
+reads them. Lengths in nm, temperatures in kelvin. The defaults of optional
+keys and the echo :meth:`Case.to_dict` come from the declarations in
+:mod:`mesastrain.case.schema`.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+from mesastrain.case.keys import echo
+from mesastrain.case.schema import (CUT, DEVICE, DISLOCATIONS, MESH, OUTPUT, READOUTS, SOLVER,
+                                    TABLES, TITLE)
+
+__all__ = [
+    "TABLE_TYPES", "Case", "Channel", "DeviceSettings", "DislocationSet", "Layer", "LineCut",
+    "MeshSettings", "OutputSettings", "Pattern", "Probe", "ReadoutSettings", "SolverSettings",
+    "Substrate", "Thermal",
+]
+
+
+@dataclass(frozen=True)
+class Substrate:
+    """The wafer.
+
+    Attributes
+    ----------
+    material : str
+        Name as in :func:`mesastrain.physics.materials.known_materials`.
+    x : float or None
+        Alloy fraction of the second member; None for non-alloys.
+    thickness : float
+        Wafer thickness, nm.
+    normal : tuple of int
+        Surface plane (hkl) or (hkil); sample +z.
+    x_axis : tuple of int
+        Crystal direction [uvw] or [UVTW] along sample +x.
+    """
+
+    material: str
+    x: float | None
+    thickness: float
+    normal: tuple
+    x_axis: tuple
+
+
+@dataclass(frozen=True)
+class Layer:
+    """One grown layer.
+
+    Attributes
+    ----------
+    material, x
+        As for :class:`Substrate`.
+    thickness : float
+        nm.
+    relaxed : float
+        0 = pseudomorphic to the layer below, 1 = fully relaxed.
+    normal, x_axis : tuple of int
+        The layer's crystal orientation. After :func:`mesastrain.case.parse.parse_case` these are
+        always filled: copied from the substrate when the file omits them
+        (allowed only when the crystal systems agree).
+    """
+
+    material: str
+    x: float | None
+    thickness: float
+    relaxed: float
+    normal: tuple | None
+    x_axis: tuple | None
+
+
+@dataclass(frozen=True)
+class Pattern:
+    """The etched feature, centred on x = y = 0.
+
+    Attributes
+    ----------
+    shape : str
+        ``"none"`` (blanket film), ``"rectangle"``, ``"stripe"`` (infinitely
+        long along y), ``"disk"``, ``"polygon"`` or ``"mesh"`` (imported).
+    width, length : float or None
+        Feature size at its top along sample x and y, nm (rectangle; a stripe
+        has only a width). None for other shapes.
+    etch_depth : float or None
+        Depth of the etch measured down from the top surface, nm.
+    margin : float or None
+        Lateral width of etched-floor substrate modelled around the feature,
+        nm; None lets the mesher choose.
+    corner_radius : float or None
+        Rounding radius of a rectangle's vertical edges, nm.
+    diameter : float or None
+        Disk diameter at its top, nm.
+    vertices : tuple of (x, y) or None
+        Polygon outline at its top, nm, in order (either sense).
+    sidewall_angle : float or None
+        Angle between sidewall and substrate plane, degrees (90 vertical,
+        < 90 widening toward the foot, > 90 undercut); None = 90.
+    pitch : tuple (px, py) or None
+        Period of an infinite array of the feature, nm (a stripe grating has
+        py = None).
+    symmetry : str or None
+        ``"auto"`` (default when None) or ``"full"``.
+    file : str or None
+        Imported mesh file (absolute, or as resolved from the case file).
+    unit : str or None
+        Length unit of the imported mesh coordinates (default nm).
+    groups : tuple of (str, int) or None
+        Imported mesh: physical group name -> region (0 substrate, i layer i).
+    """
+
+    shape: str
+    width: float | None
+    length: float | None
+    etch_depth: float | None
+    margin: float | None
+    corner_radius: float | None = None
+    diameter: float | None = None
+    vertices: tuple | None = None
+    sidewall_angle: float | None = None
+    pitch: tuple | None = None
+    symmetry: str | None = None
+    file: str | None = None
+    unit: str | None = None
+    groups: tuple | None = None
+
+    @property
+    def patterned(self) -> bool:
+        """True when the stack is etched into a feature."""
+        return self.shape != "none"
+
+
+@dataclass(frozen=True)
+class Thermal:
+    """Growth and final (use) temperatures, kelvin."""
+
+    growth_temperature: float
+    final_temperature: float
+
+
+@dataclass(frozen=True)
+class MeshSettings:
+    """Mesh requests.
+
+    Attributes
+    ----------
+    size : float or None
+        Target element size, nm; None lets the mesher choose.
+    edge_size : float or None
+        Element size at edges and interfaces, nm.
+    order : int
+        Polynomial order of the elements, 1 or 2 (default:
+        :func:`mesastrain.case.schema.default_order`).
+    growth : float
+        Geometric grading ratio between neighbouring elements, in (1, 3].
+    substrate_depth : float or None
+        Modelled depth of substrate below z = 0, nm; None lets the mesher choose.
+    refine : float or None
+        Divides every element size (default sizes or the ones given); None = 1.
+    convergence : bool or None
+        Repeat the solve on two refinements and report how the headline
+        figures move (as ``mesastrain run --convergence``).
+    """
+
+    size: float | None
+    edge_size: float | None
+    order: int
+    growth: float
+    substrate_depth: float | None
+    refine: float | None = MESH.default("refine")
+    convergence: bool | None = MESH.default("convergence")
+
+
+@dataclass(frozen=True)
+class SolverSettings:
+    """Linear solver choice: method, relative tolerance, iteration cap.
+
+    ``stress_tolerance`` is the relative energy-norm (stress) error at which
+    the iteration may stop (besides the residual); ``precision`` that of the
+    multigrid preconditioner; ``direct_limit`` the number of free unknowns up
+    to which ``method = "auto"`` factorises directly (None: the solver's
+    default). See :mod:`mesastrain.fem.solve`.
+    """
+
+    method: str
+    tolerance: float
+    max_iterations: int
+    stress_tolerance: float = SOLVER.default("stress_tolerance")
+    precision: str = SOLVER.default("precision")
+    direct_limit: int | None = SOLVER.default("direct_limit")
+
+
+@dataclass(frozen=True)
+class Probe:
+    """A point where tensors are reported; ``at`` = (x, y, z) in nm."""
+
+    name: str
+    at: tuple
+
+
+@dataclass(frozen=True)
+class LineCut:
+    """A straight line cut (``[[cut]]``) from ``start`` to ``end`` (nm), ``points`` samples."""
+
+    name: str
+    start: tuple
+    end: tuple
+    points: int
+    components: tuple = CUT.default("components")
+
+
+@dataclass(frozen=True)
+class OutputSettings:
+    """Output switches.
+
+    Attributes
+    ----------
+    vtu : bool
+        Write ``fields.vtu``.
+    crystal_frame : bool
+        Also report tensors in each layer's crystal axes.
+    report : bool
+        Write ``report.html`` with its pictures (needs ``vtu`` for the maps).
+    maps : tuple of str
+        Components (:data:`mesastrain.case.schema.FIELD_COMPONENTS`) drawn as plan-view and
+        cross-section maps in the report.
+    """
+
+    vtu: bool
+    crystal_frame: bool
+    report: bool = OUTPUT.default("report")
+    maps: tuple = OUTPUT.default("maps")
+
+
+@dataclass(frozen=True)
+class ReadoutSettings:
+    """Settings of the engineering readouts (``[readouts]``).
+
+    Attributes
+    ----------
+    standoff : float or None
+        Distance from singular corners and edges at which stresses are
+        reported, nm; None: half the thinnest layer.
+    wafer_diameter : float
+        Wafer diameter for the bow height, nm (default 200 mm).
+    bow : bool
+        Solve the free-standing blanket wafer for its curvature (a small
+        extra finite-element solve).
+    """
+
+    standoff: float | None = READOUTS.default("standoff")
+    wafer_diameter: float = READOUTS.default("wafer_diameter")
+    bow: bool = READOUTS.default("bow")
+
+
+@dataclass(frozen=True)
+class Channel:
+    """A conduction channel for the piezoresistance readout.
+
+    Attributes
+    ----------
+    name : str
+    direction : tuple of float
+        (x, y, 0) in the SAMPLE frame as written (not normalised): the current
+        direction on the mask, in the wafer plane (sample x = the substrate's
+        ``x_axis``).
+    carrier : str
+        ``"n"`` (electrons) or ``"p"`` (holes).
+    """
+
+    name: str
+    direction: tuple
+    carrier: str
+
+
+@dataclass(frozen=True)
+class DeviceSettings:
+    """Switches of the device-physics readouts (``[device]``).
+
+    Attributes
+    ----------
+    bands, raman, piezo : bool
+        Compute band-edge shifts, the Raman shift, the piezoresistance change.
+    raman_pdp : tuple of (str, str)
+        (material, PDP set) pairs overriding each material's default set of
+        phonon deformation potentials; empty = defaults.
+    maps : bool
+        Draw PNG sections of the device fields into the result folder.
+    """
+
+    bands: bool = DEVICE.default("bands")
+    raman: bool = DEVICE.default("raman")
+    piezo: bool = DEVICE.default("piezo")
+    raman_pdp: tuple = DEVICE.default("raman_pdp")
+    maps: bool = DEVICE.default("maps")
+
+
+@dataclass(frozen=True)
+class DislocationSet:
+    """A family of parallel straight misfit dislocations in one interface (``[[dislocations]]``).
+
+    Attributes
+    ----------
+    name : str
+    interface : int
+        The lines lie at the bottom of ``layer[interface]`` (0: the substrate/
+        first-layer interface at z = 0).
+    line : tuple of int
+        Line direction [uvw] (or [UVTW]) in the crystal axes of that layer;
+        it must lie in the interface.
+    burgers : tuple of int
+        Direction of the Burgers vector, same crystal axes.
+    burgers_fraction : float
+        b = burgers_fraction * a * [uvw] with a the relaxed lattice constant
+        of the layer above the interface (0.5 for a/2<110>). The sign of b is
+        chosen so that the lines relieve that layer's mismatch.
+    positions : tuple of float or None
+        Positions of the lines, nm, measured from the pattern centre along
+        the in-plane direction z x line (normal to the lines).
+    spacing : float or None
+        Line spacing S of a periodic array, nm.
+    relaxation : float or None
+        Target relaxation of the layer's mismatch, 0 < r <= 1; the spacing
+        is S = b_edge / (r |misfit|) with b_edge the edge component of b in
+        the interface normal to the lines.
+    offset : float
+        Position of one line of a spacing/relaxation array, nm (default 0).
+
+    Exactly one of ``positions``, ``spacing`` and ``relaxation`` is set.
+    """
+
+    name: str
+    interface: int
+    line: tuple
+    burgers: tuple
+    burgers_fraction: float = DISLOCATIONS.default("burgers_fraction")
+    positions: tuple | None = DISLOCATIONS.default("positions")
+    spacing: float | None = DISLOCATIONS.default("spacing")
+    relaxation: float | None = DISLOCATIONS.default("relaxation")
+    offset: float = DISLOCATIONS.default("offset")
+
+
+@dataclass(frozen=True)
+class Case:
+    """A validated case.
+
+    Attributes
+    ----------
+    title : str
+    substrate : Substrate
+    layers : tuple of Layer
+        Bottom to top; at least one.
+    pattern : Pattern
+    thermal : Thermal or None
+    mesh : MeshSettings
+    solver : SolverSettings
+    probes : tuple of Probe
+    cuts : tuple of LineCut
+    output : OutputSettings
+    source : str or None
+        The file the case was read from.
+    channels : tuple of Channel
+        Piezoresistance channels (``[[channel]]``), possibly empty.
+    device : DeviceSettings
+        Device-physics switches (``[device]``).
+    dislocations : tuple of DislocationSet
+        Misfit dislocations (``[[dislocations]]``), possibly empty.
+    readouts : ReadoutSettings
+        Stand-off distance, wafer diameter and bow switch (``[readouts]``).
+    """
+
+    title: str
+    substrate: Substrate
+    layers: tuple
+    pattern: Pattern
+    thermal: Thermal | None
+    mesh: MeshSettings
+    solver: SolverSettings
+    probes: tuple
+    cuts: tuple
+    output: OutputSettings
+    source: str | None = None
+    channels: tuple = ()
+    device: DeviceSettings = DeviceSettings()
+    readouts: ReadoutSettings = ReadoutSettings()
+    dislocations: tuple = ()
+
+    @property
+    def stack_thickness(self) -> float:
+        """Total thickness of the layers, nm."""
+        return math.fsum(layer.thickness for layer in self.layers)
+
+    @property
+    def top(self) -> float:
+        """z of the top surface, nm (equal to :attr:`stack_thickness`)."""
+        return self.stack_thickness
+
+    @property
+    def interfaces(self) -> tuple:
+        """z of every layer boundary, nm: (0.0, top of layer 0, ..., top)."""
+        z = [0.0]
+        for layer in self.layers:
+            z.append(z[-1] + layer.thickness)
+        return tuple(z)
+
+    def to_dict(self) -> dict:
+        """JSON-ready echo of the resolved inputs.
+
+        Uses the case-file keys, so ``parse_case(case.to_dict())`` rebuilds an
+        equal case (apart from ``source``). Lengths are numbers in nm,
+        temperatures strings in kelvin (``"973.15 K"``, since a bare number
+        would be read as degrees Celsius); unset optional values are left out.
+        Derived from the declarations in :mod:`mesastrain.case.schema`.
+
+        Returns
+        -------
+        dict
+        """
+        out = {TITLE.name: self.title}
+        for tab in TABLES:
+            value = getattr(self, tab.attr)
+            if tab.array:
+                if value:
+                    out[tab.name] = [echo(tab, item) for item in value]
+            elif value is not None:
+                out[tab.name] = echo(tab, value)
+        return out
+
+
+#: The dataclass that holds each table of the case file, by table name.
+TABLE_TYPES = {"substrate": Substrate, "layer": Layer, "pattern": Pattern, "thermal": Thermal,
+               "mesh": MeshSettings, "solver": SolverSettings, "probe": Probe, "cut": LineCut,
+               "output": OutputSettings, "channel": Channel, "device": DeviceSettings,
+               "readouts": ReadoutSettings, "dislocations": DislocationSet}
