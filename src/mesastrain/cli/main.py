@@ -1,8 +1,9 @@
 """Command line: ``mesastrain run | check | materials``.
 
 Every user error ends in one line on stderr (``mesastrain: error: ...``) and
-exit status 2, with nothing written. Ctrl-C ends a run with status 130 and
-nothing written.
+exit status 2, with nothing written; so does an operating-system error (an
+unwritable or full output location, an unreadable file). Ctrl-C or SIGTERM ends a
+run with status 130 and nothing written.
 """
 
 from __future__ import annotations
@@ -83,15 +84,20 @@ def results_table(summary: dict) -> str:
 
 
 def cmd_run(args) -> int:
+    from mesastrain.io.destination import claim_output
+
+    case = _load(args.case)
+    out = Path(args.out) if args.out is not None else Path(Path(args.case).stem + "-results")
+    with claim_output(out, overwrite=args.overwrite, inputs=[args.case]) as dest:
+        return _solve_and_write(args, case, dest)
+
+
+def _solve_and_write(args, case, dest) -> int:
     from mesastrain.io.export import jsonable
     from mesastrain.io.folder import CAUTION, summary_of, write_result
     from mesastrain.derived import EIGENSTRAIN_SOURCES, PROVIDERS, solve_and_derive
 
-    case = _load(args.case)
-    out = Path(args.out) if args.out else Path(Path(args.case).stem + "-results")
-    if out.exists() and not args.overwrite:
-        _err(f"--out: {out} already exists; pass --overwrite to replace it")
-        return EXIT_USAGE
+    out = dest.path
     progress = _Progress(sys.stderr.isatty() or args.progress)
     progress(f"case {args.case}: {case.title}")
     study = None
@@ -104,7 +110,7 @@ def cmd_run(args) -> int:
     else:
         res = solve_and_derive(case, progress=progress, max_memory_gb=args.max_memory)
     progress("writing results")
-    write_result(res, out, overwrite=args.overwrite)
+    write_result(res, dest)
     summary = jsonable(summary_of(res))
     if not args.quiet:
         print(results_table(summary))
@@ -195,6 +201,13 @@ def build_parser() -> argparse.ArgumentParser:
     return p
 
 
+def _os_error_line(exc: OSError) -> str:
+    """One line for an operating-system error (unreadable input, unwritable output)."""
+    what = exc.strerror or str(exc) or type(exc).__name__
+    where = f"{exc.filename}: " if getattr(exc, "filename", None) else ""
+    return " ".join(f"{where}{what}".split())
+
+
 def _terminate(signum, frame):
     """SIGTERM ends a run like Ctrl-C: cleanly, nothing half-written."""
     raise KeyboardInterrupt
@@ -217,6 +230,9 @@ def main(argv=None) -> int:
     except KeyboardInterrupt:
         _err("interrupted; nothing was written (an earlier result in --out is unchanged)")
         return EXIT_INTERRUPTED
+    except OSError as exc:
+        _err(_os_error_line(exc))
+        return EXIT_USAGE
     except MemoryError:
         _err("ran out of memory; coarsen the mesh (mesh.size, mesh.edge_size); nothing was written")
         return EXIT_USAGE
