@@ -443,3 +443,21 @@ def test_a_newline_in_out_stays_on_one_line(project, tmp_path, capsys, no_solve)
     odd.write_text("user file")
     refused(["run", str(project), "--out", str(odd), "--overwrite", "-q"], tmp_path, capsys,
             "--out", "\\n")
+
+
+def test_lock_files_left_by_killed_runs_are_swept(tmp_path):
+    out = tmp_path / "res"
+    lock = destination._lock_path(tmp_path, "res")
+    if not lock.parent.name.startswith("mesastrain-locks"):
+        pytest.skip("no private lock folder here")
+    left = lock.parent / "0123456789abcdef0123456789abcdef.lock"
+    left.write_text("pid 1 on elsewhere")        # nobody holds it
+    with destination.claim_output(out) as dest:
+        assert dest._lock_path == lock and lock.exists()
+        assert not left.exists()
+        # a second claim of the same folder fails at once, naming --out
+        with pytest.raises(destination.OutputError, match="--out: .*another mesastrain run"):
+            with destination.claim_output(out):
+                pass
+    assert not lock.exists()
+    assert list(tmp_path.iterdir()) == []

@@ -177,7 +177,8 @@ def build_parser() -> argparse.ArgumentParser:
     r = sub.add_parser("run", help="solve a case and write its result folder")
     r.add_argument("case", help="case file (TOML)")
     r.add_argument("--out", help="result folder (default: <case name>-results)")
-    r.add_argument("--overwrite", action="store_true", help="replace an existing result folder")
+    r.add_argument("--overwrite", action="store_true",
+                   help="replace an earlier result folder (only one written by mesastrain)")
     r.add_argument("--max-memory", type=float, metavar="GB",
                    help="refuse a case whose estimated memory exceeds this")
     r.add_argument("--progress", action="store_true",

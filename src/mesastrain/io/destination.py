@@ -296,6 +296,34 @@ def _lock_path(parent: Path, name: str) -> Path:
     return parent / f".{name}.lock"
 
 
+def _sweep_locks(folder: Path, keep: Path, limit: int = 50) -> None:
+    """Remove lock files of the private lock folder that nobody holds (left by SIGKILL)."""
+    import fcntl
+
+    if not folder.name.startswith("mesastrain-locks"):
+        return                    # a lock beside the result: leave its neighbours alone
+    try:
+        names = [n for n in os.listdir(folder) if n.endswith(".lock")][:limit]
+    except OSError:
+        return
+    for n in names:
+        p = folder / n
+        if p == keep:
+            continue
+        try:
+            fd = os.open(p, os.O_RDWR | getattr(os, "O_CLOEXEC", 0))
+        except OSError:
+            continue
+        try:
+            fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+            if os.path.samestat(os.fstat(fd), os.stat(p)):
+                os.unlink(p)      # unlink while holding, as a release does
+        except OSError:
+            pass
+        finally:
+            os.close(fd)
+
+
 # --------------------------------------------------------------------------
 # the claim
 # --------------------------------------------------------------------------
@@ -394,6 +422,7 @@ class Destination:
             except OSError:
                 pass
             self._lock, self._lock_path = fd, path
+            _sweep_locks(path.parent, keep=path)
             return
         raise OutputError(f"could not lock {self.shown}; try again")
 

@@ -214,6 +214,21 @@ class _SignalState:
             libc.sigaction(int(s), buf, None)
 
 
+class _Blocked:
+    """SIGINT and SIGTERM blocked in this thread while gmsh changes their actions: one
+    arriving then waits and goes to the restored handler, not to gmsh's default."""
+
+    def __enter__(self):
+        self.mask = None
+        if hasattr(signal, "pthread_sigmask"):
+            self.mask = signal.pthread_sigmask(signal.SIG_BLOCK, set(_STOP_SIGNALS))
+
+    def __exit__(self, *exc):
+        if self.mask is not None:
+            signal.pthread_sigmask(signal.SIG_SETMASK, self.mask)
+        return False
+
+
 def _libc():
     try:
         return ctypes.CDLL(None, use_errno=True) if os.name == "posix" else None
@@ -259,13 +274,14 @@ class _Gmsh:
     def _start(self, gmsh):
         self.owner = not gmsh.isInitialized()
         if self.owner:
-            held = _SignalState()
-            try:
-                gmsh.initialize(readConfigFiles=False, interruptible=False)
-            except TypeError:      # a gmsh API without the keyword
-                gmsh.initialize(readConfigFiles=False)
-            finally:
-                held.restore()
+            with _Blocked():
+                held = _SignalState()
+                try:
+                    gmsh.initialize(readConfigFiles=False, interruptible=False)
+                except TypeError:      # a gmsh API without the keyword
+                    gmsh.initialize(readConfigFiles=False)
+                finally:
+                    held.restore()
             self.saved, self.previous = {}, None
         else:
             self.saved = {k: gmsh.option.getNumber(k) for k in _OPTIONS}
@@ -286,7 +302,12 @@ class _Gmsh:
         gmsh = self.gmsh
         try:
             if self.owner:
-                gmsh.finalize()
+                with _Blocked():
+                    held = _SignalState()
+                    try:
+                        gmsh.finalize()
+                    finally:
+                        held.restore()
                 return False
             gmsh.model.remove()
             for k, v in self.saved.items():
