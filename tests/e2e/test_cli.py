@@ -64,7 +64,7 @@ def test_run_refuses_existing_output(small_case, tmp_path, capsys):
 @pytest.mark.slow
 def test_overwrite_replaces_whole_folder(small_case, tmp_path):
     out = tmp_path / "res"
-    out.mkdir()
+    assert main(["run", str(small_case), "--out", str(out), "-q"]) == 0   # a previous result
     (out / "stale.txt").write_text("old")
     assert main(["run", str(small_case), "--out", str(out), "--overwrite", "-q"]) == 0
     assert not (out / "stale.txt").exists() and (out / "summary.json").exists()

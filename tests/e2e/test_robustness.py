@@ -158,11 +158,12 @@ def test_interrupted_overwrite_keeps_previous_result(tmp_path):
     case.write_text(BIGGER)
     out = tmp_path / "res"
     out.mkdir()
-    (out / "summary.json").write_text('{"previous": true}')
+    previous = {"program": {"name": "mesastrain"}, "previous": True}   # a previous result
+    (out / "summary.json").write_text(json.dumps(previous))
     proc = _start_run(case, out, overwrite=True)
     _wait_for(proc, "assembly:")
     proc.send_signal(signal.SIGINT)
     proc.wait(timeout=60)
     assert proc.returncode == 130
-    assert json.loads((out / "summary.json").read_text()) == {"previous": True}
+    assert json.loads((out / "summary.json").read_text()) == previous
     assert sorted(p.name for p in tmp_path.iterdir()) == ["c.toml", "res"]

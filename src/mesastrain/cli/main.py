@@ -6,8 +6,9 @@ One module per command (:mod:`~mesastrain.cli.run`, :mod:`~mesastrain.cli.check`
 :mod:`~mesastrain.cli.view`); this module wires them together.
 
 Every user error ends in one line on stderr (``mesastrain: error: ...``) and
-exit status 2, with nothing written. Ctrl-C ends a run with status 130 and
-nothing written.
+exit status 2, with nothing written; so does an operating-system error (an
+unwritable or full output location, an unreadable file). Ctrl-C or SIGTERM ends a
+run with status 130 and nothing written.
 """
 
 from __future__ import annotations
@@ -49,6 +50,13 @@ def _terminate(signum, frame):
     raise KeyboardInterrupt
 
 
+def _os_error_line(exc: OSError) -> str:
+    """One line for an operating-system error (unreadable input, unwritable output)."""
+    what = exc.strerror or str(exc) or type(exc).__name__
+    where = f"{exc.filename}: " if getattr(exc, "filename", None) else ""
+    return " ".join(f"{where}{what}".split())
+
+
 def main(argv=None) -> int:
     """Entry point; returns the exit status."""
     parser = build_parser()
@@ -68,6 +76,9 @@ def main(argv=None) -> int:
         return EXIT_INTERRUPTED
     except MemoryError:
         err("ran out of memory; coarsen the mesh (mesh.size, mesh.edge_size); nothing was written")
+        return EXIT_USAGE
+    except OSError as exc:
+        err(_os_error_line(exc))
         return EXIT_USAGE
     finally:
         if previous is not None:

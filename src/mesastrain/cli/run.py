@@ -12,7 +12,6 @@ import time
 from pathlib import Path
 
 from mesastrain.case.parse import load_case
-from mesastrain.cli.common import EXIT_USAGE, err
 
 
 class Progress:
@@ -53,16 +52,28 @@ def results_table(summary: dict) -> str:
 
 
 def cmd_run(args) -> int:
-    """``mesastrain run``: 0 when the result folder is written, 2 when ``--out`` exists."""
-    from mesastrain.io.export import jsonable
-    from mesastrain.io.folder import CAUTION, summary_of, write_result
-    from mesastrain.derived import PROVIDERS, solve_and_derive
+    """``mesastrain run``: 0 when the result folder is written.
+
+    ``--out`` is claimed before anything is solved
+    (:func:`mesastrain.io.destination.claim_output`): a file, the working folder,
+    the case's folder or an ancestor of either, a folder that is not an earlier
+    result, an unwritable place, or a folder another run is writing is refused
+    with one line naming ``--out``.
+    """
+    from mesastrain.io.destination import claim_output
 
     case = load_case(args.case)
-    out = Path(args.out) if args.out else Path(Path(args.case).stem + "-results")
-    if out.exists() and not args.overwrite:
-        err(f"--out: {out} already exists; pass --overwrite to replace it")
-        return EXIT_USAGE
+    out = Path(args.out) if args.out is not None else Path(Path(args.case).stem + "-results")
+    with claim_output(out, overwrite=args.overwrite, inputs=[args.case]) as dest:
+        return _solve_and_write(args, case, dest)
+
+
+def _solve_and_write(args, case, dest) -> int:
+    from mesastrain.derived import PROVIDERS, solve_and_derive
+    from mesastrain.io.export import jsonable
+    from mesastrain.io.folder import CAUTION, summary_of, write_result
+
+    out = dest.path
     progress = Progress(sys.stderr.isatty() or args.progress)
     progress(f"case {args.case}: {case.title}")
     study = None
@@ -74,7 +85,7 @@ def cmd_run(args) -> int:
     else:
         res = solve_and_derive(case, progress=progress, max_memory_gb=args.max_memory)
     progress("writing results")
-    write_result(res, out, overwrite=args.overwrite)
+    write_result(res, dest)
     summary = jsonable(summary_of(res))
     if not args.quiet:
         print(results_table(summary))
@@ -93,7 +104,8 @@ def add_command(subparsers) -> None:
     r = subparsers.add_parser("run", help="solve a case and write its result folder")
     r.add_argument("case", help="case file (TOML)")
     r.add_argument("--out", help="result folder (default: <case name>-results)")
-    r.add_argument("--overwrite", action="store_true", help="replace an existing result folder")
+    r.add_argument("--overwrite", action="store_true",
+                   help="replace an earlier result folder (only one written by mesastrain)")
     r.add_argument("--max-memory", type=float, metavar="GB",
                    help="refuse a case whose estimated memory exceeds this")
     r.add_argument("--progress", action="store_true",

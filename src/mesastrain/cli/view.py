@@ -30,7 +30,51 @@ def result_vtu(folder: Path) -> Path:
     if not vtu.is_file():
         raise CaseError("DIR", f"{folder} holds no fields.vtu (was it written with "
                                f"output.vtu = false?)")
+    check_fields(vtu)
     return vtu
+
+
+#: Arrays every ``fields.vtu`` written by mesastrain carries: (where, name, components).
+REQUIRED_ARRAYS = (("cell", "layer", 1), ("cell", "stress", 6), ("cell", "strain", 6),
+                   ("point", "displacement", 3))
+
+
+def check_fields(vtu: Path) -> None:
+    """Refuse a ``fields.vtu`` that is truncated, unreadable or not a mesastrain result.
+
+    It is parsed with meshio (pure Python, so a broken file gives an exception rather
+    than VTK's messages on stderr) and must hold cells and the arrays of
+    :data:`REQUIRED_ARRAYS` with one value per cell or point.
+    """
+    import numpy as np
+
+    def refuse(why: str) -> CaseError:
+        return CaseError("DIR", f"{vtu}: {why}; it is not a readable mesastrain fields.vtu "
+                                f"(run the case again to rewrite it)")
+
+    try:
+        from meshio import vtu as vtu_format    # the reader itself: meshio.read prints and
+                                                # calls sys.exit on a file it cannot parse
+        m = vtu_format.read(vtu)
+    except (Exception, SystemExit) as exc:
+        why = " ".join(str(exc).split())[:200] or type(exc).__name__
+        raise refuse(f"cannot be read ({why})") from None
+    ncells = sum(len(b.data) for b in m.cells)
+    if ncells == 0 or len(m.points) == 0:
+        raise refuse("holds no cells")
+    for where, name, ncomp in REQUIRED_ARRAYS:
+        if where == "cell":
+            blocks = m.cell_data.get(name)
+            data = None if blocks is None else [np.asarray(b) for b in blocks]
+            ok = data is not None and sum(len(b) for b in data) == ncells and all(
+                (b.ndim == 1 and ncomp == 1) or (b.ndim == 2 and b.shape[1] == ncomp)
+                for b in data)
+        else:
+            data = m.point_data.get(name)
+            data = None if data is None else np.asarray(data)
+            ok = data is not None and data.ndim == 2 and data.shape == (len(m.points), ncomp)
+        if not ok:
+            raise refuse(f"lacks the {where} array '{name}' ({ncomp} component(s) per {where})")
 
 
 def interactive(vtu: Path, name: str = "stress_xx") -> None:

@@ -2,16 +2,13 @@
 
 from __future__ import annotations
 
-import os
-import shutil
-import tempfile
 from pathlib import Path
 
 import numpy as np
 
 from mesastrain import __version__
 from mesastrain.physics.crystal import format_indices
-from mesastrain.errors import CaseError
+from mesastrain.io.destination import Destination, claim_output, write_failure
 from mesastrain.io.export import to_vtk6, write_json, write_vtu
 from mesastrain.fem.fields import hydrostatic, von_mises
 from mesastrain.model.regions import LayerModel
@@ -157,36 +154,39 @@ def vtu_data(res: Result) -> tuple[dict, dict]:
     return pd, cd
 
 
-def write_result(res: Result, out: Path, overwrite: bool = False) -> Path:
+def write_result(res: Result, out, overwrite: bool = False) -> Path:
     """Write the output folder atomically.
 
-    Everything goes into a temporary sibling folder first; only when every file
-    is complete is it renamed to ``out`` (replacing an earlier result when
-    ``overwrite``), so an interrupted run leaves the old result or nothing.
+    Everything goes into a partial folder beside the target first; only when every
+    file is complete is it swapped into place (replacing an earlier result when
+    ``overwrite``), so an interrupted or failed run leaves the old result or nothing.
+    See :mod:`mesastrain.io.destination` for what may be replaced.
 
     Parameters
     ----------
     res : Result
-    out : Path
-        Result folder.
+    out : Path or Destination
+        Result folder, or a location claimed before the solve with
+        :func:`mesastrain.io.destination.claim_output` (checked and locked).
     overwrite : bool
-        Replace an existing folder.
+        Replace an existing previous result (ignored for a Destination).
 
     Returns
     -------
     Path
-        ``out``.
+        The result folder.
+
+    Raises
+    ------
+    OutputError
+        The location is refused or in use, or writing failed (a full disk, ...).
     """
-    out = Path(out)
-    if out.exists() and not overwrite:
-        raise CaseError("--out", f"{out} already exists; pass --overwrite to replace it")
-    parent = out.resolve().parent
-    parent.mkdir(parents=True, exist_ok=True)
-    # leftovers of a run killed while writing (never visible as a result)
-    for stale in parent.glob(f".{out.name}.partial-*"):
-        shutil.rmtree(stale, ignore_errors=True)
-    tmp = Path(tempfile.mkdtemp(prefix=f".{out.name}.partial-", dir=parent))
+    if not isinstance(out, Destination):
+        with claim_output(out, overwrite) as dest:
+            return write_result(res, dest)
+    dest = out
     try:
+        tmp = dest.partial()
         write_json(tmp / "summary.json", summary_of(res))
         if res.case.output.vtu:
             pd, cd = vtu_data(res)
@@ -200,14 +200,6 @@ def write_result(res: Result, out: Path, overwrite: bool = False) -> Path:
                     render_section(tmp / "fields.vtu", tmp / name, **kwargs)
         if getattr(res.case.output, "report", False):   # last: it embeds the files above
             write_report(tmp)
-        if out.exists():
-            old = Path(tempfile.mkdtemp(prefix=f".{out.name}.old-", dir=parent))
-            os.replace(out, old / out.name)
-            os.replace(tmp, out)
-            shutil.rmtree(old, ignore_errors=True)
-        else:
-            os.replace(tmp, out)
-    except BaseException:
-        shutil.rmtree(tmp, ignore_errors=True)
-        raise
-    return out
+        return dest.commit(tmp)
+    except OSError as exc:
+        raise write_failure(exc, dest.shown) from None
