@@ -114,7 +114,7 @@ _CUT_KEYS = ("from", "to", "points", "name", "components")
 _OUTPUT_KEYS = ("vtu", "crystal_frame", "report", "maps")
 _READOUT_KEYS = ("standoff", "wafer_diameter", "bow")
 _CHANNEL_KEYS = ("direction", "carrier", "name")
-_DEVICE_KEYS = ("bands", "raman", "piezo", "raman_pdp", "maps")
+_DEVICE_KEYS = ("bands", "raman", "piezo", "raman_pdp", "raman_polarisation", "maps")
 _DISLOCATION_KEYS = ("name", "interface", "line", "burgers", "burgers_fraction", "positions",
                      "spacing", "relaxation", "offset")
 
@@ -388,6 +388,9 @@ class DeviceSettings:
         phonon deformation potentials; empty = defaults.
     maps : bool
         Draw PNG sections of the device fields into the result folder.
+    raman_polarisation : tuple
+        ((incident), (scattered)) in-plane sample-frame directions, or () for
+        unpolarised backscattering.
     """
 
     bands: bool = True
@@ -395,6 +398,7 @@ class DeviceSettings:
     piezo: bool = True
     raman_pdp: tuple = ()
     maps: bool = True
+    raman_polarisation: tuple = ()
 
 
 @dataclass(frozen=True)
@@ -566,6 +570,8 @@ class Case:
         dv = self.device
         out["device"] = {"bands": dv.bands, "raman": dv.raman, "piezo": dv.piezo,
                          "raman_pdp": dict(dv.raman_pdp), "maps": dv.maps}
+        if dv.raman_polarisation:
+            out["device"]["raman_polarisation"] = [list(v) for v in dv.raman_polarisation]
         if self.dislocations:
             out["dislocations"] = [drop_none({
                 "name": d.name, "interface": d.interface, "line": list(d.line),
@@ -992,6 +998,14 @@ def _raman_pdp(value, key: str) -> tuple:
     return tuple(sorted(out))
 
 
+def _raman_polarisation(value, key: str) -> tuple:
+    """``[[ix, iy], [sx, sy]]`` (incident, scattered; sample frame) -> two in-plane 3-tuples."""
+    if not isinstance(value, list) or len(value) != 2:
+        raise CaseError(key, f"expected [incident, scattered], two in-plane directions, e.g. "
+                             f"[[1, 0], [0, 1]], got {show_value(value)}")
+    return tuple(_channel_direction(v, f"{key}[{k}]") for k, v in enumerate(value))
+
+
 # --------------------------------------------------------------------------
 # the parser
 # --------------------------------------------------------------------------
@@ -1239,7 +1253,8 @@ class _Parser:
     def _device(self, value, key: str) -> DeviceSettings:
         t = _read_table(value, key, _DEVICE_KEYS,
                         {"bands": _bool, "raman": _bool, "piezo": _bool,
-                         "raman_pdp": _raman_pdp, "maps": _bool}, "[device]")
+                         "raman_pdp": _raman_pdp, "maps": _bool,
+                         "raman_polarisation": _raman_polarisation}, "[device]")
         return DeviceSettings(**t)
 
     def _channels(self, value, key: str) -> list:

@@ -14,13 +14,15 @@ band edges
     SiGe) on the common model-solid scale whose zero is E_v,av of unstrained
     Si, which gives band offsets between layers.
 Raman shift
-    The strain shift of the zone-centre optical phonon (cm^-1) seen in
-    backscattering from the wafer surface: of the three modes of the secular
-    equation (:mod:`mesastrain.physics.raman`), the one polarised closest to the
-    sample normal. On (001) this is the mode seen in the usual z(x,y)-z and
-    z(x',x')-z configurations. Si and Ge (the materials with tabulated phonon
-    deformation potentials); the PDP set per material can be chosen with
-    ``[device] raman_pdp``.
+    The strain shift of the zone-centre optical phonon line (cm^-1) seen in
+    backscattering along the wafer normal: the three modes of the secular
+    equation (:mod:`mesastrain.physics.raman`) weighted by their Raman
+    intensity from the Raman tensors (Loudon 1964), unpolarised or with the
+    ``[device] raman_polarisation`` directions. On (001) this is the single
+    z-polarised mode; on (110) the two in-plane modes. Si and Ge (tabulated
+    phonon deformation potentials; the PDP set per material can be chosen with
+    ``[device] raman_pdp``), the Si-Si line of SiGe (shift from the relaxed
+    alloy's line) and the GaN E2(high) line (biaxial basal-plane coefficient).
 piezoresistance
     For each ``[[channel]]`` (an in-plane current direction in the SAMPLE
     frame, i.e. on the mask, and a carrier type) the relative resistivity
@@ -50,7 +52,8 @@ Where the values go
 - ``summary.json``: a top-level ``device`` entry (units, parameters and
   sources per layer, Raman stress-per-shift factors for each layer's frame,
   channels, per-layer means and ranges) and, at each probe, ``raman_shift``
-  (with ``raman_modes``), ``band_edges`` and ``piezoresistance``.
+  (with ``raman_modes``: each mode's shift, polarisation and intensity share),
+  ``band_edges`` and ``piezoresistance``.
 - ``cut_<name>_device.csv`` along each ``[[cut]]``.
 - ``device_map_<field>.png``: sections y = 0 of the main fields.
 
@@ -72,7 +75,8 @@ from mesastrain.physics.crystal import format_indices
 from mesastrain.errors import CaseError, MaterialError, MesastrainError
 from mesastrain.physics.piezo import (PiezoCoefficients, longitudinal_transverse, pi_longitudinal, pi_transverse,
                     piezo_coefficients)
-from mesastrain.physics.raman import RamanParameters, phonon_shifts, raman_parameters, stress_factor
+from mesastrain.physics.raman import (BiaxialLine, RamanParameters, biaxial_line, raman_modes,
+                                     raman_parameters, stress_factor)
 
 __all__ = [
     "CONDUCTION_VALLEYS",
@@ -185,7 +189,7 @@ class RegionPlan:
     R : ndarray (3, 3)
         Sample axes in this region's crystal coordinates.
     bands : BandParameters or None
-    raman : RamanParameters or None
+    raman : RamanParameters or BiaxialLine or None
     piezo : dict of channel field -> PiezoCoefficients or None
     missing : dict of str -> str
         Why a readout does not apply (quantity -> reason).
@@ -195,7 +199,7 @@ class RegionPlan:
     label: str
     R: np.ndarray
     bands: BandParameters | None
-    raman: RamanParameters | None
+    raman: RamanParameters | BiaxialLine | None
     piezo: dict
     missing: dict
 
@@ -215,6 +219,8 @@ class Plan:
     regions : tuple of RegionPlan
     switches : dict
         The case's ``[device]`` switches as given.
+    raman_polarisation : tuple
+        ``(incident, scattered)`` sample-frame directions, or ``()`` (unpolarised).
     """
 
     bands: bool
@@ -223,6 +229,13 @@ class Plan:
     channels: tuple
     regions: tuple
     switches: dict
+    raman_polarisation: tuple = ()
+
+    @property
+    def raman_geometry(self) -> dict:
+        """Keyword arguments ``incident``, ``scattered`` of the Raman functions."""
+        pol = self.raman_polarisation
+        return {"incident": pol[0], "scattered": pol[1]} if pol else {}
 
     @property
     def any(self) -> bool:
@@ -242,10 +255,14 @@ def _band_params(mat) -> BandParameters | None:
         return None
 
 
-def _raman_params(mat, choice: dict) -> RamanParameters | None:
-    if mat.x is not None:
-        return None
+def _raman_params(mat, choice: dict) -> RamanParameters | BiaxialLine | None:
     try:
+        if mat.name == "SiGe":      # Si-Si line; the Si PDP set chosen gives the ratios
+            return raman_parameters("SiGe", choice.get("Si"), x=mat.x)
+        if mat.x is not None:
+            return None
+        if mat.name == "GaN":
+            return biaxial_line(mat.name)
         return raman_parameters(mat.name, choice.get(mat.name))
     except MaterialError:
         return None
@@ -298,7 +315,8 @@ def plan_of(case, layers) -> Plan:
     return Plan(bands=any(rp.bands is not None for rp in regions),
                 raman=any(rp.raman is not None for rp in regions), piezo=dev.piezo,
                 channels=channels, regions=regions,
-                switches={"bands": dev.bands, "raman": dev.raman, "piezo": dev.piezo})
+                switches={"bands": dev.bands, "raman": dev.raman, "piezo": dev.piezo},
+                raman_polarisation=tuple(getattr(dev, "raman_polarisation", ()) or ()))
 
 
 # --------------------------------------------------------------------------
@@ -365,8 +383,8 @@ def evaluate(plan: Plan, region, strain, stress) -> dict[str, np.ndarray]:
         Every name of :func:`field_names` (float; ``band_conduction_valleys``
         int32), NaN (0) where the region has no parameters. Extra entries
         with a leading underscore carry per-point detail for probes:
-        ``_raman_modes`` (n, 3) and ``_raman_polarisation`` (n, 3, 3) in the
-        sample frame.
+        ``_raman_modes`` (n, 3), ``_raman_share`` (n, 3) and
+        ``_raman_polarisation`` (n, 3, 3) in the sample frame.
     """
     region = np.asarray(region, dtype=int)
     strain = np.asarray(strain, dtype=float)
@@ -378,6 +396,7 @@ def evaluate(plan: Plan, region, strain, stress) -> dict[str, np.ndarray]:
         out["band_conduction_valleys"] = np.zeros(n, dtype=np.int32)
     if plan.raman:
         out["_raman_modes"] = np.full((n, 3), np.nan)
+        out["_raman_share"] = np.full((n, 3), np.nan)
         out["_raman_polarisation"] = np.full((n, 3, 3), np.nan)
     for rp in plan.regions:
         m = np.flatnonzero(region == rp.index)
@@ -385,13 +404,15 @@ def evaluate(plan: Plan, region, strain, stress) -> dict[str, np.ndarray]:
             continue
         R = rp.R
         eps_c = np.einsum("ai,nab,bj->nij", R, strain[m], R)      # T_c = R^T T_s R
-        if rp.raman is not None:
+        if isinstance(rp.raman, BiaxialLine):
+            out["raman_shift"][m] = rp.raman.shift(np.einsum("ai,nab,bj->nij", R, stress[m], R))
+        elif rp.raman is not None:
             p = rp.raman
-            shifts, modes = phonon_shifts(eps_c, p.p, p.q, p.r, p.omega0)
-            pick = np.argmax(np.abs(np.einsum("i,nij->nj", R[2], modes)), axis=1)
-            out["raman_shift"][m] = np.take_along_axis(shifts, pick[:, None], axis=1)[:, 0]
-            out["_raman_modes"][m] = shifts
-            out["_raman_polarisation"][m] = np.einsum("ia,naj->nij", R, modes)
+            rm = raman_modes(eps_c, p.p, p.q, p.r, p.omega0, R, **plan.raman_geometry)
+            out["raman_shift"][m] = rm.observable
+            out["_raman_modes"][m] = rm.shifts
+            out["_raman_share"][m] = rm.share
+            out["_raman_polarisation"][m] = np.einsum("ia,naj->nij", R, rm.polarisation)
         if rp.bands is not None:
             b = rp.bands
             s = band_edge_shifts(eps_c, b)
@@ -460,10 +481,12 @@ def _piezo_coefficients_along(ch: ChannelSpec, R, coeffs) -> dict:
             "pi_normal": float(pi_transverse(lc, R[2], coeffs))}
 
 
-def _factor(kind: str, params, stiffness, R) -> float | None:
+def _factor(kind: str, params, stiffness, R, geometry: dict) -> float | None:
+    if isinstance(params, BiaxialLine):     # c-plane biaxial coefficient only
+        return 1000.0 / params.per_gpa if kind == "biaxial" and abs(R[2, 2]) > 1 - 1e-9 else None
     try:
-        return stress_factor(kind, params, stiffness, R)
-    except MesastrainError:        # this stress does not move the mode seen here
+        return stress_factor(kind, params, stiffness, R, **geometry)
+    except MesastrainError:        # this stress does not move the line seen here
         return None
 
 
@@ -478,12 +501,21 @@ def _region_entry(rp: RegionPlan, plan: Plan, layer_model) -> dict:
     if rp.raman is not None:
         p = rp.raman
         stiff = layer_model.material.stiffness
+        geo = plan.raman_geometry
+        pol = (f"incident {list(geo['incident'])}, scattered {list(geo['scattered'])} "
+               f"(sample frame)" if geo else "unpolarised")
         entry["raman"] = {
-            "pdp_set": p.pdp_set, "omega0": p.omega0, "p": p.p, "q": p.q, "r": p.r,
-            "mode_seen": "polarised closest to the normal "
-                         + format_indices(layer_model.frame.normal, "()"),
-            "stress_per_shift_uniaxial_x": _factor("uniaxial", p, stiff, rp.R),
-            "stress_per_shift_biaxial": _factor("biaxial", p, stiff, rp.R),
+            "pdp_set": p.pdp_set, "omega0": p.omega0,
+            **({"line": p.mode, "per_gpa_biaxial": p.per_gpa} if isinstance(p, BiaxialLine)
+               else {"p": p.p, "q": p.q, "r": p.r}),
+            "mode_seen": ("intensity-weighted mean of the Raman-allowed optical modes "
+                          "(Loudon 1964), backscattering along the normal "
+                          + format_indices(layer_model.frame.normal, "()") + ", " + pol
+                          if not isinstance(p, BiaxialLine) else
+                          f"{p.mode} line; mean basal-plane stress times the biaxial "
+                          f"coefficient"),
+            "stress_per_shift_uniaxial_x": _factor("uniaxial", p, stiff, rp.R, geo),
+            "stress_per_shift_biaxial": _factor("biaxial", p, stiff, rp.R, geo),
         }
     pz = {}
     for ch in plan.channels:
@@ -546,9 +578,13 @@ def _probe_entries(plan: Plan, values: dict, probes: list) -> dict:
         rp = regions[pr["layer"]]
         if plan.raman and rp.raman is not None:
             raman[k] = float(values["raman_shift"][k])
-            modes[k] = {"shifts": values["_raman_modes"][k],
-                        "polarisation_sample": values["_raman_polarisation"][k].T,
-                        "pdp_set": rp.raman.pdp_set, "omega0": rp.raman.omega0}
+            modes[k] = ({"line": rp.raman.mode, "pdp_set": rp.raman.pdp_set,
+                         "omega0": rp.raman.omega0}
+                        if isinstance(rp.raman, BiaxialLine) else
+                        {"shifts": values["_raman_modes"][k],
+                         "share": values["_raman_share"][k],
+                         "polarisation_sample": values["_raman_polarisation"][k].T,
+                         "pdp_set": rp.raman.pdp_set, "omega0": rp.raman.omega0})
         if plan.bands and rp.bands is not None:
             shifts = {key: float(values[_vtu_band(key)][k]) for key in _band_keys(plan)
                       if np.isfinite(values[_vtu_band(key)][k])}
@@ -703,8 +739,8 @@ def map_fields(plan: Plan) -> dict[str, str]:
     with_raman = [rp for rp in plan.regions if rp.raman is not None]
     if plan.raman and with_raman:
         sets = ", ".join(sorted({f"{rp.label} {rp.raman.pdp_set}" for rp in with_raman}))
-        maps["raman_shift"] = (f"optical-phonon shift seen in backscattering from the surface "
-                               f"(PDPs {sets}); grey: no phonon deformation potentials")
+        maps["raman_shift"] = (f"optical-phonon line shift seen in backscattering (Raman-allowed "
+                               f"modes, intensity-weighted; {sets}); grey: no Raman data")
     if plan.bands and any(rp.bands is not None for rp in plan.regions):
         maps["band_gap_shift"] = ("strained minus unstrained gap (lowest modelled conduction "
                                   "valley to top valence band); grey: no deformation potentials")
@@ -768,8 +804,10 @@ def derive(res):
                           "scale (zero = E_v,av of unstrained Si)",
             "band_conduction_valleys": "bit mask: bit i set when conduction_valleys[i] lies "
                                        "within 1 meV of the lowest conduction edge",
-            "raman_shift": "strain shift of the optical phonon polarised closest to the wafer "
-                           "normal (backscattering from the surface), negative = softer",
+            "raman_shift": "strain shift of the optical-phonon line seen in backscattering along "
+                           "the wafer normal: the modes weighted by their Raman-tensor "
+                           "intensity (Loudon 1964); modes and shares at each probe; "
+                           "negative = softer",
             "piezo": "longitudinal = l.(d rho/rho).l for current along the channel direction "
                      "l; transverse = t.(d rho/rho).t for current along t = z x l in the "
                      "wafer plane; full stress tensor, percent",
@@ -939,7 +977,8 @@ def report_section(summary: dict, folder) -> str | None:
                     "biaxial", "gap change (meV)", "conduction edge in",
                     "&Delta;[001] &minus; &Delta;[100] (meV)"], rows, 2),
              '<p class="note">Element averages per region: mean [min, max]. Raman: the '
-             'optical phonon seen in backscattering from the surface (negative = softer '
+             'optical-phonon line seen in backscattering (Raman-allowed modes, intensity-'
+             'weighted; negative = softer '
              'line); &sigma; per &Delta;&omega; in MPa per cm<sup>-1</sup> is the stress a '
              'measured shift implies under that assumption (also <code>mesastrain '
              'raman-stress</code>). Gap: lowest modelled conduction valley to top valence '
