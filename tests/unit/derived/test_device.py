@@ -539,3 +539,23 @@ def test_raman_stress_command_errors(argv, fragment, capsys):
     assert main(["raman-stress", "1.0", *argv]) == 2
     err = capsys.readouterr().err.strip()
     assert fragment in err and "\n" not in err
+
+
+def test_raman_stress_command_on_110_and_polarised(capsys):
+    # (110), uniaxial along [1-10], unpolarised: the line is the 2:1 mean of the allowed modes
+    # -2.878 and -2.305 cm^-1 per GPa (REFERENCES.md section 7 [D]; Loudon 1964 tensors), so
+    # -372 MPa per cm^-1, not 1000/-0.556 = -1800 from the forbidden normal mode.
+    assert main(["raman-stress", "-1", "--kind", "uniaxial", "--normal", "1,1,0", "--along",
+                 "1,-1,0", "--json"]) == 0
+    d = json.loads(capsys.readouterr().out)
+    assert d["factor"] == pytest.approx(1000.0 / ((2 * -2.878 - 2.305) / 3), rel=0.002)
+    # polarised x(y)-type: incident along x, analyser along y sees only the [1-10] mode
+    assert main(["raman-stress", "-1", "--kind", "uniaxial", "--normal", "1,1,0", "--along",
+                 "1,-1,0", "--incident", "1,0", "--scattered", "0,1", "--json"]) == 0
+    d = json.loads(capsys.readouterr().out)
+    assert d["per_gpa"] == pytest.approx(-2.878, abs=0.002)
+    # z(x,x)-z with x along [100] on (001): no first-order signal (Loudon 1964)
+    assert main(["raman-stress", "-1", "--kind", "uniaxial", "--incident", "1,0",
+                 "--scattered", "1,0"]) == 2
+    err = capsys.readouterr().err.strip()
+    assert "Raman-active" in err and "\n" not in err
