@@ -2,6 +2,7 @@
 
 import json
 
+import numpy as np
 import pytest
 
 from mesastrain.cli import verify
@@ -53,3 +54,24 @@ def test_command_exit_status_and_json(monkeypatch, capsys):
     data = json.loads(capsys.readouterr().out)
     assert [d["passed"] for d in data] == [True, False]
     assert all(d["source"] for d in data)
+
+
+def test_json_on_real_rows(capsys):
+    # The real rows carry numpy values (passed came back as numpy.bool_ and broke json.dumps).
+    assert main(["verify", "--only", "raman", "rotation", "--json"]) == 0
+    data = json.loads(capsys.readouterr().out)
+    assert len(data) == 4 and all(d["passed"] is True for d in data)
+    assert all(isinstance(d["computed"], float) for d in data)
+    row = verify.Check("np", np.float32(1.0), "a source, 2024", np.float32(1.0), 1e-3)
+    assert type(row.passed) is bool
+
+
+def test_raman_rows():
+    # (001): -434 MPa per cm^-1 (De Wolf 1996, from memory); (110) along [1-10]: the observable
+    # line of the two allowed modes (Loudon 1964 selection rules), not the forbidden normal mode
+    # (which would give 1000/-0.556 = -1800).
+    rows = verify.check_raman()
+    assert [r.passed for r in rows] == [True, True]
+    assert rows[0].computed == pytest.approx(-434.0, rel=0.01)
+    assert rows[1].computed == pytest.approx(-372.1, abs=0.5)
+    assert "implementation check" in rows[1].quantity

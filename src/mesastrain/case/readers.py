@@ -329,6 +329,14 @@ def channel_direction(value, key: str) -> tuple:
     return (x, y, 0.0)
 
 
+def raman_polarisation(value, key: str) -> tuple:
+    """``[[ix, iy], [sx, sy]]`` (incident, scattered; sample frame) -> two in-plane 3-tuples."""
+    if not isinstance(value, list) or len(value) != 2:
+        raise CaseError(key, f"expected [incident, scattered], two in-plane directions, e.g. "
+                             f"[[1, 0], [0, 1]], got {show_value(value)}")
+    return tuple(channel_direction(v, f"{key}[{k}]") for k, v in enumerate(value))
+
+
 def raman_pdp(value, key: str) -> tuple:
     """``{ Si = "apbpc1970", ... }`` -> sorted ((material, set), ...)."""
     known = {m: pdp_sets(m) for m in device_parameters()["raman"]}

@@ -327,6 +327,15 @@ DEVICE = Table("device", "device", "Switches of the device-physics readouts.", (
         'Phonon deformation potential set per material, e.g. { Si = "..." } '
         '(default: each material\'s own).', default=()),
     Key("maps", BOOL, "Draw PNG sections of the device fields.", default=True),
+    Key("raman_polarisation",
+        Kind(rd.raman_polarisation,
+             {"type": "array", "minItems": 2, "maxItems": 2,
+              "items": {"type": "array", "items": {"type": "number"}, "minItems": 2,
+                        "maxItems": 3}},
+             echo=lambda v: [list(d) for d in v]),
+        "Incident and scattered polarisation directions [[ix, iy], [sx, sy]] in the sample "
+        "frame (wafer plane) for the Raman readout (default: unpolarised backscattering).",
+        default=(), echo_if=lambda d: bool(d.raman_polarisation)),
 ))
 
 READOUTS = Table("readouts", "readouts", "Settings of the engineering readouts.", (

@@ -289,6 +289,9 @@ class DeviceSettings:
         phonon deformation potentials; empty = defaults.
     maps : bool
         Draw PNG sections of the device fields into the result folder.
+    raman_polarisation : tuple
+        ((incident), (scattered)) in-plane sample-frame directions, or () for
+        unpolarised backscattering.
     """
 
     bands: bool = DEVICE.default("bands")
@@ -296,6 +299,7 @@ class DeviceSettings:
     piezo: bool = DEVICE.default("piezo")
     raman_pdp: tuple = DEVICE.default("raman_pdp")
     maps: bool = DEVICE.default("maps")
+    raman_polarisation: tuple = DEVICE.default("raman_polarisation")
 
 
 @dataclass(frozen=True)

@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import json
 
+from mesastrain.errors import CaseError
 from mesastrain.physics.raman import pdp_sets
 from mesastrain.physics.raman_stress import implied_stress, parse_indices, raman_materials
 
@@ -16,10 +17,20 @@ def _sign_word(v: float) -> str:
     return "tensile" if v > 0 else ("compressive" if v < 0 else "no stress")
 
 
+def _vector(text, option):
+    if text is None:
+        return None
+    try:
+        return [float(v) for v in text.replace(" ", "").split(",")]
+    except ValueError:
+        raise CaseError(option, f"expected numbers x,y in the sample frame, got {text!r}") from None
+
+
 def _run(args) -> int:
     d = implied_stress(args.shift, args.kind, args.material, parse_indices(args.normal, "--normal"),
                        None if args.along is None else parse_indices(args.along, "--along"),
-                       args.pdp)
+                       args.pdp, args.x, _vector(args.incident, "--incident"),
+                       _vector(args.scattered, "--scattered"))
     if args.json:
         print(json.dumps(d))
         return 0
@@ -39,12 +50,12 @@ def _run(args) -> int:
                   f"sum of the two {2 * s:+.1f} MPa")
     print(f"measured shift     {d['shift']:+.3f} cm^-1 from omega0 = {d['omega0']:g} cm^-1 "
           f"({d['material']})")
-    print(f"geometry           backscattering from the {d['normal']} surface; the phonon "
-          f"polarised closest to the normal is the one read")
+    print(f"geometry           {d['geometry']}")
     print(f"assumption         {assumption}")
-    print(f"PDPs               set {d['pdp_set']}: p = {d['p']:g}, q = {d['q']:g}, "
-          f"r = {d['r']:g} (omega0^2 units)")
-    print(f"stiffness          {d['material']} {consts} GPa")
+    if d["pdp_set"] is not None:
+        print(f"PDPs               set {d['pdp_set']}: p = {d['p']:g}, q = {d['q']:g}, "
+              f"r = {d['r']:g} (omega0^2 units)")
+        print(f"stiffness          {d['material']} {consts} GPa")
     print(f"conversion factor  {f:.1f} MPa per cm^-1{per}  "
           f"(1 GPa{' in each' if per else ''} shifts the line by {d['per_gpa']:+.3f} cm^-1)")
     print(f"implied stress     {result}")
@@ -75,5 +86,12 @@ def add_command(subparsers) -> None:
     p.add_argument("--pdp", metavar="SET",
                    help="phonon-deformation-potential set (Si: " + ", ".join(pdp_sets("Si"))
                         + "; default the first)")
+    p.add_argument("--x", type=float, help="Ge fraction (SiGe: the Si-Si line; the shift is "
+                                           "from the relaxed alloy's line)")
+    p.add_argument("--incident", metavar="X,Y",
+                   help="incident polarisation in the sample frame (x along --along); "
+                        "default unpolarised")
+    p.add_argument("--scattered", metavar="X,Y",
+                   help="scattered (analyser) polarisation in the sample frame; default none")
     p.add_argument("--json", action="store_true", help="print the result as JSON")
     p.set_defaults(func=_run)

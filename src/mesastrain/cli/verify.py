@@ -68,7 +68,8 @@ class Check:
 
     @property
     def passed(self) -> bool:
-        return bool(np.isfinite(self.computed)) and self.error <= self.tolerance
+        # plain bool: numpy comparisons give numpy.bool_, which json cannot write
+        return bool(np.isfinite(self.computed) and self.error <= self.tolerance)
 
 
 # --------------------------------------------------------------------------
@@ -322,10 +323,32 @@ def check_eshelby() -> list[Check]:
     ]
 
 
+def check_raman() -> list[Check]:
+    """Raman stress factors of Si: (001) against De Wolf, (110) by the selection rules."""
+    from mesastrain.physics.crystal import sample_frame
+    from mesastrain.physics.materials import get_material
+    from mesastrain.physics.raman import raman_parameters, stress_factor
+
+    p, si = raman_parameters("Si", "acc1990"), get_material("Si")
+    f001 = stress_factor("uniaxial", p, si.stiffness, sample_frame((0, 0, 1), (1, 0, 0)).R)
+    f110 = stress_factor("uniaxial", p, si.stiffness, sample_frame((1, 1, 0), (1, -1, 0)).R)
+    return [
+        Check("Si(001) backscattering, uniaxial stress per Raman shift (MPa per cm^-1)", -434.0,
+              "De Wolf, Semicond. Sci. Technol. 11, 139 (1996), from memory; 1990 PDPs",
+              f001, 0.01),
+        Check("Si(110) backscattering, unpolarised, uniaxial along [1-10]: stress per Raman "
+              "shift (MPa per cm^-1); implementation check", 1000.0 / ((2 * -2.878 - 2.305) / 3),
+              "modes -2.878 and -2.305 cm^-1 per GPa (Anastassakis, Cantarero & Cardona, PRB "
+              "41, 7529, 1990 PDPs; REFERENCES section 7, derived) seen with intensities 2:1, "
+              "the [110] mode forbidden (Raman tensors of Loudon, Adv. Phys. 13, 423, 1964); "
+              "formula evaluated with the tool's own PDPs", f110, 0.005),
+    ]
+
+
 #: Check groups, in the order of the table: functions returning a list of :class:`Check`.
 CHECKS: list[Callable[[], list[Check]]] = [
     check_rotation, check_blanket, check_thermal, check_critical_thickness, check_bow,
-    check_eshelby, check_dislocations]
+    check_eshelby, check_dislocations, check_raman]
 
 
 # --------------------------------------------------------------------------
@@ -364,12 +387,19 @@ def format_table(rows: list[Check]) -> str:
     return "\n".join(lines)
 
 
+def _plain(v):
+    """numpy scalars (and anything else with ``item``) as plain Python values for JSON."""
+    if hasattr(v, "item"):
+        return v.item()
+    raise TypeError(f"Object of type {type(v).__name__} is not JSON serializable")
+
+
 def cmd_verify(args) -> int:
     t = time.perf_counter()
     rows = run_checks(args.only)
     if args.json:
         print(json.dumps([dict(asdict(r), error=r.error if np.isfinite(r.error) else None,
-                               passed=r.passed) for r in rows], indent=1))
+                               passed=r.passed) for r in rows], indent=1, default=_plain))
     else:
         print("mesastrain verify: published solutions recomputed on this machine")
         print(format_table(rows))

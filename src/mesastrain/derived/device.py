@@ -14,13 +14,15 @@ band edges
     SiGe) on the common model-solid scale whose zero is E_v,av of unstrained
     Si, which gives band offsets between layers.
 Raman shift
-    The strain shift of the zone-centre optical phonon (cm^-1) seen in
-    backscattering from the wafer surface: of the three modes of the secular
-    equation (:mod:`mesastrain.physics.raman`), the one polarised closest to the
-    sample normal. On (001) this is the mode seen in the usual z(x,y)-z and
-    z(x',x')-z configurations. Si and Ge (the materials with tabulated phonon
-    deformation potentials); the PDP set per material can be chosen with
-    ``[device] raman_pdp``.
+    The strain shift of the zone-centre optical phonon line (cm^-1) seen in
+    backscattering along the wafer normal: the three modes of the secular
+    equation (:mod:`mesastrain.physics.raman`) weighted by their Raman
+    intensity from the Raman tensors (Loudon 1964), unpolarised or with the
+    ``[device] raman_polarisation`` directions. On (001) this is the single
+    z-polarised mode; on (110) the two in-plane modes. Si and Ge (tabulated
+    phonon deformation potentials; the PDP set per material can be chosen with
+    ``[device] raman_pdp``), the Si-Si line of SiGe (shift from the relaxed
+    alloy's line) and the GaN E2(high) line (biaxial basal-plane coefficient).
 piezoresistance
     For each ``[[channel]]`` (an in-plane current direction in the SAMPLE
     frame, i.e. on the mask, and a carrier type) the relative resistivity
@@ -50,7 +52,8 @@ Where the values go
 - ``summary.json``: a top-level ``device`` entry (units, parameters and
   sources per layer, Raman stress-per-shift factors for each layer's frame,
   channels, per-layer means and ranges) and, at each probe, ``raman_shift``
-  (with ``raman_modes``), ``band_edges`` and ``piezoresistance``.
+  (with ``raman_modes``: each mode's shift, polarisation and intensity share),
+  ``band_edges`` and ``piezoresistance``.
 - ``cut_<name>_device.csv`` along each ``[[cut]]``.
 - ``device_map_<field>.png``: sections y = 0 of the main fields.
 
@@ -74,7 +77,7 @@ from mesastrain.derived.device_physics import (CONDUCTION_VALLEYS, VALLEY_TIE_EV
 from mesastrain.errors import MesastrainError
 from mesastrain.physics.crystal import format_indices
 from mesastrain.physics.piezo import pi_longitudinal, pi_transverse
-from mesastrain.physics.raman import stress_factor
+from mesastrain.physics.raman import BiaxialLine, stress_factor
 from mesastrain.run.result import Derived
 from mesastrain.units import safe_name
 
@@ -114,10 +117,12 @@ def _piezo_coefficients_along(ch: ChannelSpec, R, coeffs) -> dict:
             "pi_normal": float(pi_transverse(lc, R[2], coeffs))}
 
 
-def _factor(kind: str, params, stiffness, R) -> float | None:
+def _factor(kind: str, params, stiffness, R, geometry: dict) -> float | None:
+    if isinstance(params, BiaxialLine):     # c-plane biaxial coefficient only
+        return 1000.0 / params.per_gpa if kind == "biaxial" and abs(R[2, 2]) > 1 - 1e-9 else None
     try:
-        return stress_factor(kind, params, stiffness, R)
-    except MesastrainError:        # this stress does not move the mode seen here
+        return stress_factor(kind, params, stiffness, R, **geometry)
+    except MesastrainError:        # this stress does not move the line seen here
         return None
 
 
@@ -132,12 +137,21 @@ def _region_entry(rp: RegionPlan, plan: Plan, layer_model) -> dict:
     if rp.raman is not None:
         p = rp.raman
         stiff = layer_model.material.stiffness
+        geo = plan.raman_geometry
+        pol = (f"incident {list(geo['incident'])}, scattered {list(geo['scattered'])} "
+               f"(sample frame)" if geo else "unpolarised")
         entry["raman"] = {
-            "pdp_set": p.pdp_set, "omega0": p.omega0, "p": p.p, "q": p.q, "r": p.r,
-            "mode_seen": "polarised closest to the normal "
-                         + format_indices(layer_model.frame.normal, "()"),
-            "stress_per_shift_uniaxial_x": _factor("uniaxial", p, stiff, rp.R),
-            "stress_per_shift_biaxial": _factor("biaxial", p, stiff, rp.R),
+            "pdp_set": p.pdp_set, "omega0": p.omega0,
+            **({"line": p.mode, "per_gpa_biaxial": p.per_gpa} if isinstance(p, BiaxialLine)
+               else {"p": p.p, "q": p.q, "r": p.r}),
+            "mode_seen": ("intensity-weighted mean of the Raman-allowed optical modes "
+                          "(Loudon 1964), backscattering along the normal "
+                          + format_indices(layer_model.frame.normal, "()") + ", " + pol
+                          if not isinstance(p, BiaxialLine) else
+                          f"{p.mode} line; mean basal-plane stress times the biaxial "
+                          f"coefficient"),
+            "stress_per_shift_uniaxial_x": _factor("uniaxial", p, stiff, rp.R, geo),
+            "stress_per_shift_biaxial": _factor("biaxial", p, stiff, rp.R, geo),
         }
     pz = {}
     for ch in plan.channels:
@@ -200,9 +214,13 @@ def _probe_entries(plan: Plan, values: dict, probes: list) -> dict:
         rp = regions[pr["layer"]]
         if plan.raman and rp.raman is not None:
             raman[k] = float(values["raman_shift"][k])
-            modes[k] = {"shifts": values["_raman_modes"][k],
-                        "polarisation_sample": values["_raman_polarisation"][k].T,
-                        "pdp_set": rp.raman.pdp_set, "omega0": rp.raman.omega0}
+            modes[k] = ({"line": rp.raman.mode, "pdp_set": rp.raman.pdp_set,
+                         "omega0": rp.raman.omega0}
+                        if isinstance(rp.raman, BiaxialLine) else
+                        {"shifts": values["_raman_modes"][k],
+                         "share": values["_raman_share"][k],
+                         "polarisation_sample": values["_raman_polarisation"][k].T,
+                         "pdp_set": rp.raman.pdp_set, "omega0": rp.raman.omega0})
         if plan.bands and rp.bands is not None:
             shifts = {key: float(values[vtu_band(key)][k]) for key in band_keys(plan)
                       if np.isfinite(values[vtu_band(key)][k])}
@@ -313,8 +331,10 @@ def derive(res):
                           "scale (zero = E_v,av of unstrained Si)",
             "band_conduction_valleys": "bit mask: bit i set when conduction_valleys[i] lies "
                                        "within 1 meV of the lowest conduction edge",
-            "raman_shift": "strain shift of the optical phonon polarised closest to the wafer "
-                           "normal (backscattering from the surface), negative = softer",
+            "raman_shift": "strain shift of the optical-phonon line seen in backscattering along "
+                           "the wafer normal: the modes weighted by their Raman-tensor "
+                           "intensity (Loudon 1964); modes and shares at each probe; "
+                           "negative = softer",
             "piezo": "longitudinal = l.(d rho/rho).l for current along the channel direction "
                      "l; transverse = t.(d rho/rho).t for current along t = z x l in the "
                      "wafer plane; full stress tensor, percent",

@@ -77,8 +77,8 @@ def map_fields(plan: Plan) -> dict[str, str]:
     with_raman = [rp for rp in plan.regions if rp.raman is not None]
     if plan.raman and with_raman:
         sets = ", ".join(sorted({f"{rp.label} {rp.raman.pdp_set}" for rp in with_raman}))
-        maps["raman_shift"] = (f"optical-phonon shift seen in backscattering from the surface "
-                               f"(PDPs {sets}); grey: no phonon deformation potentials")
+        maps["raman_shift"] = (f"optical-phonon line shift seen in backscattering (Raman-allowed "
+                               f"modes, intensity-weighted; {sets}); grey: no Raman data")
     if plan.bands and any(rp.bands is not None for rp in plan.regions):
         maps["band_gap_shift"] = ("strained minus unstrained gap (lowest modelled conduction "
                                   "valley to top valence band); grey: no deformation potentials")

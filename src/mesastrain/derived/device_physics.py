@@ -22,7 +22,8 @@ from mesastrain.errors import MaterialError
 from mesastrain.physics.bands import BandParameters, band_edge_shifts, band_parameters, band_summary
 from mesastrain.physics.crystal import format_indices
 from mesastrain.physics.piezo import PiezoCoefficients, longitudinal_transverse, piezo_coefficients
-from mesastrain.physics.raman import RamanParameters, phonon_shifts, raman_parameters
+from mesastrain.physics.raman import (BiaxialLine, RamanParameters, biaxial_line, raman_modes,
+                                      raman_parameters)
 from mesastrain.units import safe_name
 
 __all__ = [
@@ -134,7 +135,7 @@ class RegionPlan:
     R : ndarray (3, 3)
         Sample axes in this region's crystal coordinates.
     bands : BandParameters or None
-    raman : RamanParameters or None
+    raman : RamanParameters or BiaxialLine or None
     piezo : dict of channel field -> PiezoCoefficients or None
     missing : dict of str -> str
         Why a readout does not apply (quantity -> reason).
@@ -144,7 +145,7 @@ class RegionPlan:
     label: str
     R: np.ndarray
     bands: BandParameters | None
-    raman: RamanParameters | None
+    raman: RamanParameters | BiaxialLine | None
     piezo: dict
     missing: dict
 
@@ -164,6 +165,8 @@ class Plan:
     regions : tuple of RegionPlan
     switches : dict
         The case's ``[device]`` switches as given.
+    raman_polarisation : tuple
+        ``(incident, scattered)`` sample-frame directions, or ``()`` (unpolarised).
     """
 
     bands: bool
@@ -172,6 +175,13 @@ class Plan:
     channels: tuple
     regions: tuple
     switches: dict
+    raman_polarisation: tuple = ()
+
+    @property
+    def raman_geometry(self) -> dict:
+        """Keyword arguments ``incident``, ``scattered`` of the Raman functions."""
+        pol = self.raman_polarisation
+        return {"incident": pol[0], "scattered": pol[1]} if pol else {}
 
     @property
     def any(self) -> bool:
@@ -191,10 +201,14 @@ def _band_params(mat) -> BandParameters | None:
         return None
 
 
-def _raman_params(mat, choice: dict) -> RamanParameters | None:
-    if mat.x is not None:
-        return None
+def _raman_params(mat, choice: dict) -> RamanParameters | BiaxialLine | None:
     try:
+        if mat.name == "SiGe":      # Si-Si line; the Si PDP set chosen gives the ratios
+            return raman_parameters("SiGe", choice.get("Si"), x=mat.x)
+        if mat.x is not None:
+            return None
+        if mat.name == "GaN":
+            return biaxial_line(mat.name)
         return raman_parameters(mat.name, choice.get(mat.name))
     except MaterialError:
         return None
@@ -247,7 +261,8 @@ def plan_of(case, layers) -> Plan:
     return Plan(bands=any(rp.bands is not None for rp in regions),
                 raman=any(rp.raman is not None for rp in regions), piezo=dev.piezo,
                 channels=channels, regions=regions,
-                switches={"bands": dev.bands, "raman": dev.raman, "piezo": dev.piezo})
+                switches={"bands": dev.bands, "raman": dev.raman, "piezo": dev.piezo},
+                raman_polarisation=tuple(getattr(dev, "raman_polarisation", ()) or ()))
 
 
 # --------------------------------------------------------------------------
@@ -314,8 +329,8 @@ def evaluate(plan: Plan, region, strain, stress) -> dict[str, np.ndarray]:
         Every name of :func:`field_names` (float; ``band_conduction_valleys``
         int32), NaN (0) where the region has no parameters. Extra entries
         with a leading underscore carry per-point detail for probes:
-        ``_raman_modes`` (n, 3) and ``_raman_polarisation`` (n, 3, 3) in the
-        sample frame.
+        ``_raman_modes`` (n, 3), ``_raman_share`` (n, 3) and
+        ``_raman_polarisation`` (n, 3, 3) in the sample frame.
     """
     region = np.asarray(region, dtype=int)
     strain = np.asarray(strain, dtype=float)
@@ -327,6 +342,7 @@ def evaluate(plan: Plan, region, strain, stress) -> dict[str, np.ndarray]:
         out["band_conduction_valleys"] = np.zeros(n, dtype=np.int32)
     if plan.raman:
         out["_raman_modes"] = np.full((n, 3), np.nan)
+        out["_raman_share"] = np.full((n, 3), np.nan)
         out["_raman_polarisation"] = np.full((n, 3, 3), np.nan)
     for rp in plan.regions:
         m = np.flatnonzero(region == rp.index)
@@ -334,13 +350,15 @@ def evaluate(plan: Plan, region, strain, stress) -> dict[str, np.ndarray]:
             continue
         R = rp.R
         eps_c = np.einsum("ai,nab,bj->nij", R, strain[m], R)      # T_c = R^T T_s R
-        if rp.raman is not None:
+        if isinstance(rp.raman, BiaxialLine):
+            out["raman_shift"][m] = rp.raman.shift(np.einsum("ai,nab,bj->nij", R, stress[m], R))
+        elif rp.raman is not None:
             p = rp.raman
-            shifts, modes = phonon_shifts(eps_c, p.p, p.q, p.r, p.omega0)
-            pick = np.argmax(np.abs(np.einsum("i,nij->nj", R[2], modes)), axis=1)
-            out["raman_shift"][m] = np.take_along_axis(shifts, pick[:, None], axis=1)[:, 0]
-            out["_raman_modes"][m] = shifts
-            out["_raman_polarisation"][m] = np.einsum("ia,naj->nij", R, modes)
+            rm = raman_modes(eps_c, p.p, p.q, p.r, p.omega0, R, **plan.raman_geometry)
+            out["raman_shift"][m] = rm.observable
+            out["_raman_modes"][m] = rm.shifts
+            out["_raman_share"][m] = rm.share
+            out["_raman_polarisation"][m] = np.einsum("ia,naj->nij", R, rm.polarisation)
         if rp.bands is not None:
             b = rp.bands
             s = band_edge_shifts(eps_c, b)

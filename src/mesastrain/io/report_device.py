@@ -145,7 +145,8 @@ def section_device(summary: dict, folder) -> str | None:
                     "biaxial", "gap change (meV)", "conduction edge in",
                     "&Delta;[001] &minus; &Delta;[100] (meV)"], rows, 2),
              '<p class="note">Element averages per region: mean [min, max]. Raman: the '
-             'optical phonon seen in backscattering from the surface (negative = softer '
+             'optical-phonon line seen in backscattering (Raman-allowed modes, intensity-'
+             'weighted; negative = softer '
              'line); &sigma; per &Delta;&omega; in MPa per cm<sup>-1</sup> is the stress a '
              'measured shift implies under that assumption (also <code>mesastrain '
              'raman-stress</code>). Gap: lowest modelled conduction valley to top valence '

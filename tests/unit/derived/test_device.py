@@ -151,8 +151,12 @@ def test_probe_raman_shift_is_backscatter_shift_of_its_strain(strained_si):
     closed = 0.5 * par.omega0 * (par.p * e[2, 2] + par.q * (e[0, 0] + e[1, 1]))
     assert p["raman_shift"] == pytest.approx(closed, rel=1e-9)
     assert p["raman_modes"]["pdp_set"] == "acc1990"
-    # no Raman data for SiGe
-    assert s["probes"][1]["raman_shift"] is None
+    # (001): only the z-polarised mode is Raman-active (Loudon, Adv. Phys. 13, 423 (1964))
+    z = int(np.argmax(np.abs(np.array(p["raman_modes"]["polarisation_sample"])[:, 2])))
+    assert p["raman_modes"]["share"][z] == pytest.approx(1.0, abs=1e-9)
+    # the relaxed SiGe substrate: Si-Si line at its relaxed position (no strain shift)
+    assert s["probes"][1]["raman_shift"] == pytest.approx(0.0, abs=1e-9)
+    assert "scaled to b_SiSi" in s["probes"][1]["raman_modes"]["pdp_set"]
 
 
 def test_biaxial_raman_factor_end_to_end(strained_si):
@@ -186,9 +190,128 @@ def test_vtu_raman_field_matches_crystal_frame_strain(strained_si, tmp_path):
     expected = backscatter_shift(from_vtk6(cd["strain_crystal"][film]), res.layers[1].frame.R,
                                  par.p, par.q, par.r, par.omega0)
     assert np.allclose(cd["raman_shift"][film], expected, rtol=1e-9, atol=1e-12)
-    assert np.all(np.isnan(cd["raman_shift"][sub]))        # SiGe: no PDPs tabulated
+    assert np.allclose(cd["raman_shift"][sub], 0.0, atol=1e-9)   # relaxed SiGe: no shift
     assert np.all(np.isnan(cd["piezo_n110_long"][sub]))    # SiGe: no coefficients
     assert np.all(np.isfinite(cd["band_gap_shift"]))
+
+
+S2, S3, S6 = np.sqrt(2.0), np.sqrt(3.0), np.sqrt(6.0)
+#: Sample frames by hand (rows x, y = z cross x, z in cube coordinates).
+R_111 = np.array([[1 / S2, -1 / S2, 0.0], [1 / S6, 1 / S6, -2 / S6], [1 / S3, 1 / S3, 1 / S3]])
+R_110 = np.array([[1 / S2, -1 / S2, 0.0], [0.0, 0.0, -1.0], [1 / S2, 1 / S2, 0.0]])
+#: Raman tensors R_x, R_y, R_z (Loudon, Adv. Phys. 13, 423 (1964)), written out here.
+LOUDON = np.array([[[0, 0, 0], [0, 0, 1], [0, 1, 0]], [[0, 0, 1], [0, 0, 0], [1, 0, 0]],
+                   [[0, 1, 0], [1, 0, 0], [0, 0, 0]]], dtype=float)
+
+
+def _line_by_hand(eps_c, R, par, pols=None):
+    """Intensity-weighted line from the secular equation and Loudon's tensors, by hand."""
+    e = eps_c
+    K = 0.5 * par.omega0 * np.array(
+        [[par.p * e[0, 0] + par.q * (e[1, 1] + e[2, 2]), 2 * par.r * e[0, 1], 2 * par.r * e[0, 2]],
+         [2 * par.r * e[0, 1], par.p * e[1, 1] + par.q * (e[0, 0] + e[2, 2]), 2 * par.r * e[1, 2]],
+         [2 * par.r * e[0, 2], 2 * par.r * e[1, 2], par.p * e[2, 2] + par.q * (e[0, 0] + e[1, 1])]])
+    w, V = np.linalg.eigh(K)
+    pairs = pols or [(R[a], R[b]) for a in (0, 1) for b in (0, 1)]
+    inten = [sum(float(es @ np.einsum("k,kij->ij", V[:, j], LOUDON) @ ei) ** 2
+                 for ei, es in pairs) for j in range(3)]
+    return float(np.dot(inten, w) / np.sum(inten))
+
+
+def test_raman_on_111_with_strain_rotated_by_hand():
+    # Strained Si on relaxed Si0.8Ge0.2(111), x along [1-10]. The probe's sample-frame strain is
+    # rotated into cube axes here with the hand-written matrix (eps_c = R^T eps_s R), and the
+    # line is computed from the secular equation (Anastassakis et al. 1990 PDPs) and Loudon's
+    # (1964) tensors. Rotating the wrong way (R eps_s R^T) changes the line by far more than
+    # the tolerance, so this test catches that bug.
+    s = summary(run(blanket(normal=(1, 1, 1), x_axis=(1, -1, 0))))
+    p = s["probes"][0]
+    eps_s = np.array(p["strain"])
+    eps_c = R_111.T @ eps_s @ R_111
+    assert np.allclose(p["strain_crystal"], eps_c, atol=1e-12)
+    par = raman_parameters("Si")
+    hand = _line_by_hand(eps_c, R_111, par)
+    assert p["raman_shift"] == pytest.approx(hand, rel=1e-6)
+    wrong = _line_by_hand(R_111 @ eps_s @ R_111.T, R_111, par)
+    assert abs(wrong - hand) > 0.1 * abs(hand)
+    # (111): all three modes are Raman-active (Loudon 1964)
+    assert min(p["raman_modes"]["share"]) > 0.19
+
+
+def test_raman_on_110_forbids_the_normal_mode():
+    # Strained Si on relaxed SiGe(110), x along [1-10]: the mode polarised along the normal
+    # [110] has zero share (Loudon 1964); the line equals the hand computation. With
+    # [device] raman_polarisation = [[1, 0], [0, 1]] (incident x, scattered y) only the mode
+    # along [1-10] is seen: e_s R e_i vanishes for the [001] mode (hand: R_z has xy entries
+    # only, and y = [00-1]).
+    s = summary(run(blanket(normal=(1, 1, 0), x_axis=(1, -1, 0))))
+    p = s["probes"][0]
+    eps_c = R_110.T @ np.array(p["strain"]) @ R_110
+    par = raman_parameters("Si")
+    assert p["raman_shift"] == pytest.approx(_line_by_hand(eps_c, R_110, par), rel=1e-6)
+    pol = np.array(p["raman_modes"]["polarisation_sample"])          # rows: modes
+    normal_mode = int(np.argmax(np.abs(pol[:, 2])))
+    assert p["raman_modes"]["share"][normal_mode] == pytest.approx(0.0, abs=1e-9)
+    s2 = summary(run(blanket(normal=(1, 1, 0), x_axis=(1, -1, 0),
+                             device={"raman_polarisation": [[1, 0], [0, 1]]})))
+    p2 = s2["probes"][0]
+    hand = _line_by_hand(eps_c, R_110, par, [(R_110[0], R_110[1])])
+    assert p2["raman_shift"] == pytest.approx(hand, rel=1e-6)
+    x_mode = int(np.argmax(np.abs(np.array(p2["raman_modes"]["polarisation_sample"])[:, 0])))
+    assert p2["raman_modes"]["share"][x_mode] == pytest.approx(1.0, abs=1e-9)
+    assert "incident" in s2["device"]["regions"][1]["raman"]["mode_seen"]
+
+
+def test_raman_under_uniaxial_stress_along_100_on_001():
+    # 100 MPa uniaxial along [100] in Si(001) (x along [100], so crystal = sample axes). By hand:
+    # eps_xx = S11 sigma, eps_yy = eps_zz = S12 sigma with S11 = (C11 + C12)/((C11 - C12)(C11 +
+    # 2 C12)), S12 = -C12/((C11 - C12)(C11 + 2 C12)); only the z mode is seen, d omega =
+    # (omega0/2)(p S12 + q (S11 + S12)) sigma; and sigma / d omega = -434 MPa per cm^-1 (De Wolf,
+    # Semicond. Sci. Technol. 11, 139 (1996) [M]).
+    d = blanket(substrate="Si", sub_x=None, x_axis=(1, 0, 0))
+    s = summary(run(d, extra=_uniaxial_source(100.0)))
+    p = s["probes"][0]
+    c = get_material("Si").constants
+    c11, c12 = c["C11"], c["C12"]
+    den = (c11 - c12) * (c11 + 2 * c12)
+    s11, s12 = (c11 + c12) / den, -c12 / den                         # 1/GPa
+    sig = 0.1                                                        # GPa
+    assert np.allclose(p["strain_crystal"], np.diag([s11, s12, s12]) * sig, atol=1e-9)
+    par = raman_parameters("Si")
+    hand = 0.5 * par.omega0 * (par.p * s12 + par.q * (s11 + s12)) * sig
+    assert p["raman_shift"] == pytest.approx(hand, rel=1e-4)
+    assert 100.0 / p["raman_shift"] == pytest.approx(-434.0, rel=0.01)
+    assert sorted(p["raman_modes"]["share"]) == pytest.approx([0.0, 0.0, 1.0], abs=1e-9)
+
+
+def test_sige_film_si_si_line():
+    # Pseudomorphic Si0.8Ge0.2 on Si(001): d omega = b_SiSi eps_par with b_SiSi = -850 cm^-1
+    # (Tsang et al., J. Appl. Phys. 75, 8088 (1994); Pezzoli et al., J. Appl. Phys. 103, 093521
+    # (2008) [from memory]), eps_par = (a_Si - a_SiGe)/a_SiGe; about +6.9 cm^-1 at x = 0.2.
+    s = summary(run(blanket(substrate="Si", sub_x=None, layer="SiGe", layer_x=0.2)))
+    film = s["probes"][0]
+    eps_par = film["strain"][0][0]
+    si, sige = get_material("Si"), get_material("SiGe", 0.2)
+    assert eps_par == pytest.approx((si.a - sige.a) / sige.a, rel=1e-3)
+    assert film["raman_shift"] == pytest.approx(-850.0 * eps_par, rel=1e-3)
+    assert film["raman_modes"]["omega0"] == pytest.approx(520.5 - 62.0 * 0.2)
+    assert s["probes"][1]["raman_shift"] == pytest.approx(0.0, abs=1e-9)   # relaxed Si
+
+
+def test_gan_film_e2_high():
+    # GaN on AlN(0001): the E2(high) line shifts by -4.2 cm^-1 per GPa of biaxial stress
+    # (Kisielowski et al., Phys. Rev. B 54, 17745 (1996) [from memory]); tensile GaN on AlN is
+    # softer. The biaxial factor is 1000/-4.2 = -238 MPa per cm^-1.
+    d = blanket(substrate="AlN", sub_x=None, layer="GaN", normal=(0, 0, 0, 1),
+                x_axis=(2, -1, -1, 0))
+    s = summary(run(d))
+    film = s["probes"][0]
+    sxx = film["stress"][0][0]
+    assert sxx < 0.0 or sxx > 0.0
+    assert film["raman_shift"] == pytest.approx(-4.2e-3 * sxx, rel=1e-6)
+    reg = s["device"]["regions"][1]["raman"]
+    assert reg["stress_per_shift_biaxial"] == pytest.approx(1000.0 / -4.2)
+    assert reg["stress_per_shift_uniaxial_x"] is None
 
 
 # --------------------------------------------------------------------------
@@ -305,7 +428,7 @@ def test_cut_csv_and_report(tmp_path):
     assert len(rows) == 7
     k = head.index("raman_shift_cm-1")
     assert rows[0][4] == "1" and float(rows[0][k]) < -5.0      # tensile Si: softer line
-    assert rows[-1][4] == "0" and rows[-1][k] == ""            # SiGe: no PDPs
+    assert rows[-1][4] == "0" and abs(float(rows[-1][k])) < 1e-3   # relaxed SiGe: no shift
     summ = json.loads((out / "summary.json").read_text())
     text = report_text(summ, out)
     assert "Raman" in text and "cm^-1" in text and "delta_z" in text
@@ -365,6 +488,9 @@ def test_valley_mask_names():
     ({"device": {"raman_pdp": "apbpc1970"}}, "device.raman_pdp", "expected a table"),
     ({"device": {"raman_pdp": {"Si": "1990"}}}, "device.raman_pdp.Si", "is not a PDP set"),
     ({"device": {"raman_pdp": {"GaAs": "x"}}}, "device.raman_pdp.GaAs", "no Raman data"),
+    ({"device": {"raman_polarisation": [[1, 0]]}}, "device.raman_polarisation", "incident"),
+    ({"device": {"raman_polarisation": [[1, 0], [1, 0, 1]]}}, "device.raman_polarisation[1]",
+     "wafer plane"),
     ({"device": True}, "device", "expected a table"),
 ])
 def test_bad_channel_and_device_input(patch, key, fragment):
@@ -414,3 +540,23 @@ def test_raman_stress_command_errors(argv, fragment, capsys):
     assert main(["raman-stress", "1.0", *argv]) == 2
     err = capsys.readouterr().err.strip()
     assert fragment in err and "\n" not in err
+
+
+def test_raman_stress_command_on_110_and_polarised(capsys):
+    # (110), uniaxial along [1-10], unpolarised: the line is the 2:1 mean of the allowed modes
+    # -2.878 and -2.305 cm^-1 per GPa (REFERENCES.md section 7 [D]; Loudon 1964 tensors), so
+    # -372 MPa per cm^-1, not 1000/-0.556 = -1800 from the forbidden normal mode.
+    assert main(["raman-stress", "-1", "--kind", "uniaxial", "--normal", "1,1,0", "--along",
+                 "1,-1,0", "--json"]) == 0
+    d = json.loads(capsys.readouterr().out)
+    assert d["factor"] == pytest.approx(1000.0 / ((2 * -2.878 - 2.305) / 3), rel=0.002)
+    # polarised x(y)-type: incident along x, analyser along y sees only the [1-10] mode
+    assert main(["raman-stress", "-1", "--kind", "uniaxial", "--normal", "1,1,0", "--along",
+                 "1,-1,0", "--incident", "1,0", "--scattered", "0,1", "--json"]) == 0
+    d = json.loads(capsys.readouterr().out)
+    assert d["per_gpa"] == pytest.approx(-2.878, abs=0.002)
+    # z(x,x)-z with x along [100] on (001): no first-order signal (Loudon 1964)
+    assert main(["raman-stress", "-1", "--kind", "uniaxial", "--incident", "1,0",
+                 "--scattered", "1,0"]) == 2
+    err = capsys.readouterr().err.strip()
+    assert "Raman-active" in err and "\n" not in err
