@@ -46,8 +46,16 @@ from pathlib import Path
 import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
-from common import (demo_case, limit_memory, matvec_bytes, peak_rss_gb,  # noqa: E402
-                    refine_for, run_child, run_stages, stream_bandwidth_gbs)
+from common import (  # noqa: E402
+    demo_case,
+    limit_memory,
+    matvec_bytes,
+    peak_rss_gb,
+    refine_for,
+    run_child,
+    run_stages,
+    stream_bandwidth_gbs,
+)
 
 SCRIPT = Path(__file__).resolve()
 DEFAULT_SIZES = (125e3, 250e3, 500e3, 1e6)
@@ -61,11 +69,11 @@ def child_iterative(refine: float, order: int) -> dict:
 def child_direct(refine: float, order: int) -> dict:
     """SuperLU on the condensed system of the same case (timed alone)."""
     import scipy.sparse.linalg as spla
+    from common import build_model
 
     from mesastrain.fem.assembly import assemble
     from mesastrain.fem.constraints import support_dofs
     from mesastrain.fem.solve import condense
-    from common import build_model
 
     case = demo_case(order, refine)
     layers, sm, disc = build_model(case)

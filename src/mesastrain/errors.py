@@ -37,7 +37,7 @@ class CaseError(MesastrainError):
         what = f"{self.key}: " if self.key else ""
         return f"{where}{what}{self.message}"
 
-    def with_source(self, source: str) -> "CaseError":
+    def with_source(self, source: str) -> CaseError:
         """Return a copy that names the case file."""
         return type(self)(self.key, self.message, source)
 

@@ -17,8 +17,8 @@ from hypothesis import strategies as st
 
 from mesastrain.case.parse import parse_case
 from mesastrain.errors import MesastrainError
-from mesastrain.run.pipeline import run_case
 from mesastrain.physics.thinfilm import biaxial_response
+from mesastrain.run.pipeline import run_case
 
 CUBIC = [("Si", None), ("Ge", None), ("GaAs", None), ("InP", None)]
 CUBIC_LAYERS = [("SiGe", "x"), ("InGaAs", "x"), ("AlGaAs", "x"), ("Si", None), ("Ge", None),

@@ -20,10 +20,10 @@ from pathlib import Path
 
 import pytest
 
-from small_cases import SMALL_MESA
 from mesastrain.cli.main import main
 from mesastrain.io import destination
 from mesastrain.io.destination import MARKER, is_result_folder
+from small_cases import SMALL_MESA
 
 DISK = """
 title = "small disk"

@@ -7,7 +7,6 @@ and nothing written.
 """
 
 import json
-import os
 import signal
 import subprocess
 import sys
@@ -83,9 +82,10 @@ def test_no_convergence_is_an_error_not_a_result(small, tmp_path, capsys):
 
 def test_floating_body_is_detected():
     # A body held nowhere: the direct solver must refuse rather than return garbage.
+    import scipy.sparse as sp
+
     from mesastrain.errors import SolverError
     from mesastrain.fem.solve import solve_condensed
-    import scipy.sparse as sp
     # two springs in series, nothing held: singular
     K = sp.csr_matrix(np.array([[1.0, -1.0, 0.0], [-1.0, 2.0, -1.0], [0.0, -1.0, 1.0]]))
     f = np.array([1.0, 0.0, 0.0])

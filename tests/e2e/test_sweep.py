@@ -23,14 +23,14 @@ import pytest
 
 from mesastrain.case.parse import parse_case
 from mesastrain.cli.main import main
-from mesastrain.errors import CaseError
-from mesastrain.physics.materials import get_material
 from mesastrain.cli.sweep.driver import run_sweep
 from mesastrain.cli.sweep.expand import case_hash, expand
 from mesastrain.cli.sweep.figures import figure_unit, figure_value
 from mesastrain.cli.sweep.spec import load_sweep, parse_path, parse_sweep
 from mesastrain.cli.sweep.store import CASE_RECORD, LOG_JSONL, META_JSON, TABLE_CSV, CaseOutcome
 from mesastrain.cli.sweep.tables import plot_sweep, summary_text
+from mesastrain.errors import CaseError
+from mesastrain.physics.materials import get_material
 
 ROOT = Path(__file__).resolve().parents[2]
 DEMO_SWEEP = ROOT / "cases" / "sweep_mesa_width.toml"

@@ -146,7 +146,7 @@ class Outline:
     def points(self) -> np.ndarray:
         return np.asarray(self.vertices, dtype=float)
 
-    def offset(self, d: float) -> "Outline":
+    def offset(self, d: float) -> Outline:
         """The outline moved outward by d (nm)."""
         if self.kind == "rectangle":
             r = max(self.radius + d, 0.0) if self.radius > 0 else 0.0

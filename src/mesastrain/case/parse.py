@@ -49,8 +49,15 @@ from pathlib import Path
 from mesastrain.case import readers as rd
 from mesastrain.case.checks import CrossChecks
 from mesastrain.case.keys import read_table
-from mesastrain.case.schema import (PATTERN, SHAPE_KEYS, SHAPE_REQUIRES, TITLE, TOP_KEYS,
-                                    default_order, table)
+from mesastrain.case.schema import (
+    PATTERN,
+    SHAPE_KEYS,
+    SHAPE_REQUIRES,
+    TITLE,
+    TOP_KEYS,
+    default_order,
+    table,
+)
 from mesastrain.case.types import TABLE_TYPES, Case
 from mesastrain.errors import CaseError, MaterialError, OrientationError
 from mesastrain.physics.crystal import direction_vector, plane_normal, sample_frame

@@ -12,8 +12,17 @@ import math
 from dataclasses import dataclass
 
 from mesastrain.case.keys import echo
-from mesastrain.case.schema import (CUT, DEVICE, DISLOCATIONS, MESH, OUTPUT, READOUTS, SOLVER,
-                                    TABLES, TITLE)
+from mesastrain.case.schema import (
+    CUT,
+    DEVICE,
+    DISLOCATIONS,
+    MESH,
+    OUTPUT,
+    READOUTS,
+    SOLVER,
+    TABLES,
+    TITLE,
+)
 
 __all__ = [
     "TABLE_TYPES", "Case", "Channel", "DeviceSettings", "DislocationSet", "Layer", "LineCut",

@@ -18,8 +18,8 @@ from __future__ import annotations
 import json
 import math
 import time
+from collections.abc import Callable
 from dataclasses import asdict, dataclass
-from typing import Callable
 
 import numpy as np
 
@@ -103,7 +103,11 @@ def _blanket_film_stress(case) -> tuple[np.ndarray, np.ndarray, object]:
 # --------------------------------------------------------------------------
 def check_blanket() -> list[Check]:
     """Blanket films on (001) and (111): FE stress against the closed-form biaxial moduli."""
-    from mesastrain.physics.thinfilm import biaxial_modulus_001, biaxial_modulus_111, poisson_ratio_perp_001
+    from mesastrain.physics.thinfilm import (
+        biaxial_modulus_001,
+        biaxial_modulus_111,
+        poisson_ratio_perp_001,
+    )
 
     out = []
     case = _case("Si", {"material": "SiGe", "x": 0.2, "thickness": 20})
@@ -197,8 +201,8 @@ def check_thermal() -> list[Check]:
 
 def check_critical_thickness() -> list[Check]:
     """Matthews-Blakeslee and People-Bean values through the readouts."""
-    from mesastrain.model.regions import build_layers
     from mesastrain.derived.energy import critical_thickness
+    from mesastrain.model.regions import build_layers
 
     # REFERENCES.md 5d, set A: Dismukes a(x), f = (a_film - a_Si)/a_film, b = a_film/sqrt(2),
     # nu = 0.278; People-Bean with b = 0.4 nm, a = a_Si. Values derived from the formulas.
@@ -225,8 +229,12 @@ def check_critical_thickness() -> list[Check]:
 def check_dislocations() -> list[Check]:
     """Straight-dislocation fields (isotropic closed form; anisotropic Stroh)."""
     from mesastrain.physics.crystal import sample_frame
-    from mesastrain.physics.dislocations import (Dislocation, dislocation_from_crystal, energy_prefactor,
-                               isotropic_fields)
+    from mesastrain.physics.dislocations import (
+        Dislocation,
+        dislocation_from_crystal,
+        energy_prefactor,
+        isotropic_fields,
+    )
     from mesastrain.physics.materials import get_material
 
     d = Dislocation(xi=(0, 0, 1), b=(1.0, 0, 0))
@@ -265,10 +273,10 @@ def eshelby_sphere(nu: float = 0.25, eps_star: float = 0.01, n_in: int = 6) -> d
 
     from mesastrain.fem.assembly import assemble
     from mesastrain.fem.discretisation import discretise
-    from mesastrain.physics.dislocations import isotropic_stiffness
     from mesastrain.fem.fields import evaluate_at_points, recover
-    from mesastrain.mesh.grid import join_segments
     from mesastrain.fem.solve import solve_condensed
+    from mesastrain.mesh.grid import join_segments
+    from mesastrain.physics.dislocations import isotropic_stiffness
 
     t0 = time.perf_counter()
     a, L, mu = 1.0, 6.0, 1.0

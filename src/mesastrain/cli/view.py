@@ -53,7 +53,7 @@ def check_fields(vtu: Path) -> None:
                                 f"(run the case again to rewrite it)")
 
     try:
-        from meshio import vtu as vtu_format    # the reader itself: meshio.read prints and
+        from meshio import vtu as vtu_format  # the reader itself: meshio.read prints and
                                                 # calls sys.exit on a file it cannot parse
         m = vtu_format.read(vtu)
     except (Exception, SystemExit) as exc:

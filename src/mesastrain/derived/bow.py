@@ -39,8 +39,12 @@ from mesastrain.fem.assembly import assemble
 from mesastrain.fem.discretisation import discretise
 from mesastrain.fem.fields import evaluate_at_points
 from mesastrain.fem.solve import solve_condensed
-from mesastrain.physics.thinfilm import (bow_height, radius_of_curvature, stoney_curvature,
-                       timoshenko_curvature)
+from mesastrain.physics.thinfilm import (
+    bow_height,
+    radius_of_curvature,
+    stoney_curvature,
+    timoshenko_curvature,
+)
 from mesastrain.run.result import Derived
 
 log = logging.getLogger(__name__)
@@ -129,7 +133,7 @@ def _plate_mesh(z_bounds: np.ndarray, half: float, n_xy: int, n_sub: int):
 
     xs = np.linspace(-half, half, n_xy + 1)
     zs = [np.linspace(z_bounds[0], z_bounds[1], n_sub + 1)]
-    for zb, zt in zip(z_bounds[1:-1], z_bounds[2:]):
+    for zt in z_bounds[2:]:
         zs.append(np.array([zt]))
     z = np.concatenate(zs)
     mesh = MeshHex.init_tensor(xs, xs, z)

@@ -12,8 +12,13 @@ from __future__ import annotations
 
 import numpy as np
 
-from mesastrain.derived.sampling import (directions, element_size_at, etch_floor, sample_inside,
-                                         sidewall_distance)
+from mesastrain.derived.sampling import (
+    directions,
+    element_size_at,
+    etch_floor,
+    sample_inside,
+    sidewall_distance,
+)
 from mesastrain.fem.fields import hydrostatic, principal, von_mises
 
 __all__ = [

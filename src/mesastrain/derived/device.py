@@ -70,10 +70,21 @@ from __future__ import annotations
 import numpy as np
 
 from mesastrain.derived.device_maps import cut_writer, section_maps
-from mesastrain.derived.device_physics import (CONDUCTION_VALLEYS, VALLEY_TIE_EV, ChannelSpec, Plan,
-                                               RegionPlan, band_keys, channels_of,
-                                               direction_label, evaluate, evaluate_cells,
-                                               plan_of, valley_names, vtu_band)
+from mesastrain.derived.device_physics import (
+    CONDUCTION_VALLEYS,
+    VALLEY_TIE_EV,
+    ChannelSpec,
+    Plan,
+    RegionPlan,
+    band_keys,
+    channels_of,
+    direction_label,
+    evaluate,
+    evaluate_cells,
+    plan_of,
+    valley_names,
+    vtu_band,
+)
 from mesastrain.errors import MesastrainError
 from mesastrain.physics.crystal import format_indices
 from mesastrain.physics.piezo import pi_longitudinal, pi_transverse

@@ -22,8 +22,13 @@ from mesastrain.errors import MaterialError
 from mesastrain.physics.bands import BandParameters, band_edge_shifts, band_parameters, band_summary
 from mesastrain.physics.crystal import format_indices
 from mesastrain.physics.piezo import PiezoCoefficients, longitudinal_transverse, piezo_coefficients
-from mesastrain.physics.raman import (BiaxialLine, RamanParameters, biaxial_line, raman_modes,
-                                      raman_parameters)
+from mesastrain.physics.raman import (
+    BiaxialLine,
+    RamanParameters,
+    biaxial_line,
+    raman_modes,
+    raman_parameters,
+)
 from mesastrain.units import safe_name
 
 __all__ = [

@@ -39,9 +39,15 @@ from __future__ import annotations
 import csv
 from pathlib import Path
 
-from mesastrain.derived.corners import (SINGULAR_NOTE, default_standoff, edge_features,
-                                        free_edge_interfaces, nearest_feature, region_peaks,
-                                        standoff_values)
+from mesastrain.derived.corners import (
+    SINGULAR_NOTE,
+    default_standoff,
+    edge_features,
+    free_edge_interfaces,
+    nearest_feature,
+    region_peaks,
+    standoff_values,
+)
 from mesastrain.derived.energy import critical_thickness, critical_warning, layer_energy
 from mesastrain.derived.relaxation import RECOVERY, blanket_state, edge_relaxation, plot_relaxation
 from mesastrain.derived.sampling import cell_centres, etch_floor, sample_inside

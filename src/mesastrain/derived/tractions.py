@@ -14,8 +14,15 @@ from pathlib import Path
 
 import numpy as np
 
-from mesastrain.derived.sampling import (cell_centres, column_profile, directions, locate,
-                                         mirrors_of, sample_inside, sidewall_distance)
+from mesastrain.derived.sampling import (
+    cell_centres,
+    column_profile,
+    directions,
+    locate,
+    mirrors_of,
+    sample_inside,
+    sidewall_distance,
+)
 
 __all__ = [
     "interface_balance",
@@ -59,7 +66,7 @@ def traction_profiles(res, k: int, z: float) -> tuple[dict, list]:
     """Peel and shear traction along interface k from the centre to each sidewall."""
     eps = 1e-6 * max(res.case.top, 1.0)
     out, rows = {}, []
-    for label, d, comp in directions():
+    for label, d, _comp in directions():
         ext = sidewall_distance(res, d, z + eps)
         if ext is None:
             continue

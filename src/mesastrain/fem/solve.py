@@ -46,8 +46,7 @@ import scipy.sparse.linalg as spla
 from mesastrain.errors import SolverError
 from mesastrain.fem import multigrid
 from mesastrain.fem.assembly import rigid_body_modes
-from mesastrain.fem.constraints import (Boundary, reduce_dofs, reduce_system, support_dofs,
-                                        tie_faces)
+from mesastrain.fem.constraints import Boundary, reduce_dofs, reduce_system, support_dofs, tie_faces
 from mesastrain.fem.discretisation import Discretisation
 
 log = logging.getLogger(__name__)

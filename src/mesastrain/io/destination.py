@@ -60,7 +60,7 @@ class OutputError(CaseError):
     def __init__(self, message: str, key: str = OPTION, source: str | None = None):
         super().__init__(key, message, source)
 
-    def with_source(self, source: str) -> "OutputError":
+    def with_source(self, source: str) -> OutputError:
         return type(self)(self.message, self.key, source)
 
 
@@ -347,7 +347,7 @@ class Destination:
         self.committed = False
 
     # ---- claim ----------------------------------------------------------
-    def __enter__(self) -> "Destination":
+    def __enter__(self) -> Destination:
         try:
             self._claim()
         except BaseException:

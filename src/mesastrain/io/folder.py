@@ -7,14 +7,14 @@ from pathlib import Path
 import numpy as np
 
 from mesastrain import __version__
-from mesastrain.physics.crystal import format_indices
+from mesastrain.fem.fields import hydrostatic, von_mises
 from mesastrain.io.destination import Destination, claim_output, write_failure
 from mesastrain.io.export import to_vtk6, write_json, write_vtu
-from mesastrain.fem.fields import hydrostatic, von_mises
-from mesastrain.model.regions import LayerModel
 from mesastrain.io.render import render_section
 from mesastrain.io.report import write_report
 from mesastrain.io.wording import CAUTION
+from mesastrain.model.regions import LayerModel
+from mesastrain.physics.crystal import format_indices
 from mesastrain.run.result import Result
 
 __all__ = ["CAUTION", "layer_figures", "layer_summary", "summary_of", "vtu_data",

@@ -133,7 +133,7 @@ def render_section(vtu: Path, png: Path, quantity: str = "stress", component: st
 _PRINCIPAL = ("principal_max", "principal_min")
 
 
-def load(vtu) -> "pyvista.UnstructuredGrid":  # noqa: F821
+def load(vtu) -> pyvista.UnstructuredGrid:  # noqa: F821
     """Read a result's ``fields.vtu`` (or pass a pyvista mesh through)."""
     import pyvista as pv
 

@@ -18,16 +18,22 @@ from __future__ import annotations
 
 import json
 import logging
+from collections.abc import Callable
 from pathlib import Path
-from typing import Callable
 
 from mesastrain.io.markup import esc, image, mpa, num, table
 from mesastrain.io.render import standard_pictures
 from mesastrain.io.report_device import section_device
 from mesastrain.io.report_misfit import section_misfit
-from mesastrain.io.report_sections import (section_bow, section_convergence, section_headline,
-                                           section_inputs, section_pictures, section_probes,
-                                           section_stack)
+from mesastrain.io.report_sections import (
+    section_bow,
+    section_convergence,
+    section_headline,
+    section_inputs,
+    section_pictures,
+    section_probes,
+    section_stack,
+)
 from mesastrain.io.wording import CAUTION
 
 log = logging.getLogger(__name__)

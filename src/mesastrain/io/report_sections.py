@@ -195,7 +195,7 @@ def section_headline(summary: dict, folder: Path) -> str | None:
             continue
         rl = e.get("relaxation") or {}
 
-        def length(ax):
+        def length(ax, rl=rl):
             vals = [v["length"] for k, v in rl.items() if k.endswith(ax) and v]
             return num(max(vals), 3, "nm") if vals else "-"
 
@@ -277,7 +277,7 @@ def _edge_table(feats: list) -> str:
                round(f["z"], 9))
         groups.setdefault(key, []).append(f)
     rows = []
-    for (kind, name, z), items in groups.items():
+    for (kind, _name, _z), items in groups.items():
         sides = [next(iter(it["values"].values()), {}).get("von_mises") for it in items]
         same = all(s is not None for s in sides) and (
             max(sides) - min(sides) <= 1e-6 * max(abs(max(sides)), 1.0))

@@ -20,8 +20,8 @@ module with ``build``, ``estimate`` and ``handles``, and
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass
-from typing import Callable
 
 from mesastrain.case.types import Case
 from mesastrain.errors import MeshError

@@ -229,7 +229,7 @@ class SectionMesh(ModelMesh):
         sig = np.einsum("nijkl,nkl->nij", C[region[elements]], el) * GPA_TO_MPA
         return el, sig, disp
 
-    def unfolded(self, uf) -> "SectionMesh":
+    def unfolded(self, uf) -> SectionMesh:
         """The whole section from its mirrored half (see :mod:`mesastrain.mesh.unfold`)."""
         from skfem import MeshQuad
 

@@ -364,7 +364,7 @@ def _set_periodic(gmsh, spec: ShapeSpec, zlo: float, zhi: float) -> None:
         shift = [0.0, 0.0, 0.0]
         shift[axis] = hi - lo
 
-        def faces(v):
+        def faces(v, axis=axis):
             b = [x0 - eps, y0 - eps, zlo - eps, x1 + eps, y1 + eps, zhi + eps]
             b[axis], b[axis + 3] = v - eps, v + eps
             return gmsh.model.getEntitiesInBoundingBox(*b, dim=2)

@@ -79,7 +79,7 @@ class StackMesh(ModelMesh):
         return np.array([[self.xs[0], self.xs[-1]], [self.ys[0], self.ys[-1]],
                          [self.zs[0], self.zs[-1]]])
 
-    def boundary(self) -> "Boundary":
+    def boundary(self) -> Boundary:
         """Supports and periodic ties of the structured model.
 
         The substrate bottom is held in z. Each lateral axis is either
@@ -148,7 +148,7 @@ class StackMesh(ModelMesh):
         return result
 
 
-    def unfolded(self, uf) -> "StackMesh":
+    def unfolded(self, uf) -> StackMesh:
         """The whole structured mesh (grid, cell map, export mesh) from an unfolded part.
 
         Parameters

@@ -175,7 +175,7 @@ class UnstructuredMesh(ModelMesh):
         """Element index containing each point (nm), -1 outside the body."""
         return self._locator(points)
 
-    def unfolded(self, uf) -> "UnstructuredMesh":
+    def unfolded(self, uf) -> UnstructuredMesh:
         """The whole body from its unfolded mirrored part (:mod:`mesastrain.mesh.unfold`)."""
         return replace(self, mesh=type(self.mesh)(uf.p, uf.t_export), region=uf.region,
                        mirrors=())

@@ -39,8 +39,7 @@ from mesastrain.errors import CaseError, MesastrainError
 from mesastrain.model.regions import build_layers
 from mesastrain.model.volterra import VolterraLine, brick_bounds, lines_eigenstrain, sheet_width
 from mesastrain.physics.crystal import format_indices
-from mesastrain.physics.dislocations import (Dislocation, character_angle,
-                                             dislocation_from_crystal)
+from mesastrain.physics.dislocations import Dislocation, character_angle, dislocation_from_crystal
 
 __all__ = [
     "MAX_LINES_PER_CELL",

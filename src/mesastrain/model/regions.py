@@ -33,8 +33,8 @@ from dataclasses import dataclass
 import numpy as np
 
 from mesastrain.case.types import Case
-from mesastrain.physics.crystal import Frame, sample_frame
 from mesastrain.errors import CaseError, MaterialError
+from mesastrain.physics.crystal import Frame, sample_frame
 from mesastrain.physics.materials import Material, get_material
 from mesastrain.physics.thermal import thermal_mismatch_strain
 

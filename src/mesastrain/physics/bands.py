@@ -197,7 +197,7 @@ _NUMERIC = ("a_v", "b", "d", "delta_so", "a_c", "xi_u_delta", "hydro_delta", "xi
             "hydro_L", "e_v_av", "eg_delta", "eg_L", "eg_gamma")
 
 
-@functools.lru_cache(maxsize=None)
+@functools.cache
 def _tabulated(name: str) -> BandParameters:
     table = device_parameters()["bands"][name]
     values, cites = {}, []

@@ -77,8 +77,14 @@ from typing import NamedTuple
 
 import numpy as np
 
-from mesastrain.physics.crystal import Frame, direction_vector, stress_to_voigt, voigt_to_full, voigt_to_strain
 from mesastrain.errors import MaterialError, MesastrainError, OrientationError
+from mesastrain.physics.crystal import (
+    Frame,
+    direction_vector,
+    stress_to_voigt,
+    voigt_to_full,
+    voigt_to_strain,
+)
 
 log = logging.getLogger(__name__)
 
@@ -225,7 +231,7 @@ class Dislocation:
         return (f"Dislocation(xi={f(self.xi)}, b={f(self.b)} nm, point={f(self.point)} nm, "
                 f"character={character_angle(self):.4g} deg)")
 
-    def shifted(self, offset) -> "Dislocation":
+    def shifted(self, offset) -> Dislocation:
         """The same dislocation translated by ``offset`` (nm)."""
         return Dislocation(self.xi, self.b, self.point + _vector3(offset, "offset"))
 

@@ -32,9 +32,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from mesastrain.errors import MaterialError, MesastrainError, OrientationError
 from mesastrain.physics.bands import device_parameters, parameter_entry
 from mesastrain.physics.crystal import rotate_tensor4
-from mesastrain.errors import MaterialError, MesastrainError, OrientationError
 
 __all__ = [
     "PI_UNIT_PER_MPA",

@@ -60,9 +60,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from mesastrain.errors import MaterialError, MesastrainError, OrientationError
 from mesastrain.physics.bands import device_parameters, parameter_entry
 from mesastrain.physics.crystal import rotate_tensor2, stress_to_voigt, voigt_to_strain
-from mesastrain.errors import MaterialError, MesastrainError, OrientationError
 
 __all__ = [
     "DEGENERATE_TOL",

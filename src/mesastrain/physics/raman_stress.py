@@ -27,12 +27,10 @@ Example (Si, (001) surface, default PDP set)::
 
 from __future__ import annotations
 
-import json
-
 import numpy as np
 
-from mesastrain.physics.crystal import format_indices, sample_frame
 from mesastrain.errors import CaseError, MaterialError, MesastrainError, OrientationError
+from mesastrain.physics.crystal import format_indices, sample_frame
 from mesastrain.physics.materials import get_material
 from mesastrain.physics.raman import biaxial_line, raman_parameters, stress_factor
 

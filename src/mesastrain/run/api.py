@@ -38,7 +38,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from mesastrain.case.types import SolverSettings
-from mesastrain.errors import MeshError, MesastrainError
+from mesastrain.errors import MesastrainError, MeshError
 from mesastrain.fem.assembly import assemble, rigid_body_modes
 from mesastrain.fem.constraints import Boundary
 from mesastrain.fem.discretisation import Discretisation

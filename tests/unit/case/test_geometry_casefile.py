@@ -4,9 +4,9 @@ import json
 
 import pytest
 
+from mesastrain.case.outline import Outline, offset_polygon, polygon_area, polygon_problem
 from mesastrain.case.parse import parse_case
 from mesastrain.errors import CaseError
-from mesastrain.case.outline import Outline, offset_polygon, polygon_area, polygon_problem
 
 
 def base(pattern, mesh=None, probes=()):

@@ -3,12 +3,16 @@
 import numpy as np
 import pytest
 
-from mesastrain.derived.bow import (biaxial_modulus, free_plate_curvature, laminate_curvature,
-                            reduced_stiffness)
 from mesastrain.case.parse import parse_case
+from mesastrain.derived import solve_and_derive
+from mesastrain.derived.bow import (
+    biaxial_modulus,
+    free_plate_curvature,
+    laminate_curvature,
+    reduced_stiffness,
+)
 from mesastrain.io.export import jsonable
 from mesastrain.model.regions import build_layers
-from mesastrain.derived import solve_and_derive
 from mesastrain.physics.thinfilm import biaxial_modulus_001, stoney_curvature, timoshenko_curvature
 
 H_S = 1.0e4      # substrate thickness, nm (the problem is scale free: only h_f/h_s matters)

@@ -6,14 +6,13 @@ import numpy as np
 import pytest
 
 from mesastrain.case.parse import parse_case
-
 from mesastrain.case.schema import DEFAULT_CUT_COMPONENTS
+from mesastrain.derived import solve_and_derive
 from mesastrain.derived.cuts import components
-from mesastrain.units import safe_name
 from mesastrain.errors import CaseError
 from mesastrain.io.folder import write_result
-from mesastrain.derived import solve_and_derive
 from mesastrain.physics.thinfilm import biaxial_modulus_001
+from mesastrain.units import safe_name
 
 CASE = {
     "substrate": {"material": "Si", "thickness": "100 um", "normal": [0, 0, 1],

@@ -11,18 +11,17 @@ import json
 import numpy as np
 import pytest
 
-from mesastrain.run import pipeline
-
-from mesastrain.derived import PROVIDERS
-from mesastrain.physics.bands import band_parameters
 from mesastrain.case.parse import parse_case
 from mesastrain.cli.main import main
+from mesastrain.derived import PROVIDERS
 from mesastrain.derived.device import CONDUCTION_VALLEYS, valley_names
 from mesastrain.errors import CaseError
-from mesastrain.physics.materials import get_material
 from mesastrain.io.folder import summary_of, vtu_data, write_result
+from mesastrain.physics.bands import band_parameters
+from mesastrain.physics.materials import get_material
 from mesastrain.physics.piezo import piezo_coefficients
 from mesastrain.physics.raman import backscatter_shift, raman_parameters
+from mesastrain.run import pipeline
 
 
 def blanket(substrate="SiGe", sub_x=0.2, layer="Si", layer_x=None, normal=(0, 0, 1),

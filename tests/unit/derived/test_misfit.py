@@ -19,18 +19,18 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from prism_model import PrismModel
 
-from mesastrain.physics import dislocations as dl
+from mesastrain.case.parse import parse_case
 from mesastrain.derived import misfit as mf
+from mesastrain.errors import CaseError, MesastrainError
 from mesastrain.io.report_misfit import section_misfit
+from mesastrain.mesh.grid import join_segments
 from mesastrain.model import dislocation_plan as plan
 from mesastrain.model import volterra as vt
-from mesastrain.case.parse import parse_case
-from mesastrain.physics.crystal import Frame, voigt_to_full
-from mesastrain.errors import CaseError, MesastrainError
-from mesastrain.mesh.grid import join_segments
 from mesastrain.model.regions import build_layers
-from prism_model import PrismModel
+from mesastrain.physics import dislocations as dl
+from mesastrain.physics.crystal import Frame, voigt_to_full
 
 MU, NU = 50.0, 0.3          # REFERENCES 5a test constants (any consistent unit: GPa here)
 # Si: C11, C12, C44 = 165.7, 63.9, 79.6 GPa (Hopcroft, Nix & Kenny, J. MEMS 19, 229 (2010),
@@ -406,9 +406,9 @@ def test_blanket_case_relaxes_by_the_requested_fraction():
     assert np.all(np.isfinite(p["dislocation_stress_infinite_medium"][0]))
     # linearity: total - FE dislocation part = the same model solved for the mismatch alone
     from mesastrain.fem.assembly import assemble
-    from mesastrain.io.export import from_vtk6
     from mesastrain.fem.fields import recover
     from mesastrain.fem.solve import solve_model
+    from mesastrain.io.export import from_vtk6
 
     K, f = assemble(res.disc, res.mesh.layer, res.stiffness, res.eigenstrain, None)
     u0, _ = solve_model(K, f, res.disc, res.mesh.boundary(), case.solver)
@@ -455,8 +455,8 @@ def test_output_folder_and_report(tmp_path):
     # the run's folder holds the section picture, the cut files and a report section
     import json
 
-    from mesastrain.io.folder import write_result
     from mesastrain.derived import solve_and_derive
+    from mesastrain.io.folder import write_result
 
     case = _case([{**SIXTY, "relaxation": 0.3}], mesh={"order": 1, "size": "3 nm"},
                  probe=[{"name": "p", "at": [3.0, 0.0, 25.0]}],
@@ -511,8 +511,8 @@ def test_lines_ending_on_roller_faces_are_flagged(etch, warned):
     # A line along y that reaches the model's y faces (interface below a shallow etch)
     # has its displacement along y held there (rollers): its screw part is constrained.
     # Etched through the interface, the lines end on free sidewalls.
-    from mesastrain.mesh.structured import build_stack_mesh
     from mesastrain.mesh.planning import layout_of
+    from mesastrain.mesh.structured import build_stack_mesh
 
     case = _case([{**SIXTY, "spacing": "50 nm"}], mesh={"order": 1, "size": "10 nm"},
                  pattern={"shape": "rectangle", "width": "100 nm", "etch_depth": etch})

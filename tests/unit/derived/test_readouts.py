@@ -10,11 +10,11 @@ import pytest
 from scipy.optimize import brentq
 
 from mesastrain.case.parse import parse_case
+from mesastrain.derived import solve_and_derive
+from mesastrain.derived.relaxation import relaxation_length
 from mesastrain.errors import CaseError
 from mesastrain.io.export import jsonable
 from mesastrain.physics.materials import get_material
-from mesastrain.derived import solve_and_derive
-from mesastrain.derived.relaxation import relaxation_length
 from mesastrain.physics.thinfilm import biaxial_stress_ratios_110
 
 SI = {"material": "Si", "thickness": "100 um", "normal": [0, 0, 1], "x_axis": [1, 1, 0]}

@@ -11,11 +11,17 @@ import numpy as np
 import pytest
 import scipy.sparse as sp
 
-from mesastrain.fem.assembly import (SymbolicCache, assemble, assemble_load, assemble_matrix,
-                                     build_pattern, rigid_body_modes)
+from mesastrain.fem.assembly import (
+    SymbolicCache,
+    assemble,
+    assemble_load,
+    assemble_matrix,
+    build_pattern,
+    rigid_body_modes,
+)
 from mesastrain.fem.discretisation import Discretisation, brick_maps, discretise
 from mesastrain.physics.crystal import voigt_to_full
-from small_cases import EIG, STIFF, rotated_cubic
+from small_cases import EIG, STIFF
 
 
 def graded_mesh(seed=0, restrict=True):
@@ -206,9 +212,9 @@ def test_estimate_counts_unknowns_and_nonzeros_exactly(order, refine):
     from pathlib import Path
 
     from mesastrain.case.parse import load_case
+    from mesastrain.fem.cost import pattern_nonzeros
     from mesastrain.model.regions import build_layers
     from mesastrain.run.pipeline import build_model_mesh, decide_symmetry
-    from mesastrain.fem.cost import pattern_nonzeros
     from mesastrain.run.resources import estimate
 
     case = load_case(Path(__file__).resolve().parents[3] / "cases" / "sige_stressor_mesa.toml")

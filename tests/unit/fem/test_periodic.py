@@ -16,8 +16,8 @@ import pytest
 
 from mesastrain.case.parse import parse_case
 from mesastrain.fem.constraints import reduce_system, tie_faces
-from mesastrain.run.pipeline import run_case
 from mesastrain.physics.thinfilm import biaxial_response
+from mesastrain.run.pipeline import run_case
 
 W, H = 100.0, 20.0
 

@@ -13,13 +13,19 @@ import numpy as np
 import pytest
 import scipy.sparse as sp
 
+from mesastrain.errors import CaseError, SolverError
 from mesastrain.fem import coarsening as cg
 from mesastrain.fem import multigrid as mg
 from mesastrain.fem.assembly import SymbolicCache, assemble, rigid_body_modes
 from mesastrain.fem.discretisation import discretise
-from mesastrain.errors import CaseError, SolverError
-from mesastrain.fem.solve import (DIRECT_LIMIT, choose_method, condense, pcg, solve_condensed,
-                              solver_options)
+from mesastrain.fem.solve import (
+    DIRECT_LIMIT,
+    choose_method,
+    condense,
+    pcg,
+    solve_condensed,
+    solver_options,
+)
 from small_cases import EIG, STIFF
 
 

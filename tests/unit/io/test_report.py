@@ -5,11 +5,11 @@ import re
 
 import pytest
 
-from mesastrain.io import report
 from mesastrain.case.parse import parse_case
+from mesastrain.derived import solve_and_derive
+from mesastrain.io import report
 from mesastrain.io.folder import write_result
 from mesastrain.io.wording import CAUTION
-from mesastrain.derived import solve_and_derive
 
 CASE = {
     "title": "report check: SiGe island",

@@ -8,8 +8,8 @@ import pytest
 
 from mesastrain.case.parse import parse_case
 from mesastrain.cli.main import main
-from mesastrain.io.folder import write_result
 from mesastrain.derived import solve_and_derive
+from mesastrain.io.folder import write_result
 
 ROOT = Path(__file__).resolve().parents[3]
 

@@ -9,8 +9,8 @@ import pytest
 
 from mesastrain.case.parse import parse_case
 from mesastrain.errors import CaseError
-from mesastrain.run.pipeline import run_case
 from mesastrain.physics.thinfilm import biaxial_response
+from mesastrain.run.pipeline import run_case
 
 gmsh = pytest.importorskip("gmsh")
 

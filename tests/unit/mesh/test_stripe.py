@@ -18,8 +18,8 @@ import numpy as np
 import pytest
 
 from mesastrain.case.parse import parse_case
-from mesastrain.run.pipeline import run_case
 from mesastrain.physics.thinfilm import biaxial_response
+from mesastrain.run.pipeline import run_case
 
 H = 20.0
 

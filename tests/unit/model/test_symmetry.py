@@ -13,11 +13,11 @@ import numpy as np
 import pytest
 
 from mesastrain.case.parse import parse_case
+from mesastrain.model.regions import build_layers
+from mesastrain.model.symmetry import decide, material_has_mirror, polygon_has_mirror
 from mesastrain.physics.crystal import sample_frame
 from mesastrain.physics.materials import get_material
-from mesastrain.model.regions import build_layers
 from mesastrain.run.pipeline import run_case
-from mesastrain.model.symmetry import decide, material_has_mirror, polygon_has_mirror
 
 
 def _mirrors(normal, x_axis, material="Si"):

@@ -5,6 +5,7 @@ import dataclasses
 import numpy as np
 import pytest
 
+from mesastrain.errors import MaterialError, MesastrainError
 from mesastrain.physics.bands import (
     L_DIRECTIONS,
     band_edge_shifts,
@@ -12,7 +13,6 @@ from mesastrain.physics.bands import (
     band_summary,
     valence_hamiltonian,
 )
-from mesastrain.errors import MaterialError, MesastrainError
 
 # Elastic constants, GPa (REFERENCES.md section 1a): Si from Hopcroft, Nix & Kenny, J. MEMS 19,
 # 229 (2010); Ge from McSkimin & Andreatch, J. Appl. Phys. 34, 651 (1963) [M] from memory;

@@ -10,11 +10,23 @@ rotation from its transpose, so the decisive checks use a 17 degree turn about
 import numpy as np
 import pytest
 
-from mesastrain.physics.crystal import (
-    bond_matrix, direction_vector, format_indices, full_to_voigt, plane_normal,
-    rotate_tensor2, rotate_tensor4, rotate_voigt_stiffness, sample_frame, strain_to_voigt,
-    stress_to_voigt, voigt_to_full, voigt_to_strain, voigt_to_stress)
 from mesastrain.errors import OrientationError
+from mesastrain.physics.crystal import (
+    bond_matrix,
+    direction_vector,
+    format_indices,
+    full_to_voigt,
+    plane_normal,
+    rotate_tensor2,
+    rotate_tensor4,
+    rotate_voigt_stiffness,
+    sample_frame,
+    strain_to_voigt,
+    stress_to_voigt,
+    voigt_to_full,
+    voigt_to_strain,
+    voigt_to_stress,
+)
 
 # Si stiffness, GPa: Hopcroft, Nix & Kenny, J. MEMS 19, 229 (2010) (after Hall 1967)
 C11, C12, C44 = 165.7, 63.9, 79.6

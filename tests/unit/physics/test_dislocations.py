@@ -10,9 +10,9 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
+from mesastrain.errors import MaterialError, MesastrainError, OrientationError
 from mesastrain.physics import dislocations as dl
 from mesastrain.physics.crystal import Frame, rotate_tensor2, sample_frame, voigt_to_full
-from mesastrain.errors import MaterialError, MesastrainError, OrientationError
 
 # Si: C11, C12, C44 = 165.7, 63.9, 79.6 GPa, Hopcroft, Nix & Kenny, J. MEMS 19, 229 (2010)
 # [C, M] (REFERENCES 1a); a = 5.431 Angstrom (CODATA, REFERENCES 1a [C]).

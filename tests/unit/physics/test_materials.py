@@ -15,10 +15,17 @@ import numpy as np
 import pytest
 from scipy.optimize import brentq
 
-from mesastrain.physics.crystal import rotate_voigt_stiffness
 from mesastrain.errors import MaterialError
-from mesastrain.physics.materials import (Material, cubic_stiffness, get_material, hexagonal_stiffness,
-                                  is_alloy, known_materials, materials_table)
+from mesastrain.physics.crystal import rotate_voigt_stiffness
+from mesastrain.physics.materials import (
+    Material,
+    cubic_stiffness,
+    get_material,
+    hexagonal_stiffness,
+    is_alloy,
+    known_materials,
+    materials_table,
+)
 
 COMPOUNDS = ["Si", "Ge", "GaAs", "AlAs", "InAs", "InP", "GaP", "GaN", "AlN", "InN"]
 ALLOYS = {"SiGe": ("Si", "Ge"), "InGaAs": ("GaAs", "InAs"), "AlGaAs": ("GaAs", "AlAs"),

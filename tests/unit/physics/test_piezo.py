@@ -3,8 +3,8 @@
 import numpy as np
 import pytest
 
-from mesastrain.physics.crystal import full_to_voigt, rotate_tensor4, sample_frame
 from mesastrain.errors import MaterialError, MesastrainError, OrientationError
+from mesastrain.physics.crystal import full_to_voigt, rotate_tensor4, sample_frame
 from mesastrain.physics.piezo import (
     PI_UNIT_PER_MPA,
     longitudinal_transverse,

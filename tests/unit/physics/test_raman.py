@@ -3,8 +3,14 @@
 import numpy as np
 import pytest
 
-from mesastrain.physics.crystal import rotate_tensor2, sample_frame, stress_to_voigt, voigt_to_strain
 from mesastrain.errors import MaterialError, MesastrainError, OrientationError
+from mesastrain.physics.crystal import (
+    rotate_tensor2,
+    sample_frame,
+    stress_to_voigt,
+    voigt_to_strain,
+)
+from mesastrain.physics.materials import get_material
 from mesastrain.physics.raman import (
     backscatter_shift,
     biaxial_line,
@@ -19,7 +25,6 @@ from mesastrain.physics.raman import (
     stress_factor,
     stress_from_shift,
 )
-from mesastrain.physics.materials import get_material
 from mesastrain.physics.raman_stress import implied_stress
 
 # Si stiffness, GPa: Hopcroft, Nix & Kenny, J. MEMS 19, 229 (2010) (REFERENCES.md section 1a).

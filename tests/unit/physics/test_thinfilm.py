@@ -9,8 +9,8 @@ import numpy as np
 import pytest
 from scipy.optimize import brentq
 
-from mesastrain.physics.crystal import sample_frame
 from mesastrain.errors import MesastrainError
+from mesastrain.physics.crystal import sample_frame
 from mesastrain.physics.thinfilm import (
     biaxial_energy_per_area,
     biaxial_modulus_001,
@@ -232,10 +232,10 @@ def test_critical_thickness_closed_form_matches_brentq():
     h_pb = people_bean_thickness(f, 0.4, 0.5431, nu)
     for fi, hm, hp in zip(f, h_mb, h_pb):
         A = b * (1 - nu * 0.25) / (8 * np.pi * fi * (1 + nu) * 0.5)
-        ref = brentq(lambda h: h - A * (np.log(h / b) + 1), max(A, b), 1e7, xtol=1e-14, rtol=1e-14)
+        ref = brentq(lambda h, A=A: h - A * (np.log(h / b) + 1), max(A, b), 1e7, xtol=1e-14, rtol=1e-14)
         assert hm == pytest.approx(ref, rel=1e-10)
         C = (1 - nu) / (1 + nu) / (16 * np.pi * np.sqrt(2)) * 0.4**2 / 0.5431 / fi**2
-        ref = brentq(lambda h: h - C * np.log(h / 0.4), C, 1e9, xtol=1e-14, rtol=1e-14)
+        ref = brentq(lambda h, C=C: h - C * np.log(h / 0.4), C, 1e9, xtol=1e-14, rtol=1e-14)
         assert hp == pytest.approx(ref, rel=1e-10)
 
 

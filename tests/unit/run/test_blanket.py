@@ -10,8 +10,8 @@ import numpy as np
 import pytest
 
 from mesastrain.case.parse import parse_case
-from mesastrain.physics.materials import get_material
 from mesastrain.derived import solve_and_derive
+from mesastrain.physics.materials import get_material
 
 
 def blanket(substrate, layer, normal, x_axis, order=1, relaxed=0.0, sub_x=None, layer_x=None,

@@ -11,13 +11,23 @@ import threading
 import time
 import uuid
 from contextlib import contextmanager
-from datetime import datetime, timezone
+from datetime import UTC, datetime
 from pathlib import Path
 
 from mesastrain.cli.sweep.expand import expand
 from mesastrain.cli.sweep.spec import Sweep
-from mesastrain.cli.sweep.store import (CASE_RECORD, CASES_DIR, LOG_JSONL, CaseOutcome, EventLog,
-                                        is_complete, locked, prepare_out, read_json, store_case)
+from mesastrain.cli.sweep.store import (
+    CASE_RECORD,
+    CASES_DIR,
+    LOG_JSONL,
+    CaseOutcome,
+    EventLog,
+    is_complete,
+    locked,
+    prepare_out,
+    read_json,
+    store_case,
+)
 from mesastrain.cli.sweep.tables import collect_figures, write_outputs, write_table
 from mesastrain.cli.sweep.worker import dask_client, one_line, solve_case
 from mesastrain.errors import CaseError
@@ -153,7 +163,7 @@ def run_sweep(sweep: Sweep, out, scheduler: str | None = None, workers: int | No
     cases_dir = out / CASES_DIR
     cases = expand(sweep)
     prog = _Progress(len(cases), progress, stream)
-    started = datetime.now(timezone.utc)
+    started = datetime.now(UTC)
     t0 = time.perf_counter()
     run_id = started.strftime("%Y%m%dT%H%M%S") + "-" + uuid.uuid4().hex[:6]
     with locked(out), _sigterm_as_interrupt():

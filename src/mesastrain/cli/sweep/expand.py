@@ -11,7 +11,6 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from mesastrain.case.parse import parse_case
-
 from mesastrain.case.types import Case
 from mesastrain.cli.sweep.spec import KEY_UNITS, Sweep, parse_path, set_path
 from mesastrain.errors import CaseError

@@ -28,7 +28,7 @@ import tempfile
 import uuid
 from contextlib import contextmanager
 from dataclasses import dataclass, field
-from datetime import datetime, timezone
+from datetime import UTC, datetime
 from pathlib import Path
 
 from mesastrain.cli.sweep.expand import SweepCase
@@ -126,7 +126,7 @@ class EventLog:
     def __call__(self, event: str, **kw) -> None:
         from mesastrain.io.export import jsonable
 
-        line = {"time": datetime.now(timezone.utc).isoformat(timespec="milliseconds"),
+        line = {"time": datetime.now(UTC).isoformat(timespec="milliseconds"),
                 "run": self.run_id, "event": event, **kw}
         with open(self.path, "a", encoding="utf-8") as fh:
             fh.write(json.dumps(jsonable(line)) + "\n")

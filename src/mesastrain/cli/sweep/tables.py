@@ -16,8 +16,16 @@ import numpy as np
 from mesastrain import __version__
 from mesastrain.cli.sweep.figures import figure_unit, figure_value
 from mesastrain.cli.sweep.spec import Sweep
-from mesastrain.cli.sweep.store import (CASES_DIR, LOG_JSONL, META_JSON, PLOTS_DIR, TABLE_CSV,
-                                        TABLE_PARQUET, atomic_write, read_json)
+from mesastrain.cli.sweep.store import (
+    CASES_DIR,
+    LOG_JSONL,
+    META_JSON,
+    PLOTS_DIR,
+    TABLE_CSV,
+    TABLE_PARQUET,
+    atomic_write,
+    read_json,
+)
 from mesastrain.errors import CaseError
 from mesastrain.units import is_number
 
@@ -201,8 +209,8 @@ def plot_sweep(sweep: Sweep, outcomes, folder: Path, units: dict | None = None) 
     list of Path
     """
     from matplotlib.backends.backend_agg import FigureCanvasAgg
-    from matplotlib.ticker import FuncFormatter, NullFormatter
     from matplotlib.figure import Figure
+    from matplotlib.ticker import FuncFormatter, NullFormatter
 
     folder = Path(folder)
     written = []
@@ -305,6 +313,6 @@ def summary_text(sweep: Sweep, meta: dict, outcomes, max_rows: int = 40) -> str:
         lines.append(f"case {fl['case']} failed: {fl['error']}")
     if len(meta["failures"]) > 10:
         lines.append(f"... {len(meta['failures']) - 10} more failure(s) in {META_JSON}")
-    for f, e in meta["figure_errors"].items():
+    for e in meta["figure_errors"].values():
         lines.append(f"warning: {e}")
     return "\n".join(lines)

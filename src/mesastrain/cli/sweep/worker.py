@@ -19,7 +19,7 @@ import tempfile
 import time
 import traceback
 from contextlib import contextmanager
-from datetime import datetime, timezone
+from datetime import UTC, datetime
 from pathlib import Path
 
 from mesastrain import __version__
@@ -75,10 +75,10 @@ def solve_case(case: Case, case_id: str) -> dict:
         (relative path -> bytes) when ok, ``error`` (one line) and
         ``traceback`` when failed.
     """
-    from mesastrain.io.folder import write_result
     from mesastrain.derived import solve_and_derive
+    from mesastrain.io.folder import write_result
 
-    started = datetime.now(timezone.utc).isoformat(timespec="seconds")
+    started = datetime.now(UTC).isoformat(timespec="seconds")
     t0 = time.perf_counter()
     rec = {"hash": case_id, "worker": _worker_name(), "started": started,
            "mesastrain": __version__}
@@ -100,7 +100,7 @@ def solve_case(case: Case, case_id: str) -> dict:
         rec.update(status="failed", error=one_line(f"{type(exc).__name__}: {exc}"),
                    traceback=traceback.format_exc())
     rec["seconds"] = round(time.perf_counter() - t0, 3)
-    rec["finished"] = datetime.now(timezone.utc).isoformat(timespec="seconds")
+    rec["finished"] = datetime.now(UTC).isoformat(timespec="seconds")
     return rec
 
 
