@@ -5,8 +5,8 @@ Used to show that a restructuring or a speed change leaves every result unchange
     python benchmarks/compare_summaries.py OLD_DIR NEW_DIR [--rtol 1e-6] [--atol 1e-9]
 
 OLD_DIR and NEW_DIR each hold one result folder per case (as written by
-``mesastrain run CASE --out DIR/<case name>``). Timings, versions, paths and
-other run-dependent entries are skipped. Prints a table, one row per case:
+``mesastrain run CASE --out DIR/<case name>``). Timings (``*_seconds``), versions,
+paths and other run-dependent entries are skipped. Prints a table, one row per case:
 the number of numeric values compared, the largest relative difference and where
 it is; exits 1 if any value differs by more than the tolerances (or a key is
 missing on one side).
@@ -29,7 +29,7 @@ def leaves(obj, path=""):
     """(path, value) of every leaf of a JSON document."""
     if isinstance(obj, dict):
         for k, v in obj.items():
-            if k in SKIP:
+            if k in SKIP or k.endswith("_seconds"):
                 continue
             yield from leaves(v, f"{path}.{k}" if path else k)
     elif isinstance(obj, list):
