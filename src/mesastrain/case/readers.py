@@ -21,8 +21,9 @@ import math
 
 from mesastrain.case.outline import polygon_problem
 from mesastrain.errors import CaseError
+from mesastrain.physics.bands import device_parameters
 from mesastrain.physics.materials import is_alloy, known_materials
-from mesastrain.physics.raman import device_parameters, pdp_sets
+from mesastrain.physics.raman_data import pdp_sets
 from mesastrain.units import is_number, parse_length, parse_temperature, show_value
 
 __all__ = [

@@ -30,8 +30,9 @@ from pathlib import Path
 
 from mesastrain.case import readers as rd
 from mesastrain.case.keys import Key, Kind, Table
+from mesastrain.physics.bands import device_parameters
 from mesastrain.physics.materials import known_materials
-from mesastrain.physics.raman import device_parameters, pdp_sets
+from mesastrain.physics.raman_data import pdp_sets
 from mesastrain.units import LENGTH_UNITS, TEMPERATURE_UNITS
 
 __all__ = [

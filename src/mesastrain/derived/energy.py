@@ -11,7 +11,10 @@ from __future__ import annotations
 
 import numpy as np
 
-from mesastrain.physics.thinfilm import matthews_blakeslee_thickness, people_bean_thickness
+from mesastrain.physics.critical_thickness import (
+    matthews_blakeslee_thickness,
+    people_bean_thickness,
+)
 
 __all__ = [
     "PB_BURGERS_NM",

@@ -10,6 +10,10 @@ import pytest
 from scipy.optimize import brentq
 
 from mesastrain.errors import MesastrainError
+from mesastrain.physics.critical_thickness import (
+    matthews_blakeslee_thickness,
+    people_bean_thickness,
+)
 from mesastrain.physics.crystal import sample_frame
 from mesastrain.physics.thinfilm import (
     biaxial_energy_per_area,
@@ -20,8 +24,6 @@ from mesastrain.physics.thinfilm import (
     biaxial_stress_ratios_110,
     bow_height,
     in_plane_misfit,
-    matthews_blakeslee_thickness,
-    people_bean_thickness,
     poisson_ratio_perp_001,
     poisson_ratio_perp_110,
     poisson_ratio_perp_111,
