@@ -1,5 +1,7 @@
 """Small case files and fixtures shared by the tests (our own scenarios; solve in seconds)."""
 
+import signal
+
 import numpy as np
 
 from mesastrain.physics.crystal import voigt_to_full
@@ -53,3 +55,13 @@ STIFF = np.stack([rotated_cubic(165.8, 63.9, 79.6, 37.0),
                   rotated_cubic(190.0, 70.0, 60.0, -23.0, axis=(1.0, -2.0, 0.5))])
 EIG = np.stack([np.zeros((3, 3)),
                 np.array([[-0.012, 0.001, 0.0], [0.001, -0.010, 0.002], [0.0, 0.002, 0.004]])])
+
+
+def as_from_a_terminal() -> None:
+    """``preexec_fn`` for a child that should see Ctrl-C as a user's terminal sends it.
+
+    A shell that starts a job in the background sets SIGINT to "ignore", and a
+    child inherits that; Python then never installs its KeyboardInterrupt handler.
+    Tests that send SIGINT restore the default first, as an interactive terminal has.
+    """
+    signal.signal(signal.SIGINT, signal.SIG_DFL)

@@ -23,7 +23,7 @@ import pytest
 from mesastrain.cli.main import main
 from mesastrain.io import destination
 from mesastrain.io.destination import MARKER, is_result_folder
-from small_cases import SMALL_MESA
+from small_cases import SMALL_MESA, as_from_a_terminal
 
 DISK = """
 title = "small disk"
@@ -369,7 +369,7 @@ def _start(case, out, *extra):
     cmd = [sys.executable, "-m", "mesastrain", "run", str(case), "--out", str(out),
            "--progress", *extra]
     return subprocess.Popen(cmd, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
-                            env=dict(os.environ))
+                            env=dict(os.environ), preexec_fn=as_from_a_terminal)
 
 
 def _wait_for(proc, word, timeout=120):

@@ -17,7 +17,7 @@ import numpy as np
 import pytest
 
 from mesastrain.cli.main import main
-from small_cases import SMALL_MESA
+from small_cases import SMALL_MESA, as_from_a_terminal
 
 HERE = Path(__file__).resolve().parents[1]
 BAD = sorted((HERE / "data" / "bad").glob("*.toml"))
@@ -114,7 +114,8 @@ def _start_run(case, out, overwrite=False):
     cmd = [sys.executable, "-m", "mesastrain", "run", str(case), "--out", str(out), "--progress"]
     if overwrite:
         cmd.append("--overwrite")
-    return subprocess.Popen(cmd, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+    return subprocess.Popen(cmd, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
+                            preexec_fn=as_from_a_terminal)
 
 
 def _wait_for(proc, word, timeout=120):
