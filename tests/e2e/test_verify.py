@@ -75,3 +75,51 @@ def test_raman_rows():
     assert rows[0].computed == pytest.approx(-434.0, rel=0.01)
     assert rows[1].computed == pytest.approx(-372.1, abs=0.5)
     assert "implementation check" in rows[1].quantity
+
+
+def test_rows_say_whether_they_validate_or_check_the_implementation(capsys):
+    # rows that evaluate a formula with the tool's own inputs are marked, in the table and JSON
+    assert main(["verify", "--only", "critical_thickness", "bow", "--json"]) == 0
+    data = json.loads(capsys.readouterr().out)
+    kinds = {d["quantity"]: d["kind"] for d in data}
+    assert set(kinds.values()) == {"validation", "implementation"}
+    assert all(k == "implementation" for q, k in kinds.items() if "h_c" in q)
+    assert kinds[next(q for q in kinds if q.startswith("signed wafer curvature"))] == "validation"
+    table = verify.format_table(verify.check_critical_thickness())
+    assert table.count("[implementation check]") == 4
+
+
+def _flip_misfit(monkeypatch):
+    """A plausible bug: the misfit eigenstrain with the wrong sign, everywhere it is built."""
+    import mesastrain.model.regions as regions
+
+    real = regions.build_layers
+
+    def flipped(case):
+        from dataclasses import replace
+        out = real(case)
+        return [out[0]] + [replace(lm, eigenstrain_sample=-lm.eigenstrain_sample,
+                                   eigenstrain_crystal=-lm.eigenstrain_crystal)
+                           for lm in out[1:]]
+    for mod in ("mesastrain.model.regions", "mesastrain.run.pipeline",
+                "mesastrain.mesh.planning", "mesastrain.cli.verify"):
+        m = __import__(mod, fromlist=["x"])
+        if hasattr(m, "build_layers"):
+            monkeypatch.setattr(m, "build_layers", flipped)
+    monkeypatch.setattr(regions, "build_layers", flipped)
+
+
+@pytest.mark.slow
+def test_a_flipped_misfit_sign_fails_a_signed_row(monkeypatch):
+    # The issue's audit: a flipped misfit sign passed all 11 rows of these groups. The signed
+    # rows (SiGe on Si(001) compressive, -1.2 to -1.55 GPa; the Stoney curvature of a
+    # compressive film, film side convex) must now fail, while the implementation checks,
+    # which share the sign with the model, still pass.
+    before = verify.run_checks(["blanket", "bow"])
+    assert all(r.passed for r in before)
+    _flip_misfit(monkeypatch)
+    rows = verify.run_checks(["blanket", "bow"])
+    failed = [r.quantity for r in rows if not r.passed]
+    assert any("signed film stress" in q for q in failed), failed
+    assert any("signed wafer curvature" in q for q in failed), failed
+    assert all(r.kind == "validation" for r in rows if not r.passed)

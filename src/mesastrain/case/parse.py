@@ -60,7 +60,7 @@ from mesastrain.case.schema import (
 )
 from mesastrain.case.types import TABLE_TYPES, Case
 from mesastrain.errors import CaseError, MaterialError, OrientationError
-from mesastrain.physics.crystal import direction_vector, plane_normal, sample_frame
+from mesastrain.physics.crystal import direction_vector, miscut_rotation, plane_normal, sample_frame
 from mesastrain.physics.materials import get_material, is_alloy
 from mesastrain.units import show_value
 
@@ -262,6 +262,13 @@ class _Parser:
         t = read_table(table(key), value, key)
         t.update(self._resolve_material(t, key))
         self._check_orientation(t, key, t["system"], t["c_over_a"])
+        if t.get("miscut") is not None:
+            angle, toward = t["miscut"]
+            try:
+                frame = sample_frame(t["normal"], t["x_axis"], t["system"], t["c_over_a"])
+                miscut_rotation(frame, angle, toward, t["c_over_a"])
+            except OrientationError as err:
+                raise CaseError(f"{key}.miscut", str(err)) from None
         return t
 
     def _layers(self, value, key: str) -> list:

@@ -265,6 +265,41 @@ def indices(value, key: str) -> tuple:
     return tuple(value)
 
 
+#: Units a miscut angle may carry (degrees only).
+ANGLE_UNITS = ("deg", "°")
+
+
+def miscut(value, key: str) -> tuple:
+    """{ angle = "4 deg", toward = [1, 1, 0] } -> (angle in degrees, toward indices).
+
+    The angle is a number in degrees or a string with ``deg``/``°``; its range
+    and the direction against the wafer normal are checked with the
+    orientation (:func:`mesastrain.physics.crystal.miscut_rotation`).
+    """
+    example = 'e.g. { angle = "4 deg", toward = [1, 1, 0] }'
+    if not isinstance(value, dict) or set(value) != {"angle", "toward"}:
+        raise CaseError(key, f"expected a table with angle and toward, {example}, got "
+                             f"{show_value(value)}")
+    angle = value["angle"]
+    if isinstance(angle, str):
+        text = angle.strip()
+        for unit in ANGLE_UNITS:
+            if text.endswith(unit):
+                text = text[: -len(unit)].strip()
+                break
+        else:
+            raise CaseError(f"{key}.angle", f"expected degrees, a number or a string such as "
+                                            f'"4 deg", got {show_value(angle)}')
+        try:
+            angle = float(text)
+        except ValueError:
+            raise CaseError(f"{key}.angle", f"expected degrees, a number or a string such as "
+                                            f'"4 deg", got {show_value(value["angle"])}') from None
+    if not is_number(angle) or not math.isfinite(angle):
+        raise CaseError(f"{key}.angle", f"expected degrees, got {show_value(value['angle'])}")
+    return (float(angle), indices(value["toward"], f"{key}.toward"))
+
+
 def point(value, key: str) -> tuple:
     """A point [x, y, z] of three lengths -> (x, y, z) in nm."""
     if not isinstance(value, list) or len(value) != 3:

@@ -161,6 +161,17 @@ PITCH = Kind(rd.pitch, {"anyOf": [_ref("positiveLength"),
                                   {"type": "array", "items": _ref("positiveLength"),
                                    "minItems": 1, "maxItems": 2}]},
              echo=lambda p: p[0] if p[1] is None else [p[0], p[1]])
+MISCUT = Kind(rd.miscut, {"type": "object", "additionalProperties": False,
+                          "required": ["angle", "toward"],
+                          "properties": {
+                              "angle": {"description": "Degrees, 0 to 15: a number or a string "
+                                                       'such as "4 deg".',
+                                        "anyOf": [{"type": "number", "minimum": 0,
+                                                   "maximum": 15},
+                                                  {"type": "string",
+                                                   "pattern": _with_unit(("deg", "°"))}]},
+                              "toward": _ref("indices")}},
+              echo=lambda m: {"angle": f"{m[0]:g} deg", "toward": list(m[1])})
 GROUPS = Kind(rd.groups, {"type": "object", "minProperties": 1,
                           "additionalProperties": {"anyOf": [{"type": "integer", "minimum": 0},
                                                              {"const": "substrate"}]}},
@@ -181,6 +192,10 @@ SUBSTRATE = Table("substrate", "substrate", "The wafer.", (
         required="the surface plane as Miller indices, e.g. [0, 0, 1]"),
     Key("x_axis", INDICES, "Crystal direction [uvw] or [UVTW] along sample +x, in the surface.",
         required="the crystal direction along sample x, e.g. [1, 1, 0]"),
+    Key("miscut", MISCUT, "Vicinal wafer: the normal tilted from the exact (hkl) by angle "
+        "(0 to 15 deg) toward a crystal direction, projected onto the surface, e.g. "
+        '{ angle = "4 deg", toward = [1, 1, 0] }. Sample z is the tilted normal; the sample '
+        "axes and every layer turn with it."),
 ))
 
 LAYER = Table("layer", "layers", "The grown layers, bottom to top; at least one.", (

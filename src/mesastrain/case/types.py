@@ -47,6 +47,9 @@ class Substrate:
         Surface plane (hkl) or (hkil); sample +z.
     x_axis : tuple of int
         Crystal direction [uvw] or [UVTW] along sample +x.
+    miscut : tuple or None
+        (angle in degrees, toward indices) of a vicinal wafer; None for an exact
+        orientation.
     """
 
     material: str
@@ -54,6 +57,7 @@ class Substrate:
     thickness: float
     normal: tuple
     x_axis: tuple
+    miscut: tuple | None = None
 
 
 @dataclass(frozen=True)

@@ -6,7 +6,7 @@ command line, the sweep workers and the convergence study. Add a provider by wri
 its module here and appending its ``derive`` to :data:`PROVIDERS`.
 """
 
-from mesastrain.derived import bow, cuts, device, misfit, readouts
+from mesastrain.derived import bow, cuts, device, misfit, readouts, tilt
 from mesastrain.run.pipeline import run_case
 
 #: The standard derived-quantity providers, in run order (the order of the entries in
@@ -17,6 +17,7 @@ PROVIDERS = (
     bow.derive,         # free-standing blanket wafer: FE, Stoney, laminate
     cuts.derive,        # [[cut]] -> CSV + PNG
     misfit.derive,      # dislocation contribution, overlay, relaxation
+    tilt.derive,        # layer tilt against the substrate lattice (arcsec)
 )
 
 

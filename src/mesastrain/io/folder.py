@@ -68,6 +68,21 @@ def layer_figures(res: Result) -> list[dict]:
     return out
 
 
+def boundary_text(mesh) -> str:
+    """One line saying how the model is held (from its :class:`Boundary`)."""
+    bc = mesh.boundary()
+    tied = sorted({a for a, _, _ in bc.periodic})
+    held = sorted({a for c, a, _ in bc.supports if a in (0, 1) and a == c} - set(tied))
+    parts = ["substrate bottom held in z"]
+    if tied:
+        parts.append(f"faces normal to {' and '.join('xy'[a] for a in tied)} tied periodically "
+                     f"(rigid translation pinned at one bottom node)")
+    if held:
+        parts.append(f"faces normal to {' and '.join('xy'[a] for a in held)} held normal to "
+                     f"themselves (rollers: mirror planes or substrate-only faces)")
+    return "; ".join(parts + ["top and sidewalls free"])
+
+
 def summary_of(res: Result) -> dict:
     """The content of ``summary.json``."""
     case = res.case
@@ -96,8 +111,7 @@ def summary_of(res: Result) -> dict:
                                   "y": [res.mesh.ys[0], res.mesh.ys[-1]],
                                   "z": [res.mesh.zs[0], res.mesh.zs[-1]]},
                  "size": res.mesh.spacing.size, "edge_size": res.mesh.spacing.edge_size},
-        "boundary_conditions": "substrate bottom held in z; lateral faces of the model held "
-                               "normal to themselves (rollers); top and sidewalls free",
+        "boundary_conditions": boundary_text(res.mesh),
         "solver": res.solver.to_dict(),
         "timings": {k: round(v, 3) for k, v in res.timings.items()},
         "layer_figures": layer_figures(res),

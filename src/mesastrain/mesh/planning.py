@@ -37,6 +37,21 @@ def auto_mirrors(case: Case) -> tuple:
     return decide(case, build_layers(case)).mirrors
 
 
+def film_reaches_side(case: Case) -> bool:
+    """True when a grown layer reaches the side faces of a patterned model.
+
+    That is the case when the etch stops above the substrate (``etch_depth``
+    smaller than the stack thickness): the layers below the etch floor cover
+    the whole modelled cell. Rollers on such a face would forbid the shear
+    eps_xz, eps_yz a coherent film takes on a wafer without a mirror plane
+    normal to that face, so :func:`layout_of` ties that pair of faces
+    instead (the isolated feature then repeats with the cell width, as it
+    effectively did with rollers, which mirror it).
+    """
+    pat = case.pattern
+    return bool(pat.patterned and pat.etch_depth < case.stack_thickness)
+
+
 def refinement_of(case: Case) -> float:
     """The ``mesh.refine`` factor (1 when the case does not set it)."""
     return float(case.mesh.refine or 1.0)
@@ -101,9 +116,12 @@ def layout_of(case: Case, mirrors: tuple | None = None) -> tuple[StackLayout, Gr
     if patterned:
         if mirrors is None:
             mirrors = auto_mirrors(case)
-        periodic = tuple(a for a in (0, 1) if pitch[a] is not None)
+        periodic = tuple(a for a in (0, 1) if pitch[a] is not None
+                         or (a not in mirrors and film_reaches_side(case)))
     else:
-        mirrors, periodic = (), ()
+        # a blanket column: side faces tied (a periodic cell), so a film on a low-symmetry
+        # wafer takes the shear eps_xz, eps_yz it needs for sigma_i3 = 0
+        mirrors, periodic = (), (0, 1)
         if refine != 1.0:   # the blanket column is two elements wide; refine it in z only
             lateral_cap = size
         if case.dislocations:

@@ -37,7 +37,7 @@ from mesastrain.case.outline import Outline, outline_of, taper_of
 from mesastrain.errors import MeshError
 from mesastrain.fem.cost import Estimate, estimate_from_counts
 from mesastrain.mesh.grid import GridSpacing, join_segments
-from mesastrain.mesh.planning import refinement_of
+from mesastrain.mesh.planning import film_reaches_side, refinement_of
 from mesastrain.mesh.unstructured import UnstructuredMesh, box_boundary
 
 log = logging.getLogger(__name__)
@@ -146,7 +146,9 @@ def shape_spec(case, mirrors=()) -> ShapeSpec:
     else:
         margin = pat.margin if pat.margin is not None else max(0.5 * feature, 4.0 * etch)
         box = (-(hx + margin), hx + margin, -(hy + margin), hy + margin)
-        periodic = ()
+        # a film layer on the cell faces: tie them so it can shear (planning.film_reaches_side)
+        periodic = (tuple(a for a in (0, 1) if a not in mirrors)
+                    if film_reaches_side(case) else ())
         depth_default = max(1.5 * feature, 4.0 * etch)
     box = list(box)
     if 0 in mirrors:

@@ -34,7 +34,7 @@ import numpy as np
 
 from mesastrain.case.types import Case
 from mesastrain.errors import CaseError, MaterialError
-from mesastrain.physics.crystal import Frame, sample_frame
+from mesastrain.physics.crystal import Frame, miscut_rotation, sample_frame
 from mesastrain.physics.materials import Material, get_material
 from mesastrain.physics.thermal import thermal_mismatch_strain
 
@@ -114,6 +114,11 @@ def build_layers(case: Case) -> list[LayerModel]:
     except Exception as exc:  # validated already; keep a clear message anyway
         raise CaseError("substrate.material", str(exc)) from exc
     sframe = sample_frame(sub.normal, sub.x_axis, smat.system, smat.c_over_a)
+    tilt = None
+    if sub.miscut is not None:
+        # a vicinal wafer: every frame of the stack turns by the same rotation
+        tilt = miscut_rotation(sframe, sub.miscut[0], sub.miscut[1], smat.c_over_a)
+        sframe = sframe.tilted(tilt, sub.miscut[0])
     out = [LayerModel(0, smat, sframe, -sub.thickness, 0.0, 1.0, (smat.a, smat.c),
                       np.zeros((3, 3)), 0.0, sframe.stiffness_to_sample(smat.stiffness),
                       np.zeros((3, 3)))]
@@ -126,6 +131,8 @@ def build_layers(case: Case) -> list[LayerModel]:
             frame = sample_frame(lay.normal, lay.x_axis, mat.system, mat.c_over_a)
         else:
             frame = sample_frame(sub.normal, sub.x_axis, mat.system, mat.c_over_a)
+        if tilt is not None:
+            frame = frame.tilted(tilt, sub.miscut[0])
         a_ref, c_ref = _reference_lattice(below_lat, below_sys, mat)
         r = lay.relaxed
         a_eff = a_ref + r * (mat.a - a_ref)

@@ -145,7 +145,7 @@ def decide(case, layers, extra_eigenstrain: bool = False) -> Symmetry:
     """
     requested = getattr(case.pattern, "symmetry", None) or "auto"
     if not case.pattern.patterned:
-        return Symmetry((), requested, "blanket stack (a column with roller sides)")
+        return Symmetry((), requested, "blanket stack (a periodic column: side faces tied)")
     if requested == "full":
         return Symmetry((), requested, "the case asks for the full model (pattern.symmetry)")
     if extra_eigenstrain:

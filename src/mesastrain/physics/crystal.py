@@ -262,6 +262,29 @@ class Frame:
     normal: tuple
     x_axis: tuple
     system: str
+    miscut_deg: float = 0.0
+
+    def tilted(self, M: np.ndarray, angle_deg: float) -> Frame:
+        """The frame of a vicinal wafer: sample axes turned by the rotation ``M``.
+
+        Parameters
+        ----------
+        M : array (3, 3)
+            Rotation written in this (exact) sample frame that takes the exact
+            normal to the vicinal one (:func:`miscut_rotation`).
+        angle_deg : float
+            The miscut angle, degrees (kept for the summary).
+
+        Returns
+        -------
+        Frame
+            Rows ``R' = M^T R``: the new sample axes ``R^T M e_i`` in crystal
+            coordinates. Every frame of the stack turned by the same ``M``
+            keeps the epitaxial relation between the layers.
+        """
+        R = np.asarray(M, dtype=float).T @ self.R
+        return Frame(R=R, normal=self.normal, x_axis=self.x_axis, system=self.system,
+                     miscut_deg=float(angle_deg))
 
     def to_sample(self, t: np.ndarray) -> np.ndarray:
         """Second-order tensor(s) from crystal to sample axes."""
@@ -314,6 +337,66 @@ def sample_frame(normal, x_axis, system: str = "cubic",
     R = np.array([x, y, z])
     return Frame(R=R, normal=tuple(int(v) for v in np.round(normal)),
                  x_axis=tuple(int(v) for v in np.round(x_axis)), system=system)
+
+
+#: Largest miscut angle accepted, degrees (vicinal wafers; larger tilts are other planes).
+MISCUT_MAX_DEG = 15.0
+#: Smallest angle between a miscut direction and the exact normal, degrees.
+MISCUT_MIN_DIRECTION_DEG = 45.0
+
+
+def miscut_rotation(frame: Frame, angle_deg: float, toward, c_over_a: float | None = None
+                    ) -> np.ndarray:
+    """Rotation (in the exact sample frame) that tilts the wafer normal by a miscut.
+
+    A wafer "(001) 4 deg off toward [110]" has its surface normal tilted from
+    the exact [001] by 4 deg toward [110] (common practice in epitaxy). The
+    direction is projected onto the exact surface plane, so a direction out
+    of the plane, as in "(001) off toward (111)" with [111] at 54.7 deg from
+    [001], gives the usual tilt toward the projection [110].
+
+    Parameters
+    ----------
+    frame : Frame
+        The exact frame (Miller indices of the wafer).
+    angle_deg : float
+        Miscut angle, degrees, 0 to :data:`MISCUT_MAX_DEG`.
+    toward : sequence of int
+        Crystal direction [uvw] or [UVTW] toward which the normal is tilted;
+        at least :data:`MISCUT_MIN_DIRECTION_DEG` from the exact normal.
+    c_over_a : float, optional
+        Required for hexagonal crystals.
+
+    Returns
+    -------
+    M : array (3, 3)
+        Rotation about the in-plane axis z x t by the miscut angle (Rodrigues),
+        written in the exact sample frame; ``M @ e_z`` is the vicinal normal,
+        ``cos(a) e_z + sin(a) t`` with t the unit projection of ``toward``.
+
+    Raises
+    ------
+    OrientationError
+        Angle out of range, or a direction too close to the normal.
+    """
+    a = float(angle_deg)
+    if not (np.isfinite(a) and 0.0 <= a <= MISCUT_MAX_DEG):
+        raise OrientationError(f"miscut angle must be between 0 and {MISCUT_MAX_DEG:g} deg "
+                               f"(a vicinal wafer), got {a:g} deg")
+    t = frame.R @ direction_vector(toward, frame.system, c_over_a, what="miscut direction")
+    t = t / np.linalg.norm(t)
+    off = np.degrees(np.arccos(np.clip(abs(t[2]), 0.0, 1.0)))
+    if off < MISCUT_MIN_DIRECTION_DEG:
+        raise OrientationError(
+            f"miscut direction {list(toward)!r} is {off:.3g} deg from the normal "
+            f"{list(frame.normal)!r}; give a direction in (or near, at least "
+            f"{MISCUT_MIN_DIRECTION_DEG:g} deg from the normal) the surface plane")
+    t[2] = 0.0
+    t /= np.linalg.norm(t)
+    k = np.array([-t[1], t[0], 0.0])              # e_z x t, the tilt axis
+    K = np.array([[0.0, -k[2], k[1]], [k[2], 0.0, -k[0]], [-k[1], k[0], 0.0]])
+    r = np.radians(a)
+    return np.eye(3) + np.sin(r) * K + (1.0 - np.cos(r)) * (K @ K)
 
 
 def format_indices(idx, brackets: str = "[]") -> str:

@@ -2,8 +2,8 @@
 
 A laterally infinite pseudomorphic film has equi-biaxial in-plane strain equal
 to the misfit, zero normal traction, and an out-of-plane strain fixed by the
-rotated stiffness. The finite-element model of a blanket stack (a column with
-roller sides) must reproduce these to 0.5 %.
+rotated stiffness. The finite-element model of a blanket stack (a periodic
+column, side faces tied) must reproduce these to 0.5 %.
 """
 
 import numpy as np
