@@ -230,3 +230,23 @@ def test_issue14_thin_layer_on_thick_substrate():
                                  substrate=sub, probe=[{"name": "c", "at": [0, 0, 0.0005]}]))
     s = res.probes[0]["stress"]
     assert np.all(np.isfinite(s)) and s[0][0] < -500.0      # the compressed SiGe film
+
+
+@pytest.mark.slow
+def test_gmsh_disk_standoff_values_and_centre_shear():
+    # quadratic tetrahedra (gmsh disk): stand-off values from the recovered field on both sides
+    # of the interface, each with an error bar, and zero shear on the mirror planes at the centre
+    res = solve_and_derive(_case({"shape": "disk", "diameter": 100, "etch_depth": 30},
+                                 {"order": 2}))
+    assert type(res.mesh).__name__ == "UnstructuredMesh"
+    r = _readouts(res)
+    edge = next(f for f in r["edges"] if f["name"] == "layer 1/substrate edge +x")
+    assert set(edge["values"]) == {"layer 1", "substrate"}
+    for v in edge["values"].values():
+        assert np.isfinite(v["von_mises"]) and v["error_estimate"]["von_mises"] < \
+            0.1 * v["von_mises"]
+    t = np.linalg.norm(np.array(edge["values"]["layer 1"]["stress"])[:, 2])
+    assert edge["traction_jump"] < 0.15 * t
+    _, sig, _, region = res.sample([[0.0, 0.0, 10.0], [0.0, 0.0, 0.0]])
+    np.testing.assert_allclose(sig[:, [0, 1], 2], 0.0, atol=1e-12 * np.abs(sig).max())
+    assert list(region) == [1, 0]
