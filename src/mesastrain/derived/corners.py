@@ -16,7 +16,8 @@ from mesastrain.derived.sampling import (
     directions,
     element_size_at,
     etch_floor,
-    sample_inside,
+    locate_in_region,
+    recovered_stress,
     sidewall_distance,
 )
 from mesastrain.fem.fields import hydrostatic, principal, von_mises
@@ -28,8 +29,13 @@ __all__ = [
     "free_edge_interfaces",
     "nearest_feature",
     "region_peaks",
+    "elements_between",
     "standoff_values",
+    "standoff_warnings",
 ]
+
+#: Fewest elements between a singular edge and a stand-off point for a resolved value.
+MIN_ELEMENTS = 3
 
 
 SINGULAR_NOTE = ("stress at a sharp reentrant corner or where a bimaterial interface meets a "
@@ -120,8 +126,8 @@ def edge_features(res, standoff: float) -> list[dict]:
             feats.append({
                 "name": f"{above.name}/{below.name} edge {label}", "kind": kind,
                 "singular": bool(sing), "at": edge.tolist(), "side": label, "z": z,
-                "points": {above.name: (p + [0, 0, eps]).tolist(),
-                           below.name: (p - [0, 0, eps]).tolist()},
+                "points": {above.name: p.tolist(), below.name: p.tolist()},
+                "regions": {above.name: above.index, below.name: below.index},
                 "direction": "along the interface, into the feature",
             })
         if not floor_on_interface:
@@ -136,6 +142,7 @@ def edge_features(res, standoff: float) -> list[dict]:
                 "name": f"etch-floor corner {label}", "kind": "reentrant corner (sidewall meets "
                 "etch floor)", "singular": True, "at": edge.tolist(), "side": label, "z": floor,
                 "points": {layers[region].name: p.tolist()},
+                "regions": {layers[region].name: layers[region].index},
                 "direction": "bisector of the 270 degree material angle",
             })
     pat = res.case.pattern
@@ -155,8 +162,8 @@ def edge_features(res, standoff: float) -> list[dict]:
                         "kind": "interface meets a vertical mesa corner (3-D vertex)",
                         "singular": bool(_differs(below, above) or abs(z - floor) <= tol),
                         "at": corner.tolist(), "side": lab, "z": z,
-                        "points": {above.name: (p + [0, 0, eps]).tolist(),
-                                   below.name: (p - [0, 0, eps]).tolist()},
+                        "points": {above.name: p.tolist(), below.name: p.tolist()},
+                        "regions": {above.name: above.index, below.name: below.index},
                         "direction": "along the in-plane diagonal, into the feature"})
                 if not floor_on_interface:
                     corner = np.array([sx * hx, sy * hy, floor])
@@ -168,36 +175,101 @@ def edge_features(res, standoff: float) -> list[dict]:
                         "kind": "reentrant 3-D vertex (mesa corner meets etch floor)",
                         "singular": True, "at": corner.tolist(), "side": lab, "z": floor,
                         "points": {layers[region].name: p.tolist()},
+                        "regions": {layers[region].name: layers[region].index},
                         "direction": "into the substrate, equally inward in x, y and down"})
     return feats
 
 
+def elements_between(res, start: np.ndarray, end: np.ndarray, regions,
+                     samples: int = 400) -> np.ndarray:
+    """Number of elements of ``regions`` crossed by the segments start -> end (ends excluded).
+
+    Counted as the distinct elements holding points along each segment (the
+    element of the point's region, lowest cell first on a grid plane).
+    """
+    start, end = np.atleast_2d(start), np.atleast_2d(end)
+    t = (np.arange(samples) + 0.5) / samples
+    pts = start[:, None, :] + t[None, :, None] * (end - start)[:, None, :]
+    reg = np.repeat(np.asarray(regions), samples)
+    q = pts.reshape(-1, 3).copy()
+    for a in res.mesh.mirrors:
+        q[:, a] = np.abs(q[:, a])
+    el = locate_in_region(res, q, reg).reshape(len(start), samples)
+    srt = np.sort(el, axis=1)
+    return ((np.diff(srt, axis=1) != 0).sum(axis=1) + 1 - (srt[:, 0] < 0)).astype(int)
+
+
 def standoff_values(res, feats: list[dict]) -> list[dict]:
-    """Evaluate the stress at every stand-off point of :func:`edge_features`."""
-    keys, pts = [], []
+    """Stress at every stand-off point of :func:`edge_features`, from the recovered field.
+
+    Each value is the superconvergent patch recovery of the stress of the
+    named region (:func:`mesastrain.derived.sampling.recovered_stress`), the
+    one-sided limit on an interface, never a finite-element value on a face.
+    Beside it: ``error_estimate`` (MPa), the Zienkiewicz-Zhu estimate
+    |f(recovered) - f(finite element)| of each figure f at the point (the
+    error of the finite-element value; the recovered value is normally more
+    accurate, so it is a conservative bar for it), ``elements_to_edge`` (the
+    elements between the edge or corner and the point; fewer than
+    :data:`MIN_ELEMENTS` and the value is not resolved) and, for an
+    interface, ``traction_jump``: |t_above - t_below| of the two one-sided
+    recovered tractions sigma . e_z, which the exact solution makes zero.
+    """
+    keys, pts, regs, starts = [], [], [], []
     for i, f in enumerate(feats):
         for side, p in f["points"].items():
             keys.append((i, side))
             pts.append(p)
+            regs.append(f["regions"][side])
+            starts.append(f["at"])
     if not pts:
         return []
-    pts = np.array(pts)
-    _, sig, _, region = sample_inside(res, pts)
+    pts = np.array(pts, dtype=float)
+    regs = np.array(regs)
+    rec, fe, elems, deg = recovered_stress(res, pts, regs)
+    between = elements_between(res, np.array(starts, dtype=float), pts, regs)
     h = element_size_at(res, pts)
     out = [dict(f, values={}) for f in feats]
-    for (i, side), p, s, r, hk in zip(keys, pts, sig, region, h):
-        if r < 0:
+    for (i, side), p, s, sf, e, nb, hk, dg in zip(keys, pts, rec, fe, elems, between, h, deg):
+        if e < 0:
             continue
-        pr = principal(s)
-        out[i]["values"][side] = {
-            "at": p.tolist(), "stress": s, "von_mises": float(von_mises(s)),
-            "principal_max": float(pr[0]), "principal_min": float(pr[2]),
-            "hydrostatic": float(hydrostatic(s)),
-            "peel": float(s[2, 2]),
-            "element_size": float(hk)}
+        pr, prf = principal(s), principal(sf)
+        figs = {"von_mises": (float(von_mises(s)), float(von_mises(sf))),
+                "principal_max": (float(pr[0]), float(prf[0])),
+                "principal_min": (float(pr[2]), float(prf[2])),
+                "hydrostatic": (float(hydrostatic(s)), float(hydrostatic(sf))),
+                "peel": (float(s[2, 2]), float(sf[2, 2]))}
+        val = {"at": p.tolist(), "stress": s}
+        val.update({k: v[0] for k, v in figs.items()})
+        val["error_estimate"] = {k: abs(v[0] - v[1]) for k, v in figs.items()}
+        val["error_estimate"]["stress"] = float(np.max(np.abs(s - sf)))
+        val["element_size"] = float(hk)
+        val["elements_to_edge"] = int(nb)
+        val["resolved"] = bool(nb >= MIN_ELEMENTS)
+        if dg < res.order:
+            val["recovery_degree"] = int(dg)
+        out[i]["values"][side] = val
     for f in out:
         f.pop("points", None)
+        f.pop("regions", None)
+        v = list(f["values"].values())
+        if len(v) == 2 and f["kind"].startswith(("interface", "reentrant corner at an")):
+            t = [np.asarray(x["stress"])[:, 2] for x in v]
+            f["traction_jump"] = float(np.linalg.norm(t[0] - t[1]))
     return out
+
+
+def standoff_warnings(feats: list[dict], standoff: float) -> list[str]:
+    """One warning when some stand-off values have fewer than MIN_ELEMENTS elements to the edge."""
+    few = [(v["elements_to_edge"], v["element_size"], f["name"]) for f in feats
+           for v in f["values"].values() if not v["resolved"]]
+    if not few:
+        return []
+    n, hk, name = min(few)
+    return [f"{len(few)} stand-off value(s) at {standoff:g} nm have fewer than {MIN_ELEMENTS} "
+            f"elements between the edge and the point (fewest: {n} at '{name}', element "
+            f"{hk:.3g} nm there): they are not resolved and move under refinement; set "
+            f"mesh.edge_size <= {standoff / (MIN_ELEMENTS + 1):.3g} nm or raise "
+            f"readouts.standoff"]
 
 
 def nearest_feature(point, feats: list[dict]) -> tuple[str | None, float]:

@@ -39,6 +39,8 @@ from __future__ import annotations
 import csv
 from pathlib import Path
 
+import numpy as np
+
 from mesastrain.derived.corners import (
     SINGULAR_NOTE,
     default_standoff,
@@ -47,6 +49,7 @@ from mesastrain.derived.corners import (
     nearest_feature,
     region_peaks,
     standoff_values,
+    standoff_warnings,
 )
 from mesastrain.derived.energy import critical_thickness, critical_warning, layer_energy
 from mesastrain.derived.relaxation import RECOVERY, blanket_state, edge_relaxation, plot_relaxation
@@ -80,6 +83,7 @@ def derive(res) -> Derived:
     centres = cell_centres(res)
     warnings = []
     feats = standoff_values(res, edge_features(res, standoff)) if floor is not None else []
+    warnings.extend(standoff_warnings(feats, standoff))
 
     layers_out, relax_rows = [], []
     for lm in res.layers:
@@ -90,6 +94,10 @@ def derive(res) -> Derived:
             name, dist = nearest_feature(pk["at"], feats)
             if name is not None:
                 pk["nearest_feature"], pk["distance_to_feature"] = name, dist
+                # a peak within two elements of a singular edge grows without bound under
+                # refinement: marked, and given no error bar
+                sing = next(f["singular"] for f in feats if f["name"] == name)
+                pk["singular"] = bool(sing and dist < 2.0 * np.sqrt(3.0) * _size_at(res, pk["at"]))
         entry["peaks"] = peaks
         if lm.index > 0:
             b_sig, b_eps = blanket_state(lm)
@@ -128,6 +136,10 @@ def derive(res) -> Derived:
             sk = max(prof.values(), key=lambda v: abs(v["shear_peak"]))
             item["peel_peak"] = pk["peel_peak"]
             item["shear_peak"] = sk["shear_peak"]
+            # the traction next to a sharp edge is singular: its peak has no error bar
+            item["peak_singular"] = any(f["singular"] for f in feats
+                                        if f.get("z") == z and "edge" in f["name"])
+            item["traction_jump_max"] = max(v["traction_jump_max"] for v in prof.values())
         interfaces.append(item)
 
     summary = {"readouts": {
@@ -140,9 +152,26 @@ def derive(res) -> Derived:
                                   f"feature centre, at mid-height of the layer"),
         "traction_definition": ("peel = sigma_zz on the interface plane (positive opens it); "
                                 "shear = traction component pointing toward the sidewall; "
-                                "sampled below the centre of each element next to the "
-                                "interface, interpolated in z between the element centres "
-                                "above and below"),
+                                "the mean of the two one-sided tractions sigma . e_z "
+                                "recovered by superconvergent patch recovery in each region "
+                                "(Zienkiewicz & Zhu 1992), at element-boundary points along "
+                                "the interface; traction_jump_max = largest |t_above - "
+                                "t_below| along the profile (zero for the exact solution)"),
+        "recovery": ("stand-off and interface values: superconvergent patch recovery "
+                     "(Zienkiewicz & Zhu, Int. J. Numer. Meth. Eng. 33, 1331 (1992)) per "
+                     "region, patch polynomials blended with the vertex shape functions; "
+                     "one-sided on an interface (the side named), never averaged across it"),
+        "error_estimate_definition": (
+            "beside each stand-off figure: |figure(recovered stress) - figure(finite-element "
+            "stress)| at the point, MPa (Zienkiewicz & Zhu, Int. J. Numer. Meth. Eng. 24, "
+            "337 (1987)): the estimated error of the finite-element value, a conservative "
+            "bar for the recovered one; resolved = at least 3 elements between the edge and "
+            "the point. Peaks and traction peaks at singular edges are marked singular and "
+            "have no error bar"),
+        "balance_definition": ("net force across each interface plane relative to the "
+                               "integral of |traction|: an equilibrium check of the solve; "
+                               "on brick meshes it vanishes identically whatever the mesh, "
+                               "so it is not an estimate of the discretisation error"),
         "peaks_definition": "element-average stresses; location = element centre",
         "singular_note": SINGULAR_NOTE,
         "layers": layers_out,
@@ -206,6 +235,14 @@ def convergence_figures(res) -> dict:
             if rl.get(side):
                 out[f"{lm.name} relaxation length {side} (nm)"] = rl[side]["length"]
     return out
+
+
+def _size_at(res, point) -> float:
+    """Cube root of the volume of the element holding a point, nm (0 outside)."""
+    from mesastrain.derived.sampling import element_size_at
+
+    h = element_size_at(res, np.atleast_2d(point))[0]
+    return float(h) if np.isfinite(h) else 0.0
 
 
 def _write_csv(path: Path, header, rows) -> None:

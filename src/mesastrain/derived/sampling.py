@@ -12,6 +12,10 @@ from __future__ import annotations
 
 import numpy as np
 
+from mesastrain.fem.fields import reference_coordinates
+from mesastrain.fem.recovery import recover_at
+from mesastrain.model.symmetry import reflect_points, reflect_tensors
+
 __all__ = [
     "PROFILE_POINTS",
     "cell_centres",
@@ -21,7 +25,9 @@ __all__ = [
     "etch_floor",
     "feature_bounds",
     "locate",
+    "locate_in_region",
     "mirrors_of",
+    "recovered_stress",
     "sample_inside",
     "sidewall_distance",
 ]
@@ -66,6 +72,105 @@ def sample_inside(res, points: np.ndarray):
         e, s, u, r = res.sample(pts[inside])
         strain[inside], stress[inside], disp[inside], region[inside] = e, s, u, r
     return strain, stress, disp, region
+
+
+def locate_in_region(res, points: np.ndarray, regions=None) -> np.ndarray:
+    """Element of region ``regions[i]`` holding each point (a point on an interface lies in
+    elements of both regions), -1 where none does; ``regions`` None: :func:`locate`.
+
+    Points are of the modelled body (mirror images are not mapped here).
+    """
+    cand = res.mesh.locate_all(np.atleast_2d(np.asarray(points, dtype=float)))
+    if regions is None:
+        return cand[:, 0]
+    want = np.broadcast_to(np.asarray(regions), (len(cand),))
+    match = (cand >= 0) & (res.mesh.region[np.maximum(cand, 0)] == want[:, None])
+    j = np.argmax(match, axis=1)
+    return np.where(match.any(axis=1), cand[np.arange(len(cand)), j], -1)
+
+
+def _element_kind(mesh) -> str:
+    name = type(mesh).__name__.lower()
+    for kind in ("hex", "quad", "tet", "tri"):
+        if kind in name:
+            return kind
+    raise TypeError(f"no recovery for elements of {type(mesh).__name__}")
+
+
+def recovered_stress(res, points: np.ndarray, regions=None):
+    """Stress at points from superconvergent patch recovery, one-sided per region.
+
+    The patches of :func:`mesastrain.fem.recovery.recover_at` hold only the
+    elements of the region asked for, so a point on a material interface gets
+    the limit of that region's stress, never an average across the interface.
+    The finite-element stress of the same element is returned beside it: their
+    difference is the Zienkiewicz-Zhu error estimate of the finite-element
+    value there (Zienkiewicz & Zhu, Int. J. Numer. Meth. Eng. 24, 337 (1987)).
+
+    Parameters
+    ----------
+    points : array (npts, 3), nm
+        Points of the whole feature (mirror images are mapped).
+    regions : int or array of int, optional
+        Region whose one-sided value is wanted at each point (default: the
+        region :func:`locate` gives).
+
+    Returns
+    -------
+    recovered, fe : ndarray (npts, 3, 3)
+        MPa; NaN where the point is not in an element of the region.
+    elements : ndarray of int (npts,)
+        The element used (-1: none).
+    degree : ndarray of int (npts,)
+        Lowest patch polynomial degree used (below the element order where the
+        patches near a corner had too few samples; -1 where not evaluated).
+    """
+    from skfem import ElementHex1, ElementQuad1, ElementTetP1, ElementTriP1
+
+    pts = np.atleast_2d(np.asarray(points, dtype=float))
+    q, signs = reflect_points(pts, tuple(mirrors_of(res)))
+    n = len(q)
+    elems = locate_in_region(res, q, regions)
+    rec = np.full((n, 3, 3), np.nan)
+    fe = np.full((n, 3, 3), np.nan)
+    deg = np.full(n, -1)
+    ok = np.flatnonzero(elems >= 0)
+    if ok.size == 0:
+        return rec, fe, elems, deg
+    disc, mm = res.disc, res.mesh
+    m = disc.basis.mesh
+    dim = m.p.shape[0]
+    kind = _element_kind(m)
+    vref = {"hex": ElementHex1, "quad": ElementQuad1, "tet": ElementTetP1,
+            "tri": ElementTriP1}[kind]().doflocs
+    mapping = m.mapping()
+    cols = [0, 1, 2] if dim == 3 else [0, 2]
+
+    def to3(x):                                              # (..., dim) -> (..., 3)
+        if dim == 3:
+            return x
+        return np.stack([x[..., 0], np.zeros_like(x[..., 0]), x[..., 1]], axis=-1)
+
+    def stress(el, x3):
+        _, sig, _ = mm.evaluate(disc, res.u, el, x3, mm.region, res.stiffness, res.eigenstrain,
+                                res.cell_eigenstrain)
+        return sig
+
+    def sample(el, Xref):                                    # Xref (dim, n, nq)
+        x = np.moveaxis(mapping.F(Xref, tind=el), 0, -1)     # (n, nq, dim)
+        nq = x.shape[1]
+        sig = stress(np.repeat(el, nq), to3(x).reshape(-1, 3))
+        return x, sig.reshape(len(el), nq, 9)
+
+    e = elems[ok]
+    X = reference_coordinates(mapping, q[ok][:, cols].T[:, :, None], e)[:, :, 0]
+    r, d = recover_at(m.p, m.t[:len(vref)], mm.region, e, X, kind, res.order, vref, sample)
+    rec[ok] = r.reshape(-1, 3, 3)
+    fe[ok] = stress(e, q[ok])
+    deg[ok] = d
+    if mirrors_of(res):
+        rec, fe = reflect_tensors(rec, signs), reflect_tensors(fe, signs)
+    return rec, fe, elems, deg
 
 
 def element_size_at(res, points: np.ndarray) -> np.ndarray:

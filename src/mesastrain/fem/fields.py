@@ -197,7 +197,7 @@ def evaluate_at_points(disc: Discretisation, u: np.ndarray, elements: np.ndarray
     elem = disc.basis.elem
     mapping = mesh.mapping()
     x = np.asarray(points, dtype=float).T[:, :, None]            # (3, npts, 1)
-    X = mapping.invF(x, tind=elements)                            # (3, npts, 1)
+    X = reference_coordinates(mapping, x, elements)               # (3, npts, 1)
     invDF = mapping.invDF(X, tind=elements)                       # (3,3,npts,1)
     Xf = X[:, :, 0]
     U = u.reshape(-1, 3)
@@ -216,6 +216,69 @@ def evaluate_at_points(disc: Discretisation, u: np.ndarray, elements: np.ndarray
         el = el - cell_eigenstrain[elements]
     sig = np.einsum("nijkl,nkl->nij", C[region[elements]], el) * GPA_TO_MPA
     return el, sig, disp
+
+
+def reference_coordinates(mapping, x: np.ndarray, elements: np.ndarray,
+                          iters: int = 60) -> np.ndarray:
+    """Reference coordinates of points in known elements; never raises.
+
+    Affine elements (simplices) are inverted exactly. Isoparametric elements
+    (quadrilaterals, hexahedra on the unit reference cell) use Newton's method
+    started from the element's affine approximation at its centre (exact on
+    parallelepipeds, so a brick takes one step), clipped to the reference
+    cell so that a point a round-off distance outside its element ends on its
+    boundary. Convergence is judged in reference coordinates and the best
+    iterate is kept: unlike scikit-fem's ``invF`` (absolute tolerance 1e-12 in
+    the physical unit) this works for coordinates of 1e6 nm and elements
+    of 1e-3 nm alike. Points still unconverged after ``iters`` steps (a badly
+    distorted element) restart from the nearest of 9^dim reference samples
+    with damped steps.
+
+    Parameters
+    ----------
+    mapping : scikit-fem mapping of the mesh
+    x : ndarray (dim, npts, 1)
+        Physical coordinates, nm.
+    elements : ndarray of int (npts,)
+
+    Returns
+    -------
+    ndarray (dim, npts, 1)
+    """
+    if "Affine" in type(mapping).__name__:
+        return mapping.invF(x, tind=elements)
+    x = np.asarray(x, dtype=float)
+    dim = x.shape[0]
+    elements = np.asarray(elements)
+
+    def newton(X0, sel, damping=1.0):
+        X = X0.copy()
+        best = X.copy()
+        best_step = np.full(X.shape[1], np.inf)
+        for _ in range(iters):
+            dX = np.einsum("ijkl,jkl->ikl", mapping.invDF(X, tind=elements[sel]),
+                           x[:, sel] - mapping.F(X, tind=elements[sel]))
+            Xn = np.clip(X + damping * dX, 0.0, 1.0)
+            step = np.max(np.abs(Xn - X), axis=(0, 2))
+            better = step < best_step
+            best[:, better], best_step[better] = Xn[:, better], step[better]
+            X = Xn
+            if np.all(step < 1e-13):
+                break
+        return best, best_step
+
+    centre = np.full((dim, len(elements), 1), 0.5)
+    X, step = newton(centre, np.arange(len(elements)))
+    bad = np.flatnonzero(~(step < 1e-9))
+    if bad.size:
+        g = np.linspace(0.0, 1.0, 9)
+        ref = np.stack(np.meshgrid(*([g] * dim), indexing="ij")).reshape(dim, -1)
+        trial = np.repeat(ref[:, None, :], bad.size, axis=1)              # (dim, nbad, nref)
+        dist = np.linalg.norm(mapping.F(trial, tind=elements[bad]) - x[:, bad], axis=0)
+        start = np.take_along_axis(trial, np.argmin(dist, axis=1)[None, :, None], axis=2)
+        Xb, _ = newton(start, bad, damping=0.5)
+        X[:, bad] = Xb
+    return X
 
 
 # --------------------------------------------------------------------------

@@ -90,6 +90,52 @@ class ModelMesh:
         """Read-only alias of :attr:`region` (the name derived readouts and output use)."""
         return self.region
 
+    def locate_all(self, points: np.ndarray) -> np.ndarray:
+        """Every element holding each point: (npts, k), -1 padded, :meth:`locate` first.
+
+        A point on a face, edge or vertex lies in several elements; a kind that
+        cannot tell returns only :meth:`locate` (k = 1).
+        """
+        return np.asarray(self.locate(points))[:, None]
+
+    def sample_points(self, disc, u, points, stiffness, eigenstrain, cell_eigenstrain=None):
+        """Strain, stress (MPa), displacement (nm), element and region at points.
+
+        A point inside one element takes that element's exact value. A point
+        on a face, edge or vertex takes the average over the adjacent elements
+        of the region of :meth:`locate`'s element (a probe on a material
+        interface belongs to the region below it on the structured kinds);
+        this makes the shear on a mirror plane of a symmetric solution zero to
+        round-off instead of one side's value. Points outside get element -1
+        and NaN values.
+
+        Returns
+        -------
+        strain, stress : ndarray (npts, 3, 3)
+        displacement : ndarray (npts, 3)
+        elements, region : ndarray of int (npts,)
+        """
+        pts = np.atleast_2d(np.asarray(points, dtype=float))
+        n = len(pts)
+        cand = self.locate_all(pts)
+        first = cand[:, 0]
+        reg = np.where(first >= 0, self.region[np.maximum(first, 0)], -1)
+        use = (cand >= 0) & (self.region[np.maximum(cand, 0)] == reg[:, None])
+        pi, k = np.nonzero(use)
+        strain = np.full((n, 3, 3), np.nan)
+        stress = np.full((n, 3, 3), np.nan)
+        disp = np.full((n, 3), np.nan)
+        if pi.size:
+            e, s, d = self.evaluate(disc, u, cand[pi, k], pts[pi], self.region, stiffness,
+                                    eigenstrain, cell_eigenstrain)
+            cnt = np.bincount(pi, minlength=n).astype(float)
+            inside = cnt > 0
+            for out, val in ((strain, e), (stress, s), (disp, d)):
+                acc = np.zeros((n,) + val.shape[1:])
+                np.add.at(acc, pi, val)
+                out[inside] = acc[inside] / cnt[inside].reshape((-1,) + (1,) * (val.ndim - 1))
+        return strain, stress, disp, first, reg
+
     def expand_fields(self, fl: Fields) -> Fields:
         """Fields of the solved mesh -> fields of the exported mesh (by default the same)."""
         return fl

@@ -6,6 +6,8 @@ These functions read a validated case and its defaults; the mesh kinds
 
 from __future__ import annotations
 
+import numpy as np
+
 from mesastrain.case.outline import taper_of
 from mesastrain.case.types import Case
 from mesastrain.mesh.grid import GridSpacing, StackLayout
@@ -57,6 +59,32 @@ def refinement_of(case: Case) -> float:
     return float(case.mesh.refine or 1.0)
 
 
+#: Elements wanted between a singular edge and the stand-off point where readouts are taken.
+STANDOFF_ELEMENTS = 3
+
+
+def case_standoff(case: Case) -> float:
+    """Stand-off distance of the edge readouts, nm: ``[readouts] standoff`` or half the
+    thinnest layer (the rule of :func:`mesastrain.derived.corners.default_standoff`)."""
+    return float(case.readouts.standoff or 0.5 * min(lay.thickness for lay in case.layers))
+
+
+def standoff_edge_size(case: Case, elements: int = STANDOFF_ELEMENTS) -> float:
+    """Edge element size (before ``refine``) that puts ``elements`` elements within the stand-off.
+
+    The grid grows from the edge size h0 linearly, h(s) = h0 + (g - 1) s
+    (:func:`mesastrain.mesh.grid.graded_coordinates`), so the number of elements
+    within a distance d of the edge is ln(1 + (g - 1) d / h0) / (g - 1); setting it
+    to n gives h0 = (g - 1) d / (exp(n (g - 1)) - 1) (d / n for g = 1). With
+    ``refine`` = r both h0 and g - 1 are divided by r, which gives r n elements.
+    """
+    d = case_standoff(case)
+    g1 = float(case.mesh.growth) - 1.0
+    if g1 <= 1e-9:
+        return d / elements
+    return g1 * d / np.expm1(elements * g1)
+
+
 def layout_of(case: Case, mirrors: tuple | None = None) -> tuple[StackLayout, GridSpacing]:
     """Stack layout and element sizes of a structured model, from the case and its defaults.
 
@@ -106,7 +134,8 @@ def layout_of(case: Case, mirrors: tuple | None = None) -> tuple[StackLayout, Gr
     t_min = min(thick)
     per_layer = 4.0 if order == 1 else 2.0
     size = case.mesh.size or t_min * 2.0 / per_layer
-    edge = case.mesh.edge_size or min(size, t_min / per_layer)
+    edge = case.mesh.edge_size or min(size, t_min / per_layer,
+                                      standoff_edge_size(case) if patterned else size)
     if patterned:
         lateral_cap = case.mesh.size or max(size, min(W, L) / (16.0 if order == 1 else 8.0))
     else:

@@ -31,10 +31,11 @@ import numpy as np
 from mesastrain.fem.constraints import Boundary
 from mesastrain.fem.cost import Estimate, estimate_from_counts
 from mesastrain.fem.discretisation import INTORDER, Discretisation
-from mesastrain.fem.fields import GPA_TO_MPA, Fields
+from mesastrain.fem.fields import GPA_TO_MPA, Fields, reference_coordinates
 from mesastrain.mesh.base import ModelMesh
 from mesastrain.mesh.grid import GridSpacing, StackLayout, axis_coordinates
 from mesastrain.mesh.planning import layout_of
+from mesastrain.mesh.structured import distinct_rows, grid_cells
 from mesastrain.physics.crystal import voigt_to_full
 
 #: Thickness of the exported slab along y, as a fraction of the modelled x extent.
@@ -178,28 +179,26 @@ class SectionMesh(ModelMesh):
         return replace(fl, displacement=tile(fl.displacement), node_strain=tile(fl.node_strain),
                        node_stress=tile(fl.node_stress))
 
-    def locate(self, points: np.ndarray) -> np.ndarray:
-        """Element containing each point (its y is ignored), -1 outside."""
+    def locate_all(self, points: np.ndarray) -> np.ndarray:
+        """Every element that holds each point (its y is ignored): (npts, k), -1 padded.
+
+        Tolerances relative to the neighbouring cells
+        (:func:`mesastrain.mesh.structured.grid_cells`); lowest cell first.
+        """
         pts = np.atleast_2d(np.asarray(points, dtype=float))
         x = pts[:, 0].copy()
         z = pts[:, 2]
         if self.layout.taper:
             x = x / self.layout.scale_at(z, 0)
-        idx = []
-        for v, g in ((x, self.xs), (z, self.zs)):
-            tol = 1e-9 * (g[-1] - g[0])
-            inside = (v >= g[0] - tol) & (v <= g[-1] + tol)
-            lo = np.clip(np.searchsorted(g, v - tol, side="left") - 1, 0, len(g) - 2)
-            hi = np.clip(np.searchsorted(g, v + tol, side="right") - 1, 0, len(g) - 2)
-            idx.append((lo, hi, inside))
-        out = np.full(len(pts), -1, dtype=np.int64)
-        ok = idx[0][2] & idx[1][2]
-        for cx in (0, 1):
-            for cz in (0, 1):
-                e = self.cell_of_grid[idx[0][cx], idx[1][cz]]
-                take = (out < 0) & ok & (e >= 0)
-                out[take] = e[take]
-        return out
+        ix, iz = grid_cells(self.xs, x), grid_cells(self.zs, z)
+        ok = ix[2] & iz[2]
+        cands = [np.where(ok, self.cell_of_grid[ix[cx], iz[cz]], -1)
+                 for cx in (0, 1) for cz in (0, 1)]
+        return distinct_rows(np.stack(cands, axis=1))
+
+    def locate(self, points: np.ndarray) -> np.ndarray:
+        """Element containing each point (its y is ignored), -1 outside."""
+        return self.locate_all(points)[:, 0]
 
     def evaluate(self, disc, u, elements, points, region, stiffness, eigenstrain,
                  cell_eigenstrain=None):
@@ -208,7 +207,7 @@ class SectionMesh(ModelMesh):
         elem = disc.basis.elem
         mapping = mesh.mapping()
         x = np.asarray(points, dtype=float)[:, [0, 2]].T[:, :, None]
-        X = _inverse_map(mapping, x, elements)
+        X = reference_coordinates(mapping, x, elements)
         invDF = mapping.invDF(X, tind=elements)                   # (2, 2, npts, 1)
         Xf = X[:, :, 0]
         U = np.asarray(u).reshape(-1, 3)
@@ -248,25 +247,6 @@ class SectionMesh(ModelMesh):
     def __repr__(self) -> str:
         return (f"SectionMesh({self.solve_nnodes} nodes, {self.nelems} quadrilaterals, grid "
                 f"{len(self.xs) - 1}x{len(self.zs) - 1})")
-
-
-def _inverse_map(mapping, x: np.ndarray, elements: np.ndarray, iters: int = 30) -> np.ndarray:
-    """Reference coordinates of points in their elements (Newton, clipped to the element).
-
-    Unlike scikit-fem's ``invF`` this never fails: a point that lies a round-off
-    distance outside its element (as ``locate`` allows) ends on the element's
-    boundary.
-    """
-    X = np.zeros(x.shape) + 0.5
-    for _ in range(iters):
-        dX = np.einsum("ijkl,jkl->ikl", mapping.invDF(X, tind=elements),
-                       x - mapping.F(X, tind=elements))
-        Xn = np.clip(X + dX, 0.0, 1.0)
-        done = np.max(np.abs(Xn - X)) < 1e-13
-        X = Xn
-        if done:
-            break
-    return X
 
 
 def section_coordinates(case, mirrors=None, whole: bool = False):

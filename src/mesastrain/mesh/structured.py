@@ -104,6 +104,27 @@ class StackMesh(ModelMesh):
                 f"{len(self.xs) - 1}x{len(self.ys) - 1}x{len(self.zs) - 1}, "
                 f"regions {sorted(set(self.region.tolist()))})")
 
+    def locate_all(self, points: np.ndarray) -> np.ndarray:
+        """Every element that holds each point: (npts, k), -1 padded, lowest cell first.
+
+        A point on a grid plane (within :data:`LOCATE_RTOL` of the cells beside
+        it) lies in the cells on both sides; the first column is the cell on the
+        lower side when it exists (:meth:`locate`), so that a probe on the top
+        surface or on a sidewall lands in the body.
+        """
+        points = np.atleast_2d(np.asarray(points, dtype=float))
+        geom = self.layout
+        if geom.taper:
+            # undo the lateral scaling of a tapered feature: back to grid space
+            points = points.copy()
+            for axis in (0, 1):
+                points[:, axis] = points[:, axis] / geom.scale_at(points[:, 2], axis)
+        idx = [grid_cells(g, points[:, a]) for a, g in enumerate((self.xs, self.ys, self.zs))]
+        inside = idx[0][2] & idx[1][2] & idx[2][2]
+        cands = [np.where(inside, self.cell_of_grid[idx[0][cx], idx[1][cy], idx[2][cz]], -1)
+                 for cx in (0, 1) for cy in (0, 1) for cz in (0, 1)]
+        return distinct_rows(np.stack(cands, axis=1))
+
     def locate(self, points: np.ndarray) -> np.ndarray:
         """Element index containing each point, -1 outside the body.
 
@@ -117,36 +138,12 @@ class StackMesh(ModelMesh):
 
         Notes
         -----
-        A point on a grid plane is given to the cell on its lower side when
-        that cell exists, otherwise to the upper one, so that a probe on the
-        top surface or on a sidewall lands in the body.
+        The tolerance is relative to the size of the cells next to each point
+        (:func:`grid_cells`), not to the model, so a 1 pm layer on a 1 mm
+        substrate is found. A point on a grid plane is given to the cell on
+        its lower side when that cell exists, otherwise to the upper one.
         """
-        points = np.atleast_2d(np.asarray(points, dtype=float))
-        geom = self.layout
-        if geom.taper:
-            # undo the lateral scaling of a tapered feature: back to grid space
-            points = points.copy()
-            for axis in (0, 1):
-                points[:, axis] = points[:, axis] / geom.scale_at(points[:, 2], axis)
-        idx = []
-        for axis, g in enumerate((self.xs, self.ys, self.zs)):
-            x = points[:, axis]
-            tol = 1e-9 * (g[-1] - g[0])
-            inside = (x >= g[0] - tol) & (x <= g[-1] + tol)
-            lo = np.clip(np.searchsorted(g, x - tol, side="left") - 1, 0, len(g) - 2)
-            hi = np.clip(np.searchsorted(g, x + tol, side="right") - 1, 0, len(g) - 2)
-            idx.append((lo, hi, inside))
-        result = np.full(len(points), -1, dtype=int)
-        inside_all = idx[0][2] & idx[1][2] & idx[2][2]
-        # try every combination of lower/upper candidates, lower first
-        for cx in (0, 1):
-            for cy in (0, 1):
-                for cz in (0, 1):
-                    e = self.cell_of_grid[idx[0][cx], idx[1][cy], idx[2][cz]]
-                    take = (result < 0) & inside_all & (e >= 0)
-                    result[take] = e[take]
-        return result
-
+        return self.locate_all(points)[:, 0]
 
     def unfolded(self, uf) -> StackMesh:
         """The whole structured mesh (grid, cell map, export mesh) from an unfolded part.
@@ -173,6 +170,55 @@ class StackMesh(ModelMesh):
         mesh = MeshHex(uf.p, uf.t_export)
         return replace(self, mesh=mesh, region=uf.region, xs=full_x, ys=full_y, cell_of_grid=cog,
                        layout=replace(geom, mirrors=()))
+
+#: Tolerance of :func:`grid_cells`, relative to the width of the cells beside a point.
+LOCATE_RTOL = 1e-9
+
+
+def grid_cells(g: np.ndarray, x: np.ndarray, rtol: float = LOCATE_RTOL):
+    """Cells of increasing grid lines ``g`` that hold each coordinate x.
+
+    A coordinate within ``rtol`` of the narrower neighbouring cell (or of the
+    coordinate's own round-off, 1e-13 of the largest line) from a grid line
+    lies in the cells on both sides of it.
+
+    Returns
+    -------
+    lo, hi : ndarray of int
+        The lower and upper candidate cell (equal inside a cell).
+    inside : ndarray of bool
+        Within the grid (same tolerance at its ends).
+    """
+    g = np.asarray(g, dtype=float)
+    x = np.asarray(x, dtype=float)
+    w = np.diff(g)
+    n = len(w)
+    floor = 1e-13 * float(np.max(np.abs(g)))
+    i = np.clip(np.searchsorted(g, x, side="right") - 1, 0, n - 1)
+    below = np.maximum(i - 1, 0)
+    above = np.minimum(i + 1, n - 1)
+    tol_lo = np.maximum(rtol * np.minimum(w[i], w[below]), floor)
+    tol_hi = np.maximum(rtol * np.minimum(w[i], w[above]), floor)
+    lo = np.where((i > 0) & (np.abs(x - g[i]) <= tol_lo), i - 1, i)
+    hi = np.where((i < n - 1) & (np.abs(g[i + 1] - x) <= tol_hi), i + 1, i)
+    inside = ((x >= g[0] - max(rtol * w[0], floor)) & (x <= g[-1] + max(rtol * w[-1], floor)))
+    return lo, hi, inside
+
+
+def distinct_rows(c: np.ndarray) -> np.ndarray:
+    """Candidate elements (npts, k): repeats and -1 moved to the end (padded -1), order kept."""
+    c = np.asarray(c)
+    out = np.full_like(c, -1)
+    seen = np.zeros(c.shape, dtype=bool)
+    for j in range(1, c.shape[1]):
+        seen[:, j] = np.any(c[:, :j] == c[:, j:j + 1], axis=1)
+    keep = (c >= 0) & ~seen
+    pos = np.cumsum(keep, axis=1) - 1
+    r, k = np.nonzero(keep)
+    out[r, pos[r, k]] = c[r, k]
+    width = max(int(keep.sum(axis=1).max(initial=1)), 1)
+    return out[:, :width]
+
 
 def build_stack_mesh(geom: StackLayout, spacing: GridSpacing) -> StackMesh:
     """Mesh a blanket stack or a rectangular mesa with trilinear hexahedra.

@@ -11,6 +11,7 @@ from dataclasses import dataclass, replace
 from functools import cached_property
 
 import numpy as np
+import scipy.sparse as sp
 
 from mesastrain.errors import MeshError
 from mesastrain.fem.constraints import Boundary
@@ -109,6 +110,41 @@ class SimplexLocator:
         return out
 
 
+    def all(self, points: np.ndarray, tol: float = 1e-9) -> np.ndarray:
+        """Every simplex holding each point: (npts, k) padded with -1, the best one first.
+
+        The others are searched among the elements that share a vertex with
+        the best one (every element touching a face, edge or vertex of it), with
+        the same barycentric tolerance (relative to each element's size).
+        """
+        x = np.atleast_2d(np.asarray(points, dtype=float))
+        best = self(x, tol)
+        n = len(x)
+        ok = np.flatnonzero(best >= 0)
+        if ok.size == 0:
+            return best[:, None]
+        nv, nel = self.t.shape
+        nn = self.p.shape[1]
+        v2e = sp.csr_matrix((np.ones(nv * nel), (self.t.ravel(), np.tile(np.arange(nel), nv))),
+                            shape=(nn, nel))
+        pv = sp.csr_matrix((np.ones(nv * ok.size), (np.repeat(np.arange(ok.size), nv),
+                                                    self.t[:, best[ok]].T.ravel())),
+                           shape=(ok.size, nn))
+        cand = (pv @ v2e).tocoo()
+        pi, el = ok[cand.row], cand.col
+        hit = (self._bary(x[pi], el) >= -tol) & (el != best[pi])
+        pi, el = pi[hit], el[hit]
+        order = np.lexsort((el, pi))
+        pi, el = pi[order], el[order]
+        start = np.searchsorted(pi, np.arange(n))
+        rank = np.arange(pi.size) - start[pi]
+        width = 1 + (int(rank.max()) + 1 if rank.size else 0)
+        out = np.full((n, width), -1, dtype=np.int64)
+        out[:, 0] = best
+        out[pi, 1 + rank] = el
+        return out
+
+
 @dataclass(frozen=True)
 class UnstructuredMesh(ModelMesh):
     """A tetrahedral mesh with a region per element (a :class:`ModelMesh`).
@@ -174,6 +210,13 @@ class UnstructuredMesh(ModelMesh):
     def locate(self, points: np.ndarray) -> np.ndarray:
         """Element index containing each point (nm), -1 outside the body."""
         return self._locator(points)
+
+    def locate_all(self, points: np.ndarray) -> np.ndarray:
+        """Every element that holds each point (on a face, edge or vertex: several).
+
+        Returns (npts, k), -1 padded; the first column is :meth:`locate`.
+        """
+        return self._locator.all(points)
 
     def unfolded(self, uf) -> UnstructuredMesh:
         """The whole body from its unfolded mirrored part (:mod:`mesastrain.mesh.unfold`)."""

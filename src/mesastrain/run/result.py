@@ -110,7 +110,7 @@ class Result:
         return np.array([lm.eigenstrain_sample for lm in self.layers])
 
     def sample(self, points: np.ndarray, key: str = "point"):
-        """Exact fields at points.
+        """Exact fields at points (on a face between elements: their average).
 
         Parameters
         ----------
@@ -132,19 +132,17 @@ class Result:
         pts = np.atleast_2d(np.asarray(points, dtype=float))
         mirrors = tuple(self.mesh.mirrors)
         q, signs = reflect_points(pts, mirrors)
-        elems = self.mesh.locate(q)
+        strain, stress, disp, elems, region = self.mesh.sample_points(
+            self.disc, self.u, q, self.stiffness, self.eigenstrain, self.cell_eigenstrain)
         bad = np.flatnonzero(elems < 0)
         if bad.size:
             raise CaseError(key, f"{pts[bad[0]].tolist()} nm lies outside the modelled body "
                                  f"({_extent_text(self.mesh)})")
-        strain, stress, disp = self.mesh.evaluate(self.disc, self.u, elems, q, self.mesh.region,
-                                                  self.stiffness, self.eigenstrain,
-                                                  self.cell_eigenstrain)
         if mirrors:
             strain = reflect_tensors(strain, signs)
             stress = reflect_tensors(stress, signs)
             disp = disp * signs
-        return strain, stress, disp, self.mesh.region[elems]
+        return strain, stress, disp, region
 
 
 def _extent_text(mesh) -> str:
