@@ -56,9 +56,9 @@ class CaseError(MesastrainError):
     """
 
     def __init__(self, key: str, message: str, source: str | None = None):
-        self.key = key
-        self.message = message
-        self.source = source
+        self.key = one_line(key)            # a key or value from a file may hold a newline
+        self.message = one_line(message)
+        self.source = None if source is None else one_line(source)
         super().__init__(self._line())
 
     def _line(self) -> str:

@@ -39,11 +39,11 @@ __all__ = [
 #: lengths: far beyond any real stack (a superlattice of a few hundred layers) and small
 #: enough that validation stays well under a second.
 MAX_ITEMS = 1000
-#: Most vertices of a polygon outline. Checking that the outline does not cross itself
-#: compares every pair of edges (n^2 / 2 pairs) and gmsh meshes every edge: 1000 vertices
-#: validate in a fraction of a second (a mask outline is digitised far coarser than that;
-#: bring finer geometry as a mesh file, shape = "mesh").
-MAX_VERTICES = 1000
+#: Most vertices of a polygon outline. gmsh refines each outline edge on its own, so meshing
+#: time grows about as n^2 (measured: 100 vertices 6 min, 256 vertices about half an hour
+#: on 2 cores; :data:`mesastrain.run.resources.POLYGON_SECONDS`, which ``check`` adds to
+#: its estimate). A mask outline rarely needs more; bring finer geometry as a mesh file.
+MAX_VERTICES = 256
 #: Largest absolute Miller index: vicinal and high-index surfaces are written with indices of
 #: a few tens; 999 keeps every product of indices exact in floating point.
 MAX_INDEX = 999

@@ -47,7 +47,7 @@ import numpy as np
 
 from mesastrain.case.parse import parse_case, read_toml
 from mesastrain.errors import CaseError
-from mesastrain.units import is_number, parse_length, parse_temperature, show_value
+from mesastrain.units import finite_float, is_number, parse_length, parse_temperature, show_value
 
 _SWEEP_KEYS = ("title", "base", "combine", "set", "vary", "collect")
 #: Most values of one [[vary]] axis, and most cases of a sweep: 10000 cases of even a
@@ -404,9 +404,12 @@ def parse_sweep(data: dict, source: str | None = None, base_dir: Path | None = N
 def _range_number(value, key: str):
     """A range end: (float, kind) with kind None (plain), "length" (nm) or "temperature" (K)."""
     if is_number(value):
-        if not math.isfinite(value):
-            raise CaseError(key, f"expected a finite number, got {show_value(value)}")
-        return float(value), None
+        v = finite_float(value)
+        if v is None:
+            shown = (show_value(value) if not isinstance(value, int)
+                     else f"an integer of {len(str(abs(value)))} digits")
+            raise CaseError(key, f"expected a finite number, got {shown}")
+        return v, None
     if isinstance(value, str):
         try:
             return parse_length(value, key), "length"
@@ -475,8 +478,9 @@ def _axis(t: dict, where: str) -> Axis:
     if "count" in t:
         n = t["count"]
         if not isinstance(n, int) or isinstance(n, bool) or not 1 <= n <= MAX_VALUES:
-            shown = show_value(n) if not isinstance(n, int) or n < 10**12 else f"{n:.3g}"
-            raise CaseError(f"{where}.count", f"expected an integer >= 1 and <= {MAX_VALUES}, "
+            shown = (show_value(n) if not isinstance(n, int) or abs(n) < 10**12
+                     else f"an integer of {len(str(abs(n)))} digits")
+            raise CaseError(f"{where}.count", f"expected an integer >= 1, at most {MAX_VALUES}, "
                                               f"got {shown}")
         if n == 1 and a != b:
             raise CaseError(f"{where}.count", "count = 1 needs from = to; give count >= 2")
