@@ -71,8 +71,16 @@ _TEMPERATURE_EXAMPLES = 'give a number in degrees Celsius or a string such as "7
 _TEMPERATURE_ALLOWED = "allowed units: C (°C, degC), K"
 
 
+#: show_value keeps error lines short: longer strings, lists and integers are summarised.
+_SHOWN_CHARS, _SHOWN_ITEMS, _SHOWN_DIGITS = 80, 20, 30
+
+
 def show_value(value) -> str:
-    """Render a case-file value the way it would be written in TOML.
+    """Render a case-file value the way it would be written in TOML, for messages.
+
+    Strings over 80 characters are cut, lists of more than 20 items and
+    integers of 30 digits or more are summarised ("a list of 100000 items"),
+    so an error line stays short whatever the file holds.
 
     Parameters
     ----------
@@ -89,8 +97,14 @@ def show_value(value) -> str:
         return "true" if value else "false"
     if isinstance(value, str):
         escaped = value.replace("\\", "\\\\").replace('"', '\\"')
+        if len(escaped) > _SHOWN_CHARS:
+            return f'"{escaped[:_SHOWN_CHARS - 3]}..." ({len(value)} characters)'
         return f'"{escaped}"'
+    if isinstance(value, int) and abs(value) >= 10**_SHOWN_DIGITS:
+        return f"an integer of {len(str(abs(value)))} digits"
     if isinstance(value, (list, tuple)):
+        if len(value) > _SHOWN_ITEMS:
+            return f"a list of {len(value)} items"
         return "[" + ", ".join(show_value(v) for v in value) + "]"
     if isinstance(value, dict):
         return "a table"
