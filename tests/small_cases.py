@@ -65,3 +65,19 @@ def as_from_a_terminal() -> None:
     Tests that send SIGINT restore the default first, as an interactive terminal has.
     """
     signal.signal(signal.SIGINT, signal.SIG_DFL)
+
+
+#: Kuhn split of the unit cube into 6 tetrahedra (vertex k at bits (x, y, z) of k).
+KUHN = np.array([[0, 1, 3, 7], [0, 1, 5, 7], [0, 2, 3, 7], [0, 2, 6, 7], [0, 4, 5, 7],
+                 [0, 4, 6, 7]])
+CORNERS = np.array([[(k >> 0) & 1, (k >> 1) & 1, (k >> 2) & 1] for k in range(8)], float)
+
+
+def cubes(offsets, size=20.0):
+    """Points and tetrahedra of cubes at the given (x, y, z) offsets (nm), nodes not shared
+    between cubes unless their corners coincide."""
+    pts = np.concatenate([CORNERS * size + np.asarray(o, float) for o in offsets])
+    pts, inv = np.unique(pts, axis=0, return_inverse=True)
+    inv = inv.ravel()
+    cells = np.concatenate([inv[KUHN + 8 * i] for i in range(len(offsets))])
+    return pts, cells

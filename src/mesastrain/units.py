@@ -10,20 +10,24 @@ A temperature is a bare number in degrees Celsius, or a string ``"700 C"``,
 kelvin.
 
 Booleans are never numbers here (TOML ``true`` is rejected), nor are NaN or
-infinity. Every failure raises :class:`mesastrain.errors.CaseError` naming
+infinity, nor integers too large for a float. Lengths are bounded by
+:data:`MAX_LENGTH_NM` (1 m: more than twice the largest wafer, 450 mm, SEMI
+M1), temperatures by :data:`MAX_TEMPERATURE_K` (see there). Every failure raises :class:`mesastrain.errors.CaseError` naming
 the case-file key it came from.
 """
 
 from __future__ import annotations
 
+import decimal
 import math
 import re
 from decimal import Decimal
 
 from mesastrain.errors import CaseError
 
-__all__ = ["LENGTH_UNITS", "TEMPERATURE_UNITS", "is_number", "parse_length",
-           "parse_temperature", "safe_name", "show_value"]
+__all__ = ["LENGTH_UNITS", "MAX_LENGTH_NM", "MAX_TEMPERATURE_K", "TEMPERATURE_UNITS",
+           "finite_float", "is_number", "parse_length", "parse_temperature", "safe_name",
+           "show_value"]
 
 #: Length units accepted in strings, and their size in nanometres.
 LENGTH_UNITS = {
@@ -45,6 +49,16 @@ TEMPERATURE_UNITS = {
     "K": 0.0,
 }
 
+#: Largest length (absolute value) a case may give, nm: 1 m, more than twice the diameter of
+#: the largest standard wafer (450 mm, SEMI M1). Anything longer is a typo, and would
+#: overflow the mesh planning.
+MAX_LENGTH_NM = 1.0e9
+#: Highest temperature a case may give, K. Above the melting point of every crystal in the
+#: materials table (the highest, AlN, melts near 3500 K: CRC Handbook of Chemistry and
+#: Physics, recalled from memory); the stack's own lowest melting point is checked with the
+#: materials (:func:`mesastrain.physics.thermal.melting_point`).
+MAX_TEMPERATURE_K = 3500.0
+
 #: 0 degrees Celsius in kelvin (SI Brochure, BIPM, 9th ed. 2019: T/K = t/degC + 273.15).
 ZERO_CELSIUS = 273.15
 
@@ -57,8 +71,16 @@ _TEMPERATURE_EXAMPLES = 'give a number in degrees Celsius or a string such as "7
 _TEMPERATURE_ALLOWED = "allowed units: C (°C, degC), K"
 
 
+#: show_value keeps error lines short: longer strings, lists and integers are summarised.
+_SHOWN_CHARS, _SHOWN_ITEMS, _SHOWN_DIGITS = 80, 20, 30
+
+
 def show_value(value) -> str:
-    """Render a case-file value the way it would be written in TOML.
+    """Render a case-file value the way it would be written in TOML, for messages.
+
+    Strings over 80 characters are cut, lists of more than 20 items and
+    integers of 30 digits or more are summarised ("a list of 100000 items"),
+    so an error line stays short whatever the file holds.
 
     Parameters
     ----------
@@ -75,8 +97,14 @@ def show_value(value) -> str:
         return "true" if value else "false"
     if isinstance(value, str):
         escaped = value.replace("\\", "\\\\").replace('"', '\\"')
+        if len(escaped) > _SHOWN_CHARS:
+            return f'"{escaped[:_SHOWN_CHARS - 3]}..." ({len(value)} characters)'
         return f'"{escaped}"'
+    if isinstance(value, int) and abs(value) >= 10**_SHOWN_DIGITS:
+        return f"an integer of {len(str(abs(value)))} digits"
     if isinstance(value, (list, tuple)):
+        if len(value) > _SHOWN_ITEMS:
+            return f"a list of {len(value)} items"
         return "[" + ", ".join(show_value(v) for v in value) + "]"
     if isinstance(value, dict):
         return "a table"
@@ -90,6 +118,25 @@ def is_number(value) -> bool:
     return isinstance(value, (int, float)) and not isinstance(value, bool)
 
 
+def finite_float(value) -> float | None:
+    """``value`` as a finite float; None for NaN, infinity and integers too large for a float.
+
+    Parameters
+    ----------
+    value : int or float
+        A number (:func:`is_number`).
+
+    Returns
+    -------
+    float or None
+    """
+    try:
+        v = float(value)
+    except OverflowError:       # an integer of hundreds of digits
+        return None
+    return v if math.isfinite(v) else None
+
+
 def _split(value: str):
     """Split ``"40 nm"`` into (Decimal("40"), "nm"); None when it does not look like that."""
     m = _NUMBER_WITH_UNIT.match(value)
@@ -101,9 +148,15 @@ def _split(value: str):
 def _scaled(number: Decimal, factor: float, offset: float = 0.0) -> float:
     """number * factor + offset in exact decimal arithmetic, then rounded once to float.
 
-    So "3.2 A" gives exactly the float 0.32 and 20 C exactly 293.15 K.
+    So "3.2 A" gives exactly the float 0.32 and 20 C exactly 293.15 K. An
+    exponent beyond decimal's range gives +-inf or the offset (callers refuse inf).
     """
-    return float(number * Decimal(repr(factor)) + Decimal(repr(offset)))
+    try:
+        return float(number * Decimal(repr(factor)) + Decimal(repr(offset)))
+    except decimal.Overflow:
+        return math.copysign(math.inf, number)
+    except (decimal.Underflow, decimal.InvalidOperation):
+        return math.inf
 
 
 def parse_length(value, key: str) -> float:
@@ -130,9 +183,10 @@ def parse_length(value, key: str) -> float:
         not in :data:`LENGTH_UNITS`, and any other type.
     """
     if is_number(value):
-        if not math.isfinite(value):
-            raise CaseError(key, f"{show_value(value)} is not a finite length; {_LENGTH_EXAMPLES}")
-        return float(value)
+        nm = finite_float(value)
+        if nm is None:
+            raise CaseError(key, f"{_short(value)} is not a finite length; {_LENGTH_EXAMPLES}")
+        return _bounded_length(nm, value, key)
     if isinstance(value, str):
         parts = _split(value)
         if parts is None:
@@ -147,9 +201,23 @@ def parse_length(value, key: str) -> float:
             raise CaseError(key, f"'{value}' is not a length; {_LENGTH_EXAMPLES}")
         nm = _scaled(number, LENGTH_UNITS[unit])
         if not math.isfinite(nm):
-            raise CaseError(key, f"'{value}' is not a finite length; {_LENGTH_EXAMPLES}")
-        return nm
-    raise CaseError(key, f"{show_value(value)} is not a length; {_LENGTH_EXAMPLES}")
+            raise CaseError(key, f"{_short(value)} is not a finite length; {_LENGTH_EXAMPLES}")
+        return _bounded_length(nm, value, key)
+    raise CaseError(key, f"{_short(value)} is not a length; {_LENGTH_EXAMPLES}")
+
+
+def _short(value, limit: int = 60) -> str:
+    """:func:`show_value`, cut to ``limit`` characters (a 400-digit number stays readable)."""
+    text = show_value(value) if not isinstance(value, int) or value.bit_length() < 200 else (
+        f"an integer of {len(str(abs(value)))} digits")
+    return text if len(text) <= limit else text[:limit - 3] + "..."
+
+
+def _bounded_length(nm: float, value, key: str) -> float:
+    if abs(nm) > MAX_LENGTH_NM:
+        raise CaseError(key, f"{_short(value)} is {nm:.3g} nm, longer than any wafer; give at "
+                             f"most {MAX_LENGTH_NM:.0e} nm (1 m) in size")
+    return nm
 
 
 def parse_temperature(value, key: str) -> float:
@@ -175,10 +243,11 @@ def parse_temperature(value, key: str) -> float:
         types, and temperatures at or below absolute zero.
     """
     if is_number(value):
-        if not math.isfinite(value):
-            raise CaseError(key, f"{show_value(value)} is not a finite temperature; "
+        celsius = finite_float(value)
+        if celsius is None:
+            raise CaseError(key, f"{_short(value)} is not a finite temperature; "
                                  f"{_TEMPERATURE_EXAMPLES}")
-        kelvin = _scaled(Decimal(repr(float(value))), 1.0, ZERO_CELSIUS)
+        kelvin = _scaled(Decimal(repr(celsius)), 1.0, ZERO_CELSIUS)
     elif isinstance(value, str):
         parts = _split(value)
         if parts is None:
@@ -197,8 +266,12 @@ def parse_temperature(value, key: str) -> float:
     else:
         raise CaseError(key, f"{show_value(value)} is not a temperature; {_TEMPERATURE_EXAMPLES}")
     if not kelvin > 0.0:
-        raise CaseError(key, f"{show_value(value)} is {kelvin:g} K, at or below absolute zero; "
+        raise CaseError(key, f"{_short(value)} is {kelvin:g} K, at or below absolute zero; "
                              f"give a temperature above 0 K (-273.15 C)")
+    if kelvin > MAX_TEMPERATURE_K:
+        raise CaseError(key, f"{_short(value)} is {kelvin:.4g} K, above the melting point of "
+                             f"every material in the tables; give at most "
+                             f"{MAX_TEMPERATURE_K:g} K ({MAX_TEMPERATURE_K - ZERO_CELSIUS:g} C)")
     return kelvin
 
 

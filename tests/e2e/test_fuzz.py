@@ -19,6 +19,7 @@ from mesastrain.case.parse import parse_case
 from mesastrain.errors import MesastrainError
 from mesastrain.physics.thinfilm import biaxial_response
 from mesastrain.run.pipeline import run_case
+from small_cases import cubes
 
 CUBIC = [("Si", None), ("Ge", None), ("GaAs", None), ("InP", None)]
 CUBIC_LAYERS = [("SiGe", "x"), ("InGaAs", "x"), ("AlGaAs", "x"), ("Si", None), ("Ge", None),
@@ -164,3 +165,124 @@ def test_invalid_cases_fail_cleanly(edits):
         run_case(case, max_memory_gb=2.0)
     except MesastrainError as exc:
         assert "\n" not in str(exc)
+
+
+# ---------------------------------------------------------------- bounds (issue #14)
+def _nested(depth):
+    v = 1
+    for _ in range(depth):
+        v = [v]
+    return v
+
+
+#: Values beyond every bound: huge and tiny numbers, integers too large for a float,
+#: lengths beyond any wafer, deep nesting, long lists, control characters.
+EXTREME = st.one_of(
+    st.sampled_from([10**400, -10**400, 1e30, 1e308, 5e-324, -1e-320, 1e-320, 2**63, 2**64,
+                     "1e30 nm", "1e999999999 nm", "1e-999999999 nm", "5000 C", "1e30 K",
+                     "1e400 C", "x\ny", "a\x1b[2Kb", "\u2028", "x/y", "x_y"]),
+    st.integers(2, 3000).map(_nested),
+    st.integers(0, 10**6).map(lambda n: [n] * 3),
+    st.floats(allow_nan=True, allow_infinity=True, allow_subnormal=True).map(lambda f: [f, 0]),
+    st.integers(10**4, 3 * 10**5).map(lambda n: ["stress_xx"] * n),
+)
+
+BOUND_PATHS = PATHS + [
+    ("thermal", "growth_temperature"), ("thermal", "final_temperature"),
+    ("cut", 0, "points"), ("cut", 0, "name"), ("cut", 0, "components"),
+    ("channel", 0, "direction"), ("channel", 0, "name"), ("solver", "max_iterations"),
+    ("substrate", "normal", 0), ("pattern", "corner_radius"), ("probe", 0, "at", 2)]
+
+BOUND_BASE = copy.deepcopy(BASE)
+BOUND_BASE.update({
+    "thermal": {"growth_temperature": "700 C", "final_temperature": "20 C"},
+    "cut": [{"name": "c", "from": [0, 0, 0], "to": [0, 0, 20]}],
+    "channel": [{"name": "ch", "direction": [1, 0], "carrier": "n"}],
+    "solver": {"max_iterations": 100}})
+
+
+@pytest.mark.slow
+@settings(max_examples=120, deadline=None, derandomize=True,
+          suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large])
+@given(st.lists(st.tuples(st.sampled_from(BOUND_PATHS), EXTREME), min_size=1, max_size=3))
+def test_values_beyond_the_bounds_fail_cleanly(edits):
+    """Validation only (no solve): a bounded value is read or refused in one line."""
+    d = copy.deepcopy(BOUND_BASE)
+    for path, value in edits:
+        try:
+            _set(d, path, value)
+        except (KeyError, IndexError, TypeError):
+            pass
+    try:
+        case = parse_case(d)
+    except MesastrainError as exc:
+        msg = str(exc)
+        assert msg and "\n" not in msg and "\x1b" not in msg and len(msg) < 2000
+        return
+    # what passed is within every bound
+    assert case.substrate.thickness <= 1e9
+    assert all(c.points <= 10000 for c in case.cuts)
+    if case.thermal is not None:
+        assert case.thermal.growth_temperature < 1687.0      # Si, the substrate, melts
+
+
+# ---------------------------------------------------------------- imported meshes
+def _mesh_case(path, groups):
+    return parse_case({
+        "substrate": {"material": "Si", "thickness": "100 um", "normal": [0, 0, 1],
+                      "x_axis": [1, 1, 0]},
+        "layer": [{"material": "SiGe", "x": 0.25, "thickness": 20}],
+        "pattern": {"shape": "mesh", "file": str(path), "groups": groups},
+        "mesh": {"order": 1}})
+
+
+@st.composite
+def small_meshes(draw):
+    """Up to three unit cubes of 6 tetrahedra, joined or apart, with random tags and
+    occasionally a NaN, infinite or huge coordinate."""
+    n = draw(st.integers(1, 3))
+    offsets = [(0.0, 0.0, -20.0)]
+    for _ in range(n - 1):
+        offsets.append(draw(st.sampled_from([(0.0, 0.0, 0.0), (0.0, 0.0, 20.0),
+                                             (0.0, 0.0, 40.0), (20.0, 20.0, 20.0),
+                                             (20.0, 0.0, -20.0)])))
+    pts, cells = cubes(offsets)
+    tags = np.array(draw(st.lists(st.integers(1, 4), min_size=len(cells),
+                                  max_size=len(cells))))
+    if draw(st.booleans()):
+        pts[draw(st.integers(0, len(pts) - 1)), draw(st.integers(0, 2))] = draw(
+            st.sampled_from([np.nan, np.inf, -np.inf, 1e30]))
+    groups = draw(st.dictionaries(st.sampled_from(["1", "2", "3", "4", "+2", "01", "wafer"]),
+                                  st.integers(0, 1), min_size=1, max_size=4))
+    return pts, cells, tags, groups
+
+
+@pytest.mark.slow
+@settings(max_examples=60, deadline=None, derandomize=True,
+          suppress_health_check=[HealthCheck.too_slow, HealthCheck.function_scoped_fixture])
+@given(small_meshes())
+def test_imported_meshes_load_or_fail_cleanly(tmp_path, m):
+    import meshio
+
+    from mesastrain.mesh.imported import case_mesh_from_file
+    from mesastrain.run.resources import estimate
+
+    pts, cells, tags, groups = m
+    path = tmp_path / "m.msh"
+    meshio.write(path, meshio.Mesh(pts, [("tetra", cells)],
+                                   cell_data={"gmsh:physical": [tags],
+                                              "gmsh:geometrical": [tags]}),
+                 file_format="gmsh22", binary=False)
+    try:
+        case = _mesh_case(path, groups)
+        um = case_mesh_from_file(case)
+        estimate(case)
+    except MesastrainError as exc:
+        assert "\n" not in str(exc)
+        return
+    # what loaded is finite, in one piece, and every cell has exactly one region
+    from mesastrain.mesh.imported import face_connected_pieces
+
+    assert np.all(np.isfinite(um.mesh.p))
+    assert face_connected_pieces(um.mesh.t.T)[0] == 1
+    assert set(np.unique(um.region).tolist()) <= {0, 1}

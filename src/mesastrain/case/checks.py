@@ -16,8 +16,10 @@ import math
 
 from mesastrain.case.outline import outline_at, outline_of, taper_of
 from mesastrain.case.schema import INSIDE_RTOL
-from mesastrain.errors import CaseError, OrientationError
+from mesastrain.errors import CaseError, MesastrainError, OrientationError
 from mesastrain.physics.crystal import direction_vector, sample_frame
+from mesastrain.physics.materials import get_material
+from mesastrain.physics.thermal import melting_point
 
 __all__ = ["CrossChecks", "PatternView"]
 
@@ -95,6 +97,31 @@ class CrossChecks:
             if shape == "none" and "positions" in ds:
                 raise CaseError(f"{ik}.positions", "a blanket film is modelled as a periodic "
                                                    "cell: give spacing or relaxation")
+
+    def temperatures(self, thermal: dict) -> None:
+        """Growth and final temperature below the lowest melting point of the stack's materials.
+
+        An alloy counts with its lower member's melting point; materials without a
+        tabulated one (:data:`mesastrain.physics.thermal.MELTING_POINT_K`) are skipped.
+        """
+        lowest, which = None, ""
+        for where, t in [("substrate", self.substrate)] + [
+                (f"layer[{i}]", t) for i, t in enumerate(self.layers)]:
+            try:
+                tm = melting_point(get_material(t["material"], t.get("x")))
+            except MesastrainError:
+                continue
+            if tm is not None and (lowest is None or tm < lowest):
+                lowest, which = tm, f"{t['label']} ({where})"
+        if lowest is None:
+            return
+        for name in ("growth_temperature", "final_temperature"):
+            kelvin = thermal.get(name)
+            if kelvin is not None and kelvin >= lowest:
+                raise CaseError(f"thermal.{name}",
+                                f"{kelvin:.6g} K ({kelvin - 273.15:.6g} C) is at or above the "
+                                f"melting point of {which}, about {lowest:.0f} K "
+                                f"({lowest - 273.15:.0f} C); give a lower temperature")
 
     def layer_orientations(self) -> None:
         """Give layers without their own orientation the substrate's (same crystal system)."""

@@ -43,6 +43,8 @@ first failing check raises.
 
 from __future__ import annotations
 
+import os
+import stat
 import tomllib
 from pathlib import Path
 
@@ -62,21 +64,128 @@ from mesastrain.case.types import TABLE_TYPES, Case
 from mesastrain.errors import CaseError, MaterialError, OrientationError
 from mesastrain.physics.crystal import direction_vector, miscut_rotation, plane_normal, sample_frame
 from mesastrain.physics.materials import get_material, is_alloy
-from mesastrain.units import show_value
+from mesastrain.units import safe_name, show_value
 
-__all__ = ["load_case", "parse_case"]
+__all__ = ["MAX_FILE_BYTES", "MAX_NESTING", "check_nesting", "load_case", "parse_case",
+           "read_toml"]
 
 
 # --------------------------------------------------------------------------
 # reading files
 # --------------------------------------------------------------------------
+#: Largest case or sweep file read, bytes. A case with a 1000-vertex outline is about
+#: 40 kB; 4 MiB leaves room for comments and long mesh-group tables while a device
+#: (``/dev/zero``) or a wrong file cannot fill the memory.
+MAX_FILE_BYTES = 4 * 1024 * 1024
+#: Deepest nesting of tables and arrays (a polygon's vertices are 4 deep: the file, [pattern],
+#: the list, a point). Deeper structures are refused before any recursive walk can overflow.
+MAX_NESTING = 8
+
+
+def read_toml(path, what: str = "case file") -> dict:
+    """Read a TOML file safely: a regular file of at most MAX_FILE_BYTES, UTF-8, sane nesting.
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+    what : str
+        What the file is, for the messages ("case file", "sweep file").
+
+    Returns
+    -------
+    dict
+        As :func:`tomllib.loads` returns it.
+
+    Raises
+    ------
+    CaseError
+        Carrying the file name: missing, unreadable, not a regular file (a
+        directory, device or FIFO), larger than :data:`MAX_FILE_BYTES`, empty,
+        not UTF-8 text, a TOML syntax error (with TOML's line and column),
+        nesting deeper than :data:`MAX_NESTING`.
+    """
+    source = str(path)
+    try:
+        st = os.stat(path)
+    except FileNotFoundError:
+        raise CaseError("", "no such file", source) from None
+    except (OSError, ValueError) as err:
+        raise CaseError("", f"cannot be read ({getattr(err, 'strerror', None) or err})",
+                        source) from None
+    if stat.S_ISDIR(st.st_mode):
+        raise CaseError("", f"is a directory, not a {what}", source)
+    if not stat.S_ISREG(st.st_mode):
+        raise CaseError("", f"not a regular file (a device, FIFO or socket); give a {what} "
+                            f"(UTF-8 TOML text)", source)
+    try:
+        fd = os.open(path, os.O_RDONLY | getattr(os, "O_NONBLOCK", 0))
+        with os.fdopen(fd, "rb") as fh:
+            if not stat.S_ISREG(os.fstat(fh.fileno()).st_mode):   # replaced since the stat
+                raise CaseError("", f"not a regular file; give a {what}", source)
+            raw = fh.read(MAX_FILE_BYTES + 1)
+    except OSError as err:
+        raise CaseError("", f"cannot be read ({err.strerror or err})", source) from None
+    if len(raw) > MAX_FILE_BYTES:
+        raise CaseError("", f"larger than {MAX_FILE_BYTES // (1024 * 1024)} MiB; a {what} is "
+                            f"a short text file (bring large geometry as a mesh file, "
+                            f"[pattern] shape = \"mesh\")", source)
+    if not raw.strip():
+        raise CaseError("", "the file is empty; a case needs at least [substrate] and one "
+                            "[[layer]]" if what == "case file" else "the file is empty", source)
+    if b"\x00" in raw:
+        raise CaseError("", f"not a text file (it contains NUL bytes); a {what} is UTF-8 "
+                            f"TOML text", source)
+    try:
+        text = raw.decode("utf-8-sig")
+    except UnicodeDecodeError as err:
+        line = raw[:err.start].count(b"\n") + 1
+        raise CaseError("", f"not UTF-8 text (invalid byte 0x{raw[err.start]:02x} on line "
+                            f"{line}); save the {what} as UTF-8", source) from None
+    try:
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as err:
+        msg = " ".join(str(err).split())
+        raise CaseError("", f"TOML syntax error: {msg}", source) from None
+    except RecursionError:
+        raise CaseError("", f"arrays or inline tables nested too deeply; a {what} needs at "
+                            f"most {MAX_NESTING} levels", source) from None
+    try:
+        check_nesting(data)
+    except CaseError as err:
+        raise err.with_source(source) from None
+    return data
+
+
+def check_nesting(data, limit: int = MAX_NESTING) -> None:
+    """Refuse tables and arrays nested deeper than ``limit`` (iteratively, no recursion).
+
+    Raises
+    ------
+    CaseError
+        Naming the key path of the first value that is too deep.
+    """
+    stack = [(data, "", 1)]
+    while stack:
+        value, key, depth = stack.pop()
+        if isinstance(value, dict):
+            items = ((f"{key}.{k}" if key else str(k), v) for k, v in value.items())
+        elif isinstance(value, list):
+            items = ((f"{key}[{i}]", v) for i, v in enumerate(value))
+        else:
+            continue
+        if depth > limit:
+            raise CaseError(key, f"nested {depth} levels deep; a case file needs at most "
+                                 f"{limit} levels of tables and arrays")
+        stack.extend((v, k, depth + 1) for k, v in items if isinstance(v, (dict, list)))
+
+
 def load_case(path) -> Case:
     """Read and validate a case file.
 
     Parameters
     ----------
     path : str or os.PathLike
-        The TOML case file.
+        The TOML case file: a regular file of at most :data:`MAX_FILE_BYTES`.
 
     Returns
     -------
@@ -87,38 +196,10 @@ def load_case(path) -> Case:
     Raises
     ------
     CaseError
-        Carrying the file name: missing or unreadable file, empty file, a file
-        that is not UTF-8 text, a TOML syntax error (with TOML's line and
-        column), or any invalid content (see :func:`parse_case`).
+        Carrying the file name: see :func:`read_toml`, and any invalid
+        content (see :func:`parse_case`).
     """
-    p = Path(path)
-    source = str(path)
-    try:
-        raw = p.read_bytes()
-    except FileNotFoundError:
-        raise CaseError("", "no such file", source) from None
-    except IsADirectoryError:
-        raise CaseError("", "is a directory, not a case file", source) from None
-    except OSError as err:
-        raise CaseError("", f"cannot be read ({err.strerror or err})", source) from None
-    if not raw.strip():
-        raise CaseError("", "the file is empty; a case needs at least [substrate] and one "
-                            "[[layer]]", source)
-    if b"\x00" in raw:
-        raise CaseError("", "not a text file (it contains NUL bytes); a case file is UTF-8 "
-                            "TOML text", source)
-    try:
-        text = raw.decode("utf-8-sig")
-    except UnicodeDecodeError as err:
-        line = raw[:err.start].count(b"\n") + 1
-        raise CaseError("", f"not UTF-8 text (invalid byte 0x{raw[err.start]:02x} on line "
-                            f"{line}); save the case file as UTF-8", source) from None
-    try:
-        data = tomllib.loads(text)
-    except tomllib.TOMLDecodeError as err:
-        msg = " ".join(str(err).split())
-        raise CaseError("", f"TOML syntax error: {msg}", source) from None
-    return parse_case(data, source)
+    return parse_case(read_toml(path), str(path))
 
 
 def parse_case(data: dict, source: str | None = None) -> Case:
@@ -143,7 +224,12 @@ def parse_case(data: dict, source: str | None = None) -> Case:
         module docstring, with the key path of the offending key.
     """
     try:
-        return _Parser(source).run(data)
+        try:
+            return _Parser(source).run(data)
+        except (OverflowError, RecursionError) as err:  # a net: the readers bound every value
+            raise CaseError("", f"a value is too large to handle ({type(err).__name__}: "
+                                f"{' '.join(str(err).split())}); give values of a sane size"
+                            ) from None
     except CaseError as err:
         if source is not None and err.source is None:
             raise err.with_source(source) from None
@@ -169,6 +255,7 @@ class _Parser:
     def run(self, data) -> Case:
         if not isinstance(data, dict):
             raise CaseError("", f"expected a table of case settings, got {show_value(data)}")
+        check_nesting(data)
         special = {TITLE.name: TITLE.kind.read, "substrate": self._substrate,
                    "layer": self._layers, "pattern": self._pattern, "cut": self._cuts,
                    "dislocations": self._dislocations}
@@ -199,6 +286,7 @@ class _Parser:
         mesh.setdefault("order", default_order(pattern))
         cross = {"layer": checks.layer_orientations, "pattern": checks.pattern_fits,
                  "mesh": checks.mesh_fits,
+                 "thermal": lambda: checks.temperatures(got["thermal"]),
                  "probe": lambda: checks.probes_inside(got["probe"]),
                  "cut": lambda: checks.cuts_inside(got["cut"]),
                  "dislocations": lambda: checks.dislocations(got["dislocations"])}
@@ -331,6 +419,17 @@ class _Parser:
                                               f"{seen[t['name']]}; give each {key} its own name")
             seen[t["name"]] = f"{key}[{i}]"
             out.append(t)
+        files = {}      # names become file and field names: refuse two that become one
+        for i, t in enumerate(out):
+            stem = safe_name(t["name"], default=key).lower()
+            if stem in files:
+                j = files[stem]
+                raise CaseError(f"{key}[{i}].name",
+                                f"{show_value(t['name'])} and {show_value(out[j]['name'])} "
+                                f"({key}[{j}]) both become the file name \"{stem}\" (characters "
+                                f"other than letters, digits, _ . - become _, letter case is "
+                                f"ignored); give names that differ in letters or digits")
+            files[stem] = i
         return out
 
     def _cuts(self, value, key: str) -> list:

@@ -24,16 +24,36 @@ from mesastrain.errors import CaseError
 from mesastrain.physics.bands import device_parameters
 from mesastrain.physics.materials import is_alloy, known_materials
 from mesastrain.physics.raman_data import pdp_sets
-from mesastrain.units import is_number, parse_length, parse_temperature, show_value
+from mesastrain.units import finite_float, is_number, parse_length, parse_temperature, show_value
 
 __all__ = [
+    "DIRECTION_NORM_RANGE", "MAX_INDEX", "MAX_ITEMS", "MAX_NAME", "MAX_VERTICES",
     "angle_between", "array_of_tables", "boolean", "channel_direction", "choice",
-    "component_list", "fraction", "groups", "growth", "indices", "int_at_least", "length",
-    "length_unit", "lengths_list", "material_name", "mesh_order", "missing",
+    "component_list", "fraction", "groups", "growth", "indices", "int_at_least", "int_between",
+    "length", "length_unit", "lengths_list", "material_name", "mesh_order", "missing", "name",
     "nonnegative_length", "pitch", "point", "positive_length", "positive_number", "raman_pdp",
     "refine", "relaxation", "shape_name", "string", "temperature", "tolerance", "unknown_key",
     "vertices",
 ]
+
+#: Most items of an array of tables ([[layer]], [[probe]], [[cut]], ...) and of a list of
+#: lengths: far beyond any real stack (a superlattice of a few hundred layers) and small
+#: enough that validation stays well under a second.
+MAX_ITEMS = 1000
+#: Most vertices of a polygon outline. gmsh refines each outline edge on its own, so meshing
+#: time grows about as n^2 (measured: 100 vertices 6 min, 256 vertices about half an hour
+#: on 2 cores; :data:`mesastrain.run.resources.POLYGON_SECONDS`, which ``check`` adds to
+#: its estimate). A mask outline rarely needs more; bring finer geometry as a mesh file.
+MAX_VERTICES = 256
+#: Largest absolute Miller index: vicinal and high-index surfaces are written with indices of
+#: a few tens; 999 keeps every product of indices exact in floating point.
+MAX_INDEX = 999
+#: Longest name of a probe, cut, channel or dislocation set: names become file names
+#: (255 bytes on common file systems, with a prefix and suffix added).
+MAX_NAME = 100
+#: A direction's length must lie within these bounds (its square must stay a normal float,
+#: IEEE 754 double: 2.2e-308 .. 1.8e308), so that normalising it is exact to rounding.
+DIRECTION_NORM_RANGE = (1e-150, 1e150)
 
 #: A length: a number in nm or a string with a unit (:func:`mesastrain.units.parse_length`).
 length = parse_length
@@ -60,8 +80,20 @@ def array_of_tables(value, key: str) -> list:
     """Check that ``value`` is an array of tables (``[[key]]``) and return it."""
     if not isinstance(value, list) or not all(isinstance(v, dict) for v in value):
         raise CaseError(key, f"expected an array of tables written as [[{key}]] (one per "
-                             f"{key}), got {show_value(value)}")
+                             f"{key}), got {_brief(value)}")
+    if len(value) > MAX_ITEMS:
+        raise CaseError(key, f"{len(value)} [[{key}]] tables; at most {MAX_ITEMS}")
     return value
+
+
+def _brief(value, limit: int = 80) -> str:
+    """:func:`show_value` cut to ``limit`` characters (a huge list stays one short line)."""
+    if isinstance(value, (list, tuple)) and len(value) > 20:
+        return f"a list of {len(value)} items"
+    if isinstance(value, int) and not isinstance(value, bool) and value.bit_length() > 200:
+        return f"an integer of {len(str(abs(value)))} digits"
+    text = show_value(value)
+    return text if len(text) <= limit else text[:limit - 3] + "..."
 
 
 # --------------------------------------------------------------------------
@@ -71,7 +103,7 @@ def positive_length(value, key: str) -> float:
     """A length > 0, nm."""
     v = parse_length(value, key)
     if not v > 0:
-        raise CaseError(key, f"must be > 0, got {show_value(value)} ({v:.10g} nm)")
+        raise CaseError(key, f"must be > 0, got {_brief(value)} ({v:.10g} nm)")
     return v
 
 
@@ -79,43 +111,53 @@ def nonnegative_length(value, key: str) -> float:
     """A length >= 0, nm."""
     v = parse_length(value, key)
     if not v >= 0:
-        raise CaseError(key, f"must be >= 0, got {show_value(value)} ({v:.10g} nm)")
+        raise CaseError(key, f"must be >= 0, got {_brief(value)} ({v:.10g} nm)")
     return v
 
 
 def string(value, key: str) -> str:
     """Any string."""
     if not isinstance(value, str):
-        raise CaseError(key, f"expected a string, got {show_value(value)}")
+        raise CaseError(key, f"expected a string, got {_brief(value)}")
     return value
+
+
+def name(value, key: str) -> str:
+    """A name of an output item: a non-empty string of at most MAX_NAME characters."""
+    text = string(value, key)
+    if not text.strip() or len(text) > MAX_NAME:
+        raise CaseError(key, f"expected a name of 1 to {MAX_NAME} characters, got "
+                             f"{_brief(value)} ({len(text)} characters)")
+    return text
 
 
 def boolean(value, key: str) -> bool:
     """``true`` or ``false``."""
     if not isinstance(value, bool):
-        raise CaseError(key, f"expected true or false, got {show_value(value)}")
+        raise CaseError(key, f"expected true or false, got {_brief(value)}")
     return value
 
 
 def fraction(value, key: str) -> float:
     """A number from 0 to 1."""
     if not is_number(value) or not 0.0 <= value <= 1.0:
-        raise CaseError(key, f"expected a number from 0 to 1, got {show_value(value)}")
+        raise CaseError(key, f"expected a number from 0 to 1, got {_brief(value)}")
     return float(value)
 
 
 def positive_number(value, key: str) -> float:
-    """A finite number > 0."""
-    if not is_number(value) or not value > 0 or not math.isfinite(value):
-        raise CaseError(key, f"expected a number > 0, got {show_value(value)}")
-    return float(value)
+    """A finite number > 0 and at most 1e6 (a factor, not a size)."""
+    v = finite_float(value) if is_number(value) else None
+    if v is None or not 0 < v <= 1e6:
+        raise CaseError(key, f"expected a number > 0 and <= 1e6, got {_brief(value)}")
+    return v
 
 
 def relaxation(value, key: str) -> float:
     """A relaxed fraction of the mismatch, > 0 and <= 1."""
     if not is_number(value) or not 0.0 < value <= 1.0:
         raise CaseError(key, f"expected a relaxed fraction of the mismatch, > 0 and <= 1, got "
-                             f"{show_value(value)}")
+                             f"{_brief(value)}")
     return float(value)
 
 
@@ -123,14 +165,14 @@ def mesh_order(value, key: str) -> int:
     """Element order, 1 or 2."""
     if not isinstance(value, int) or isinstance(value, bool) or value not in (1, 2):
         raise CaseError(key, f"expected 1 (linear) or 2 (quadratic elements), got "
-                             f"{show_value(value)}")
+                             f"{_brief(value)}")
     return value
 
 
 def growth(value, key: str) -> float:
     """A grading ratio > 1 and <= 3."""
     if not is_number(value) or not 1.0 < value <= 3.0:
-        raise CaseError(key, f"expected a grading ratio > 1 and <= 3, got {show_value(value)}")
+        raise CaseError(key, f"expected a grading ratio > 1 and <= 3, got {_brief(value)}")
     return float(value)
 
 
@@ -138,7 +180,7 @@ def tolerance(value, key: str) -> float:
     """A relative tolerance > 0 and <= 1e-2."""
     if not is_number(value) or not 0.0 < value <= 1e-2:
         raise CaseError(key, f"expected a relative tolerance > 0 and <= 1e-2, got "
-                             f"{show_value(value)}")
+                             f"{_brief(value)}")
     return float(value)
 
 
@@ -146,7 +188,7 @@ def refine(value, key: str) -> float:
     """A refinement factor from 0.25 to 16."""
     if not is_number(value) or not 0.25 <= value <= 16:
         raise CaseError(key, f"expected a refinement factor from 0.25 to 16 (element sizes are "
-                             f"divided by it), got {show_value(value)}")
+                             f"divided by it), got {_brief(value)}")
     return float(value)
 
 
@@ -154,11 +196,11 @@ def length_unit(value, key: str) -> str:
     """The name of a length unit, e.g. ``"nm"``."""
     if not isinstance(value, str):
         raise CaseError(key, f'expected a length unit such as "nm" or "um", got '
-                             f'{show_value(value)}')
+                             f'{_brief(value)}')
     try:
         parse_length(f"1 {value}", key)
     except CaseError:
-        raise CaseError(key, f'{show_value(value)} is not a length unit; allowed: "nm", "um", '
+        raise CaseError(key, f'{_brief(value)} is not a length unit; allowed: "nm", "um", '
                              f'"mm", "A"') from None
     return value
 
@@ -185,16 +227,22 @@ def choice(allowed):
     def read(value, key):
         if not isinstance(value, str) or value not in allowed:
             choices = ", ".join(f'"{a}"' for a in allowed)
-            raise CaseError(key, f"{show_value(value)} is not allowed; allowed: {choices}")
+            raise CaseError(key, f"{_brief(value)} is not allowed; allowed: {choices}")
         return value
     return read
 
 
 def int_at_least(low: int):
-    """A reader of an integer >= ``low``."""
+    """A reader of an integer >= ``low`` (no upper bound beyond a 64-bit integer)."""
+    return int_between(low, 2**63 - 1)
+
+
+def int_between(low: int, high: int):
+    """A reader of an integer from ``low`` to ``high``."""
     def read(value, key):
-        if not isinstance(value, int) or isinstance(value, bool) or value < low:
-            raise CaseError(key, f"expected an integer >= {low}, got {show_value(value)}")
+        if not isinstance(value, int) or isinstance(value, bool) or not low <= value <= high:
+            raise CaseError(key, f"expected an integer >= {low} and <= {high}, got "
+                                 f"{_brief(value)}")
         return value
     return read
 
@@ -204,7 +252,7 @@ def angle_between(low: float, high: float):
     def read(value, key) -> float:
         if not is_number(value) or not low <= value <= high:
             raise CaseError(key, f"expected an angle in degrees from the substrate plane, "
-                                 f"{low:g} to {high:g} (90 = vertical), got {show_value(value)}")
+                                 f"{low:g} to {high:g} (90 = vertical), got {_brief(value)}")
         return float(value)
     return read
 
@@ -218,26 +266,32 @@ def shape_name(shapes: tuple):
             close = (difflib.get_close_matches(value, shapes, n=1)
                      if isinstance(value, str) else [])
             hint = f'did you mean "{close[0]}"? ' if close else ""
-            raise CaseError(key, f"{show_value(value)} is not a pattern shape; {hint}"
+            raise CaseError(key, f"{_brief(value)} is not a pattern shape; {hint}"
                                  f"allowed: {allowed}")
         return value
     return read
 
 
 def component_list(allowed: tuple):
-    """A reader of a non-empty list of field component names out of ``allowed``."""
+    """A reader of a non-empty list of field component names out of ``allowed``.
+
+    Repeated names are dropped (first kept); a list longer than MAX_ITEMS is refused.
+    """
     def read(value, key: str) -> tuple:
         if not isinstance(value, list) or not value or not all(isinstance(v, str)
                                                                 for v in value):
             raise CaseError(key, f'expected a list of component names, e.g. ["stress_xx", '
-                                 f'"von_mises"], got {show_value(value)}')
+                                 f'"von_mises"], got {_brief(value)}')
+        if len(value) > MAX_ITEMS:
+            raise CaseError(key, f"{len(value)} components; at most {MAX_ITEMS} (there are "
+                                 f"{len(allowed)} different ones)")
         for i, v in enumerate(value):
             if v not in allowed:
                 close = difflib.get_close_matches(v, allowed, n=1)
                 hint = f'did you mean "{close[0]}"? ' if close else ""
-                raise CaseError(f"{key}[{i}]", f"{show_value(v)} is not a field component; "
+                raise CaseError(f"{key}[{i}]", f"{_brief(v)} is not a field component; "
                                                f"{hint}allowed: {', '.join(allowed)}")
-        return tuple(value)
+        return tuple(dict.fromkeys(value))
     return read
 
 
@@ -248,7 +302,9 @@ def lengths_list(value, key: str) -> tuple:
     """A non-empty list of lengths -> tuple of nm."""
     if not isinstance(value, list) or not value:
         raise CaseError(key, f"expected a non-empty list of lengths, e.g. [-100, 0, \"0.1 um\"], "
-                             f"got {show_value(value)}")
+                             f"got {_brief(value)}")
+    if len(value) > MAX_ITEMS:
+        raise CaseError(key, f"{len(value)} lengths; at most {MAX_ITEMS}")
     return tuple(parse_length(v, f"{key}[{i}]") for i, v in enumerate(value))
 
 
@@ -257,11 +313,14 @@ def indices(value, key: str) -> tuple:
     if (not isinstance(value, list) or len(value) not in (3, 4)
             or not all(is_number(v) for v in value)):
         raise CaseError(key, f"expected Miller indices [h, k, l] or [h, k, i, l] (integers), "
-                             f"got {show_value(value)}")
+                             f"got {_brief(value)}")
     if not all(isinstance(v, int) for v in value):
-        raise CaseError(key, f"Miller indices must be integers, got {show_value(value)}")
+        raise CaseError(key, f"Miller indices must be integers, got {_brief(value)}")
+    if any(abs(v) > MAX_INDEX for v in value):
+        raise CaseError(key, f"Miller indices must lie from -{MAX_INDEX} to {MAX_INDEX}, got "
+                             f"{_brief(value)}")
     if not any(value):
-        raise CaseError(key, f"Miller indices must not be all zero, got {show_value(value)}")
+        raise CaseError(key, f"Miller indices must not be all zero, got {_brief(value)}")
     return tuple(value)
 
 
@@ -304,7 +363,7 @@ def point(value, key: str) -> tuple:
     """A point [x, y, z] of three lengths -> (x, y, z) in nm."""
     if not isinstance(value, list) or len(value) != 3:
         raise CaseError(key, f"expected a point [x, y, z] of three lengths, got "
-                             f"{show_value(value)}")
+                             f"{_brief(value)}")
     return tuple(parse_length(v, f"{key}[{i}]") for i, v in enumerate(value))
 
 
@@ -313,7 +372,10 @@ def vertices(value, key: str) -> tuple:
     if not isinstance(value, list) or not all(isinstance(v, list) and len(v) == 2
                                               for v in value):
         raise CaseError(key, f"expected a list of points [[x, y], ...] (lengths), got "
-                             f"{show_value(value)}")
+                             f"{_brief(value)}")
+    if len(value) > MAX_VERTICES:
+        raise CaseError(key, f"{len(value)} vertices; at most {MAX_VERTICES} (bring a finer "
+                             f"outline as a mesh file, shape = \"mesh\")")
     pts = tuple(tuple(parse_length(c, f"{key}[{i}][{j}]") for j, c in enumerate(v))
                 for i, v in enumerate(value))
     problem = polygon_problem(pts)
@@ -326,7 +388,7 @@ def pitch(value, key: str) -> tuple:
     """A length or [px, py] -> (px, py) in nm (py None when one length is given)."""
     if isinstance(value, list):
         if len(value) not in (1, 2):
-            raise CaseError(key, f"expected a length or [px, py], got {show_value(value)}")
+            raise CaseError(key, f"expected a length or [px, py], got {_brief(value)}")
         vals = tuple(positive_length(v, f"{key}[{i}]") for i, v in enumerate(value))
         return vals if len(vals) == 2 else (vals[0], None)
     return (positive_length(value, key), None)
@@ -336,32 +398,54 @@ def groups(value, key: str) -> tuple:
     """{name = region, ...} -> ((name, region), ...); region 0 / "substrate" or i >= 1."""
     if not isinstance(value, dict) or not value:
         raise CaseError(key, f'expected a table mapping physical group names to regions, e.g. '
-                             f'{{ substrate = 0, film = 1 }}, got {show_value(value)}')
-    out = []
-    for name, region in value.items():
+                             f'{{ substrate = 0, film = 1 }}, got {_brief(value)}')
+    if len(value) > MAX_ITEMS:
+        raise CaseError(key, f"{len(value)} groups; at most {MAX_ITEMS}")
+    out, tags = [], {}
+    for group, region in value.items():
         if region == "substrate":
             region = 0
-        if not isinstance(region, int) or isinstance(region, bool) or region < 0:
-            raise CaseError(f"{key}.{name}", f'expected a region: 0 or "substrate", or the '
-                                             f'layer number 1, 2, ... (bottom up), got '
-                                             f'{show_value(region)}')
-        out.append((str(name), region))
+        if (not isinstance(region, int) or isinstance(region, bool) or region < 0
+                or region > MAX_ITEMS):
+            raise CaseError(f"{key}.{group}", f'expected a region: 0 or "substrate", or the '
+                                              f'layer number 1, 2, ... (bottom up), got '
+                                              f'{_brief(region)}')
+        tag = _integer_tag(group)
+        if tag is not None:
+            if tag in tags:
+                raise CaseError(f"{key}.{group}", f"tag {tag} is already mapped by "
+                                                  f"{key}.{tags[tag]}; map each group once")
+            tags[tag] = group
+        out.append((str(group), region))
     return tuple(out)
+
+
+def _integer_tag(group: str) -> int | None:
+    """The integer tag a group key names (``"2"``, ``"+2"``, ``"02"``), None for a name."""
+    text = str(group).strip()
+    if not text.lstrip("+-").isdigit() or len(text) > 18:
+        return None
+    return int(text)
 
 
 def channel_direction(value, key: str) -> tuple:
     """An in-plane sample-frame direction [x, y] or [x, y, 0] -> (x, y, 0) as given."""
     if (not isinstance(value, list) or len(value) not in (2, 3)
-            or not all(is_number(v) and math.isfinite(v) for v in value)):
+            or not all(is_number(v) and finite_float(v) is not None for v in value)):
         raise CaseError(key, f"expected an in-plane direction [x, y] or [x, y, 0] in the sample "
-                             f"frame (numbers), got {show_value(value)}")
+                             f"frame (finite numbers), got {_brief(value)}")
     x, y = float(value[0]), float(value[1])
     norm = math.hypot(x, y)
     if norm == 0.0:
-        raise CaseError(key, f"must not be a zero vector, got {show_value(value)}")
-    if len(value) == 3 and abs(value[2]) > 1e-9 * norm:
+        raise CaseError(key, f"must not be a zero vector, got {_brief(value)}")
+    low, high = DIRECTION_NORM_RANGE
+    if not low <= norm <= high:
+        raise CaseError(key, f"{_brief(value)} has length {norm:.3g}; give a direction of "
+                             f"length {low:g} to {high:g} (e.g. [1, 0]); its square must stay "
+                             f"a normal floating-point number")
+    if len(value) == 3 and abs(float(value[2])) > 1e-9 * norm:
         raise CaseError(key, f"must lie in the wafer plane (z component 0; sample z is the "
-                             f"normal), got {show_value(value)}")
+                             f"normal), got {_brief(value)}")
     return (x, y, 0.0)
 
 
@@ -369,7 +453,7 @@ def raman_polarisation(value, key: str) -> tuple:
     """``[[ix, iy], [sx, sy]]`` (incident, scattered; sample frame) -> two in-plane 3-tuples."""
     if not isinstance(value, list) or len(value) != 2:
         raise CaseError(key, f"expected [incident, scattered], two in-plane directions, e.g. "
-                             f"[[1, 0], [0, 1]], got {show_value(value)}")
+                             f"[[1, 0], [0, 1]], got {_brief(value)}")
     return tuple(channel_direction(v, f"{key}[{k}]") for k, v in enumerate(value))
 
 
@@ -379,7 +463,7 @@ def raman_pdp(value, key: str) -> tuple:
     listing = "; ".join(f"{m}: {', '.join(s)}" for m, s in known.items())
     if not isinstance(value, dict):
         raise CaseError(key, f'expected a table material = "set", e.g. raman_pdp = '
-                             f'{{ Si = "{known["Si"][-1]}" }}, got {show_value(value)}; '
+                             f'{{ Si = "{known["Si"][-1]}" }}, got {_brief(value)}; '
                              f'known sets: {listing}')
     out = []
     for name, set_name in value.items():

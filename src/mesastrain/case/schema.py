@@ -33,11 +33,11 @@ from mesastrain.case.keys import Key, Kind, Table
 from mesastrain.physics.bands import device_parameters
 from mesastrain.physics.materials import known_materials
 from mesastrain.physics.raman_data import pdp_sets
-from mesastrain.units import LENGTH_UNITS, TEMPERATURE_UNITS
+from mesastrain.units import LENGTH_UNITS, MAX_LENGTH_NM, MAX_TEMPERATURE_K, TEMPERATURE_UNITS
 
 __all__ = [
     "CARRIERS", "DEFAULT_CUT_COMPONENTS", "DEFAULT_MAPS", "FEATURE_SHAPES", "FIELD_COMPONENTS",
-    "INSIDE_RTOL",
+    "INSIDE_RTOL", "MAX_CUT_POINTS", "MAX_SOLVER_ITERATIONS",
     "PATTERN_SHAPES", "SCHEMA_FILE", "SCHEMA_VERSION", "SHAPE_KEYS",
     "SHAPE_REQUIRES", "SIDEWALL_ANGLE_RANGE", "SOLVER_METHODS", "SOLVER_PRECISIONS",
     "SYMMETRY_CHOICES", "TABLES", "TITLE", "TOP_KEYS", "default_order", "json_schema",
@@ -74,6 +74,13 @@ DEFAULT_CUT_COMPONENTS = ("stress_xx", "stress_yy", "stress_zz", "stress_xz")
 #: Components drawn as plan-view and cross-section maps when ``output.maps`` is not given.
 DEFAULT_MAPS = ("stress_xx", "von_mises")
 
+#: Most sample points of a line cut: a cut is written as CSV and plotted; 10000 points
+#: resolve a 1 mm cut to 0.1 um, far finer than any mesh the tool builds.
+MAX_CUT_POINTS = 10000
+#: Iteration cap of the iterative solver: more than 1e5 iterations means the solve will
+#: not converge (multigrid-preconditioned CG needs tens to hundreds).
+MAX_SOLVER_ITERATIONS = 100000
+
 #: Relative tolerance of the inside-the-body test for probes and cuts.
 INSIDE_RTOL = 1e-9
 
@@ -99,23 +106,34 @@ _DEFS = {
     "material": {"description": "A material name, or an alloy spelled as a formula.",
                  "type": "string", "examples": list(known_materials())},
     "length": {"description": "A length: a number in nm or a string with a unit, e.g. "
-                              '"40 nm", "2 um", "0.5 mm", "3.2 A".',
-               "anyOf": [{"type": "number"},
+                              '"40 nm", "2 um", "0.5 mm", "3.2 A"; at most 1e9 nm (1 m, more '
+                              'than twice the largest wafer) in size.',
+               "anyOf": [{"type": "number", "minimum": -MAX_LENGTH_NM,
+                          "maximum": MAX_LENGTH_NM},
                          {"type": "string", "pattern": _with_unit(LENGTH_UNITS)}]},
-    "positiveLength": {"description": "A length > 0.",
-                       "anyOf": [{"type": "number", "exclusiveMinimum": 0},
+    "positiveLength": {"description": "A length > 0, at most 1e9 nm (1 m).",
+                       "anyOf": [{"type": "number", "exclusiveMinimum": 0,
+                                  "maximum": MAX_LENGTH_NM},
                                  {"type": "string",
                                   "pattern": _with_unit(LENGTH_UNITS, r"\+?" + _UNSIGNED)}]},
     "temperature": {"description": 'A temperature: a number in degrees Celsius or a string '
-                                   'with a unit, e.g. "700 C", "973.15 K".',
-                    "anyOf": [{"type": "number"},
+                                   'with a unit, e.g. "700 C", "973.15 K"; above 0 K and at '
+                                   f'most {MAX_TEMPERATURE_K:g} K (above every melting point '
+                                   'of the materials tables), and below the lowest melting '
+                                   'point of the stack\'s materials.',
+                    "anyOf": [{"type": "number", "exclusiveMinimum": -273.15,
+                               "maximum": round(MAX_TEMPERATURE_K - 273.15, 2)},
                               {"type": "string", "pattern": _with_unit(TEMPERATURE_UNITS)}]},
-    "indices": {"description": "Miller indices [h, k, l] or Miller-Bravais [h, k, i, l].",
-                "type": "array", "items": {"type": "integer"}, "minItems": 3, "maxItems": 4},
+    "indices": {"description": f"Miller indices [h, k, l] or Miller-Bravais [h, k, i, l], "
+                               f"each from -{rd.MAX_INDEX} to {rd.MAX_INDEX}.",
+                "type": "array", "items": {"type": "integer", "minimum": -rd.MAX_INDEX,
+                                           "maximum": rd.MAX_INDEX},
+                "minItems": 3, "maxItems": 4},
     "point": {"description": "A point [x, y, z] of three lengths.",
               "type": "array", "items": {"$ref": "#/$defs/length"}, "minItems": 3,
               "maxItems": 3},
-    "components": {"description": "Field components.", "type": "array", "minItems": 1,
+    "components": {"description": "Field components (a repeated name is drawn once).",
+                   "type": "array", "minItems": 1, "maxItems": rd.MAX_ITEMS,
                    "items": {"enum": list(FIELD_COMPONENTS)}},
 }
 
@@ -138,8 +156,8 @@ def _raman_pdp_json() -> dict:
             "properties": {m: _enum(s) for m, s in known.items()}}
 
 
-def _int_at_least(low: int) -> Kind:
-    return Kind(rd.int_at_least(low), {"type": "integer", "minimum": low})
+def _int_between(low: int, high: int) -> Kind:
+    return Kind(rd.int_between(low, high), {"type": "integer", "minimum": low, "maximum": high})
 
 
 def _choice(values) -> Kind:
@@ -172,8 +190,9 @@ MISCUT = Kind(rd.miscut, {"type": "object", "additionalProperties": False,
                                                    "pattern": _with_unit(("deg", "°"))}]},
                               "toward": _ref("indices")}},
               echo=lambda m: {"angle": f"{m[0]:g} deg", "toward": list(m[1])})
-GROUPS = Kind(rd.groups, {"type": "object", "minProperties": 1,
-                          "additionalProperties": {"anyOf": [{"type": "integer", "minimum": 0},
+GROUPS = Kind(rd.groups, {"type": "object", "minProperties": 1, "maxProperties": rd.MAX_ITEMS,
+                          "additionalProperties": {"anyOf": [{"type": "integer", "minimum": 0,
+                                                              "maximum": rd.MAX_ITEMS},
                                                              {"const": "substrate"}]}},
               echo=dict)
 
@@ -226,13 +245,17 @@ PATTERN = Table("pattern", "pattern", "The etched feature, centred on x = y = 0.
     Key("margin", POSITIVE_LENGTH, "Width of etched-floor substrate modelled around the "
                                    "feature (default: the mesher chooses).",
         shapes=FEATURE_SHAPES),
-    Key("corner_radius", NONNEGATIVE_LENGTH, "Rounding radius of a rectangle's vertical edges.",
+    Key("corner_radius", NONNEGATIVE_LENGTH, "Rounding radius of a rectangle's vertical edges, "
+                                             "at most half the shorter side (then the ends are "
+                                             "half-disks: a stadium, or a disk for a square).",
         shapes=("rectangle",)),
     Key("diameter", POSITIVE_LENGTH, "Disk diameter at its top.", shapes=("disk",),
         required_for=(("disk", 'the disk diameter, e.g. "1 um"'),)),
-    Key("vertices", Kind(rd.vertices, {"type": "array", "minItems": 3, "items": {
+    Key("vertices", Kind(rd.vertices, {"type": "array", "minItems": 3,
+                                       "maxItems": rd.MAX_VERTICES, "items": {
         "type": "array", "items": _ref("length"), "minItems": 2, "maxItems": 2}}),
-        "Polygon outline at its top, [[x, y], ...] in order (either sense).",
+        f"Polygon outline at its top, [[x, y], ...] in order (either sense); at most "
+        f"{rd.MAX_VERTICES} vertices (the self-crossing check compares every pair of edges).",
         shapes=("polygon",),
         required_for=(("polygon", ('the outline as [[x, y], ...] in nm, e.g. '
                                    '[[0, 0], [500, 0], [0, 400]]')),)),
@@ -250,8 +273,9 @@ PATTERN = Table("pattern", "pattern", "The etched feature, centred on x = y = 0.
         required_for=(("mesh", 'the mesh file, e.g. "device.msh"'),)),
     Key("unit", Kind(rd.length_unit, _enum(LENGTH_UNITS)),
         "Length unit of the imported mesh coordinates (default nm).", shapes=("mesh",)),
-    Key("groups", GROUPS, 'Imported mesh: physical group name -> region (0 or "substrate", '
-                          'i = layer i counted from 1).', shapes=("mesh",),
+    Key("groups", GROUPS, 'Imported mesh: physical group name (or integer tag) -> region (0 or '
+                          '"substrate", i = layer i counted from 1); each group mapped once.',
+        shapes=("mesh",),
         required_for=(("mesh", ('a table mapping physical groups to regions, '
                                 'e.g. groups = { substrate = 0, film = 1 }')),)),
 ))
@@ -290,17 +314,20 @@ _TOLERANCE = Kind(rd.tolerance, _number(exclusiveMinimum=0, maximum=1e-2))
 SOLVER = Table("solver", "solver", "Linear solver settings.", (
     Key("method", _choice(SOLVER_METHODS), "Linear solver.", default="auto"),
     Key("tolerance", _TOLERANCE, "Relative residual tolerance.", default=1e-8),
-    Key("max_iterations", _int_at_least(1), "Iteration cap.", default=2000),
+    Key("max_iterations", _int_between(1, MAX_SOLVER_ITERATIONS),
+        f"Iteration cap, at most {MAX_SOLVER_ITERATIONS}.", default=2000),
     Key("stress_tolerance", _TOLERANCE, "Relative energy-norm (stress) error at which the "
                                         "iteration may stop.", default=1e-4),
     Key("precision", _choice(SOLVER_PRECISIONS), "Precision of the multigrid "
                                                  "preconditioner.", default="single"),
-    Key("direct_limit", _int_at_least(0), "Free unknowns up to which method = \"auto\" "
-                                          "factorises directly (default: the solver's)."),
+    Key("direct_limit", _int_between(0, 10**9), "Free unknowns up to which method = \"auto\" "
+                                               "factorises directly (default: the solver's)."),
 ))
 
-_NAME = Key("name", STRING, "Name, unique among its kind.", computed="the kind and its number, "
-                                                                     "e.g. probe2")
+_NAME = Key("name", Kind(rd.name, {"type": "string", "minLength": 1, "maxLength": rd.MAX_NAME}),
+            f"Name, unique among its kind also once made a file name (characters other than "
+            f"letters, digits, _ . - become _, letter case ignored); 1 to {rd.MAX_NAME} "
+            f"characters.", computed="the kind and its number, e.g. probe2")
 PROBE = Table("probe", "probes", "Points where tensors are reported.", (
     Key("at", POINT, "The point [x, y, z].", required='the point [x, y, z], e.g. [0, 0, "20 nm"]'),
     _NAME,
@@ -310,7 +337,8 @@ CUT = Table("cut", "cuts", "Straight line cuts, written as CSV and plotted.", (
     Key("from", POINT, "Start point [x, y, z].", required="the start point [x, y, z]",
         attr="start"),
     Key("to", POINT, "End point [x, y, z].", required="the end point [x, y, z]", attr="end"),
-    Key("points", _int_at_least(2), "Number of sample points.", default=101),
+    Key("points", _int_between(2, MAX_CUT_POINTS),
+        f"Number of sample points, at most {MAX_CUT_POINTS}.", default=101),
     _NAME,
     Key("components", COMPONENTS, "Components plotted.", default=DEFAULT_CUT_COMPONENTS),
 ), array=True)
@@ -365,17 +393,18 @@ READOUTS = Table("readouts", "readouts", "Settings of the engineering readouts."
 DISLOCATIONS = Table("dislocations", "dislocations", "Families of parallel straight misfit "
                      "dislocations; each gives one of positions, spacing and relaxation.", (
     _NAME,
-    Key("interface", _int_at_least(0), "The lines lie at the bottom of layer[interface].",
+    Key("interface", _int_between(0, rd.MAX_ITEMS),
+        "The lines lie at the bottom of layer[interface].",
         required="the interface index: the lines lie at the bottom of layer[interface]"),
     Key("line", INDICES, "Line direction [uvw] in the crystal axes of the layer above.",
         required="the line direction [u, v, w] (crystal axes of the layer above)"),
     Key("burgers", INDICES, "Direction of the Burgers vector, same axes.",
         required="the Burgers vector direction [u, v, w], e.g. [1, 0, 1] with "
                  "burgers_fraction = 0.5"),
-    Key("burgers_fraction", Kind(rd.positive_number, _number(exclusiveMinimum=0)),
+    Key("burgers_fraction", Kind(rd.positive_number, _number(exclusiveMinimum=0, maximum=1e6)),
         "b = burgers_fraction * a * [uvw].", default=1.0),
     Key("positions", Kind(rd.lengths_list, {"type": "array", "items": _ref("length"),
-                                            "minItems": 1}),
+                                            "minItems": 1, "maxItems": rd.MAX_ITEMS}),
         "Positions of the lines from the pattern centre, normal to the lines."),
     Key("spacing", POSITIVE_LENGTH, "Line spacing of a periodic array."),
     Key("relaxation", Kind(rd.relaxation, _number(exclusiveMinimum=0, maximum=1)),
@@ -441,7 +470,7 @@ def _table_schema(tab: Table) -> dict:
             for shape, allowed in SHAPE_KEYS.items()]
     if tab.array:
         del out["description"]
-        out = {"type": "array", "description": tab.doc, "items": out}
+        out = {"type": "array", "description": tab.doc, "items": out, "maxItems": rd.MAX_ITEMS}
         if tab is LAYER:
             out["minItems"] = 1
     return out

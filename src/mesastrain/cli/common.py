@@ -4,6 +4,8 @@ from __future__ import annotations
 
 import sys
 
+from mesastrain.errors import one_line
+
 #: Some rows failed (``verify``: a check; ``sweep``: a case or a figure).
 EXIT_FAILED = 1
 #: A user error: bad case, bad option, not enough memory; nothing was written.
@@ -13,5 +15,5 @@ EXIT_INTERRUPTED = 130
 
 
 def err(msg: str) -> None:
-    """Print ``mesastrain: error: <msg>`` on stderr (one line)."""
-    print(f"mesastrain: error: {msg}", file=sys.stderr)
+    """Print ``mesastrain: error: <msg>`` on stderr, control characters escaped (one line)."""
+    print(f"mesastrain: error: {one_line(msg)}", file=sys.stderr)

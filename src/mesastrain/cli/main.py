@@ -30,9 +30,17 @@ from mesastrain.errors import MesastrainError
 COMMANDS = (run, check, materials, sweep, raman_stress, verify, view)
 
 
+class _Parser(argparse.ArgumentParser):
+    """argparse with its usage errors in the tool's one-line form (exit status 2)."""
+
+    def error(self, message):
+        err(f"{self.prog}: {message} (see {self.prog} --help)")
+        raise SystemExit(EXIT_USAGE)
+
+
 def build_parser() -> argparse.ArgumentParser:
     """The ``mesastrain`` parser with every command of :data:`COMMANDS`."""
-    p = argparse.ArgumentParser(
+    p = _Parser(
         prog="mesastrain",
         description="Strain and stress in patterned lattice-mismatched film stacks "
                     "(anisotropic linear elasticity, finite elements).")
@@ -60,7 +68,10 @@ def _os_error_line(exc: OSError) -> str:
 def main(argv=None) -> int:
     """Entry point; returns the exit status."""
     parser = build_parser()
-    args = parser.parse_args(argv)
+    try:
+        args = parser.parse_args(argv)
+    except SystemExit as exc:       # --help, --version, or a usage error already printed
+        return exc.code if isinstance(exc.code, int) else EXIT_USAGE
     logging.basicConfig(level=logging.INFO if args.verbose else logging.WARNING,
                         format="%(name)s: %(message)s")
     previous = None

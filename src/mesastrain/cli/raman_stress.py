@@ -7,6 +7,7 @@ only parses the command line and prints the answer.
 from __future__ import annotations
 
 import json
+import math
 
 from mesastrain.errors import CaseError
 from mesastrain.physics.raman import pdp_sets
@@ -17,16 +18,44 @@ def _sign_word(v: float) -> str:
     return "tensile" if v > 0 else ("compressive" if v < 0 else "no stress")
 
 
+#: Largest measured shift accepted, cm^-1. The strain-induced shifts of the lines in the
+#: tables are about 2 to 4 cm^-1 per GPa (Si: about -2 cm^-1 per GPa of biaxial stress,
+#: Anastassakis et al., Phys. Rev. B 41, 7529 (1990)); 100 cm^-1 would mean tens of GPa,
+#: beyond the strength of any of these crystals and beyond linear response.
+MAX_SHIFT = 100.0
+
+
+def _shift(value: float) -> float:
+    if not math.isfinite(value) or abs(value) > MAX_SHIFT:
+        raise CaseError("shift", f"{value!r} cm^-1 is not a usable Raman shift; give a finite "
+                                 f"shift from -{MAX_SHIFT:g} to {MAX_SHIFT:g} cm^-1 (strain "
+                                 f"shifts are a few cm^-1 per GPa)")
+    return value
+
+
+def _fraction(value):
+    if value is not None and not 0.0 <= value <= 1.0:       # also refuses NaN
+        raise CaseError("--x", f"{value!r} is not an alloy fraction; give a number from 0 to 1")
+    return value
+
+
 def _vector(text, option):
     if text is None:
         return None
     try:
-        return [float(v) for v in text.replace(" ", "").split(",")]
+        v = [float(x) for x in text.replace(" ", "").split(",")]
     except ValueError:
         raise CaseError(option, f"expected numbers x,y in the sample frame, got {text!r}") from None
+    norm = math.hypot(*v) if v and all(math.isfinite(x) for x in v) else math.nan
+    if len(v) not in (2, 3) or not 1e-150 <= norm <= 1e150:
+        raise CaseError(option, f"expected a direction x,y (finite numbers, not all zero, of "
+                                f"length 1e-150 to 1e150) in the sample frame, got {text!r}")
+    return v
 
 
 def _run(args) -> int:
+    _shift(args.shift)
+    _fraction(args.x)
     d = implied_stress(args.shift, args.kind, args.material, parse_indices(args.normal, "--normal"),
                        None if args.along is None else parse_indices(args.along, "--along"),
                        args.pdp, args.x, _vector(args.incident, "--incident"),

@@ -12,6 +12,7 @@ import time
 from pathlib import Path
 
 from mesastrain.case.parse import load_case
+from mesastrain.errors import CaseError
 
 
 class Progress:
@@ -62,6 +63,7 @@ def cmd_run(args) -> int:
     """
     from mesastrain.io.destination import claim_output
 
+    check_memory_limit(args.max_memory)
     case = load_case(args.case)
     out = Path(args.out) if args.out is not None else Path(Path(args.case).stem + "-results")
     with claim_output(out, overwrite=args.overwrite, inputs=[args.case]) as dest:
@@ -97,6 +99,18 @@ def _solve_and_write(args, case, dest) -> int:
         print(f"results in {out}/ (summary.json, fields.vtu)")
         print(CAUTION)
     return 0
+
+
+#: Largest --max-memory accepted, GB: no machine has a petabyte of memory.
+MAX_MEMORY_GB = 1.0e6
+
+
+def check_memory_limit(gb) -> None:
+    """Refuse a --max-memory that is not a finite number of GB > 0 (NaN and inf would turn
+    the memory guard off)."""
+    if gb is not None and not 0.0 < gb <= MAX_MEMORY_GB:
+        raise CaseError("--max-memory", f"{gb!r} is not a memory limit; give a number of GB "
+                                        f"> 0 and at most {MAX_MEMORY_GB:g}")
 
 
 def add_command(subparsers) -> None:

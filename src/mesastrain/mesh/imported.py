@@ -25,13 +25,20 @@ other surface free.
 
 from __future__ import annotations
 
+import contextlib
+import io
+
 import numpy as np
 
 from mesastrain.errors import CaseError, MeshError
 from mesastrain.fem.cost import Estimate, estimate_from_counts
 from mesastrain.mesh.grid import GridSpacing
 from mesastrain.mesh.unstructured import UnstructuredMesh, box_boundary
-from mesastrain.units import parse_length
+from mesastrain.units import MAX_LENGTH_NM, parse_length
+
+#: Largest mesh file read, bytes: 2 GB holds some ten million tetrahedra, more than the
+#: machines this runs on can solve.
+MAX_MESH_FILE_BYTES = 2_000_000_000
 
 
 def read_mesh(mesh, scale: float = 1.0):
@@ -64,11 +71,13 @@ def read_mesh(mesh, scale: float = 1.0):
     import meshio
 
     if not isinstance(mesh, meshio.Mesh):
-        try:
-            mesh = meshio.read(str(mesh))
-        except Exception as exc:     # meshio raises many kinds
-            raise MeshError(f"cannot read the mesh file {mesh}: {exc}") from None
-    pts = np.asarray(mesh.points, dtype=float)
+        mesh = _read_file(meshio, mesh)
+    try:
+        pts = np.asarray(mesh.points, dtype=float)
+    except (TypeError, ValueError):
+        raise MeshError("the mesh's point coordinates are not numbers") from None
+    if pts.ndim != 2 or pts.shape[1] not in (2, 3):
+        raise MeshError(f"the mesh's points have shape {pts.shape}; expected (n, 3)")
     if pts.shape[1] == 2:
         raise MeshError("the mesh is two-dimensional; give a 3-D volume mesh (tetrahedra)")
     blocks = [(k, b) for k, b in enumerate(mesh.cells)
@@ -88,6 +97,124 @@ def read_mesh(mesh, scale: float = 1.0):
         except (IndexError, ValueError):
             continue
     return pts * scale, cells, kind, data, dict(mesh.field_data)
+
+
+def _read_file(meshio, path):
+    """``meshio.read`` with every way it can fail (some of its readers call ``sys.exit``)
+    turned into one MeshError line."""
+    from pathlib import Path
+
+    path = Path(path)
+    try:
+        size = path.stat().st_size
+    except OSError as exc:
+        raise MeshError(f"cannot read the mesh file {path} ({exc.strerror or exc})") from None
+    if not path.is_file():
+        raise MeshError(f"{path} is not a regular file")
+    if size > MAX_MESH_FILE_BYTES:
+        raise MeshError(f"the mesh file {path} is {size / 1e9:.1f} GB; at most "
+                        f"{MAX_MESH_FILE_BYTES / 1e9:g} GB")
+    try:
+        # meshio prints warnings on stderr and some readers sys.exit(1): keep one line
+        with contextlib.redirect_stderr(io.StringIO()), contextlib.redirect_stdout(io.StringIO()):
+            mesh = meshio.read(str(path))
+    except (KeyboardInterrupt, MemoryError):
+        raise
+    except BaseException as exc:    # SystemExit from meshio's readers, any parse error
+        what = " ".join(str(exc).split()) if not isinstance(exc, SystemExit) else ""
+        what = f" ({type(exc).__name__}: {what[:200]})" if what else ""
+        raise MeshError(f"cannot read the mesh file {path}: not a mesh meshio can parse "
+                        f"(format from the extension {path.suffix or 'none'}){what}") from None
+    if len(mesh.points) == 0:
+        raise MeshError(f"cannot read the mesh file {path}: it holds no points")
+    return mesh
+
+
+def check_geometry(points: np.ndarray, cells: np.ndarray) -> None:
+    """Refuse what cannot be solved: bad node numbers, non-finite or absurd coordinates,
+    flat cells, and pieces that are not joined to the rest through faces.
+
+    Parameters
+    ----------
+    points : ndarray (n, 3)
+        Coordinates in nm.
+    cells : ndarray (m, 4)
+        Tetrahedra (corner nodes).
+
+    Raises
+    ------
+    MeshError
+        One line saying what is wrong and how much of the mesh it concerns.
+    """
+    if cells.size == 0:
+        raise MeshError("the mesh has no volume cells")
+    if not np.issubdtype(cells.dtype, np.integer) or cells.min() < 0 or \
+            cells.max() >= len(points):
+        raise MeshError(f"cells refer to nodes that do not exist (the file has {len(points)} "
+                        f"points)")
+    used = np.unique(cells)
+    p = points[used]
+    bad = ~np.all(np.isfinite(p), axis=1)
+    if np.any(bad):
+        raise MeshError(f"{int(bad.sum())} node(s) have NaN or infinite coordinates (first: "
+                        f"node {int(used[np.flatnonzero(bad)[0]])}); fix the mesh file")
+    if np.max(np.abs(p)) > MAX_LENGTH_NM:
+        raise MeshError(f"coordinates reach {np.max(np.abs(p)):.3g} nm, more than any wafer "
+                        f"(at most {MAX_LENGTH_NM:.0e} nm); check pattern.unit")
+    if cells.shape[1] == 4:
+        v = points[cells]
+        vol = np.einsum("ij,ij->i", np.cross(v[:, 1] - v[:, 0], v[:, 2] - v[:, 0]),
+                        v[:, 3] - v[:, 0])
+        span = float(np.max(np.ptp(p, axis=0)))
+        flat = np.abs(vol) <= 1e-15 * span ** 3
+        if np.any(flat):
+            raise MeshError(f"{int(flat.sum())} tetrahedra have no volume (first: cell "
+                            f"{int(np.flatnonzero(flat)[0])}); fix the mesh file")
+    n_pieces, label = face_connected_pieces(cells)
+    if n_pieces > 1:
+        sizes = np.bincount(label)
+        raise MeshError(f"the mesh falls apart into {n_pieces} pieces not joined through faces "
+                        f"(cells per piece: {', '.join(str(int(n)) for n in sizes[:5])}"
+                        f"{', ...' if n_pieces > 5 else ''}); a piece not joined to the held "
+                        f"body would move freely. Join or remove it")
+
+
+def face_connected_pieces(cells: np.ndarray) -> tuple[int, np.ndarray]:
+    """Pieces of a tetrahedral (or hexahedral) mesh whose cells share whole faces.
+
+    Two cells that touch only at a node or an edge can turn about it, so they
+    count as separate pieces.
+
+    Parameters
+    ----------
+    cells : ndarray (m, 4) or (m, 8)
+
+    Returns
+    -------
+    n : int
+        Number of pieces.
+    label : ndarray (m,)
+        The piece of each cell.
+    """
+    from scipy.sparse import coo_matrix
+    from scipy.sparse.csgraph import connected_components
+
+    m = len(cells)
+    if cells.shape[1] == 4:
+        local = np.array([[0, 1, 2], [0, 1, 3], [0, 2, 3], [1, 2, 3]])
+    else:       # VTK hexahedron faces
+        local = np.array([[0, 1, 2, 3], [4, 5, 6, 7], [0, 1, 5, 4], [1, 2, 6, 5],
+                          [2, 3, 7, 6], [3, 0, 4, 7]])
+    faces = np.sort(cells[:, local], axis=2).reshape(-1, local.shape[1])
+    owner = np.repeat(np.arange(m), len(local))
+    _, face_id = np.unique(faces, axis=0, return_inverse=True)
+    face_id = face_id.ravel()
+    order = np.argsort(face_id, kind="stable")
+    fid, own = face_id[order], owner[order]
+    same = fid[1:] == fid[:-1]
+    a, b = own[:-1][same], own[1:][same]
+    graph = coo_matrix((np.ones(a.size), (a, b)), shape=(m, m))
+    return connected_components(graph, directed=False)
 
 
 def skfem_mesh(points: np.ndarray, cells: np.ndarray, kind: str):
@@ -122,6 +249,7 @@ def _group_regions(case, cell_data: dict, field_data: dict) -> np.ndarray:
                                         "such as gmsh:physical); tag its volumes")
     named = {n: int(v[0]) for n, v in field_data.items() if len(v) >= 2 and int(v[1]) == 3}
     region = np.full(tags.shape, -1, dtype=np.int64)
+    mapped_by = {}
     for name, reg in mapping.items():
         if name in named:
             tag = named[name]
@@ -136,6 +264,11 @@ def _group_regions(case, cell_data: dict, field_data: dict) -> np.ndarray:
         if not np.any(hit):
             raise CaseError(f"pattern.groups.{name}", f"physical group {name} (tag {tag}) has "
                                                       f"no volume cells in the mesh")
+        if tag in mapped_by:
+            raise CaseError(f"pattern.groups.{name}", f"names tag {tag}, already mapped by "
+                                                      f"pattern.groups.{mapped_by[tag]}; map "
+                                                      f"each physical group once")
+        mapped_by[tag] = name
         region[hit] = reg
     if np.any(region < 0):
         left = sorted(set(tags[region < 0].tolist()))
@@ -167,14 +300,7 @@ def case_mesh_from_file(case) -> UnstructuredMesh:
         outside the mesh.
     """
     pat = case.pattern
-    scale = parse_length(f"1 {pat.unit or 'nm'}", "pattern.unit")
-    try:
-        pts, cells, kind, data, fdata = read_mesh(pat.file, scale)
-    except MeshError as exc:
-        raise CaseError("pattern.file", str(exc)) from None
-    if kind != "tetra":
-        raise CaseError("pattern.file", "the mesh holds hexahedra; imported meshes must be "
-                                        "tetrahedral (tetra or tetra10)")
+    pts, cells, kind, data, fdata = _checked_file(case)
     region = _group_regions(case, data, fdata)
     skm = skfem_mesh(pts, cells, kind)
     um = UnstructuredMesh(mesh=skm, region=region.astype(np.int32), kind="file",
@@ -194,6 +320,21 @@ def case_mesh_from_file(case) -> UnstructuredMesh:
     return um
 
 
+def _checked_file(case):
+    """Read the case's mesh file (scaled to nm) and check it; errors name ``pattern.file``."""
+    pat = case.pattern
+    scale = parse_length(f"1 {pat.unit or 'nm'}", "pattern.unit")
+    try:
+        pts, cells, kind, data, fdata = read_mesh(pat.file, scale)
+        if kind != "tetra":
+            raise MeshError("the mesh holds hexahedra; imported meshes must be tetrahedral "
+                            "(tetra or tetra10)")
+        check_geometry(pts, cells)
+    except MeshError as exc:
+        raise CaseError("pattern.file", str(exc)) from None
+    return pts, cells, kind, data, fdata
+
+
 def handles(pattern) -> bool:
     """``shape = "mesh"``: the case brings its own mesh file."""
     return pattern.shape == "mesh"
@@ -205,11 +346,10 @@ def build_file_mesh(case, mirrors=()) -> UnstructuredMesh:
 
 
 def estimate_file(case) -> Estimate:
-    """Counts of an imported mesh (the file is read; no finite elements are built)."""
-    try:
-        pts, cells, kind, _, _ = read_mesh(case.pattern.file)
-    except MeshError as exc:
-        raise CaseError("pattern.file", str(exc)) from None
+    """Counts of an imported mesh (the file is read and checked as for a run; no finite
+    elements are built)."""
+    pts, cells, kind, data, fdata = _checked_file(case)
+    _group_regions(case, data, fdata)
     nodes = int(np.unique(cells).size)
     if case.mesh.order == 2:
         pairs = np.concatenate([cells[:, [a, b]] for a, b in

@@ -327,6 +327,8 @@ class _Gmsh:
 def _outline_surface(occ, outline: Outline, z: float) -> int:
     """A plane surface of the outline at height z; returns its tag."""
     if outline.kind == "rectangle":
+        if outline.radius > 0 and outline.radius >= min(outline.hx, outline.hy) * (1 - 1e-9):
+            return _stadium_surface(occ, outline.hx, outline.hy, z)
         return occ.addRectangle(-outline.hx, -outline.hy, z, 2 * outline.hx, 2 * outline.hy,
                                 roundedRadius=outline.radius if outline.radius > 0 else 0.0)
     if outline.kind == "disk":
@@ -336,6 +338,34 @@ def _outline_surface(occ, outline: Outline, z: float) -> int:
     lines = [occ.addLine(pts[k], pts[(k + 1) % len(pts)]) for k in range(len(pts))]
     loop = occ.addCurveLoop(lines)
     return occ.addPlaneSurface([loop])
+
+
+def _stadium_surface(occ, hx: float, hy: float, z: float) -> int:
+    """A rectangle rounded by half its shorter side: a stadium, or a disk when square.
+
+    OpenCASCADE's rounded rectangle fails when the radius is exactly half a side
+    (the straight edges between the arcs vanish), the largest radius the case
+    allows; the stadium is built from its two straight edges and four quarter
+    arcs (arcs of less than a half turn, as OpenCASCADE needs).
+    """
+    r = min(hx, hy)
+    if abs(hx - hy) <= 1e-9 * max(hx, hy):
+        return occ.addDisk(0.0, 0.0, z, r, r)
+    along_x = hx > hy
+    c = (hx if along_x else hy) - r          # centres of the end half-disks at +-c
+
+    def pt(u, v):       # (along the long side, across it) -> a point
+        return occ.addPoint(u, v, z) if along_x else occ.addPoint(-v, u, z)
+
+    centre_hi, centre_lo = pt(c, 0.0), pt(-c, 0.0)
+    p = [pt(-c, -r), pt(c, -r), pt(c + r, 0.0), pt(c, r), pt(-c, r), pt(-c - r, 0.0)]
+    curves = [occ.addLine(p[0], p[1]),
+              occ.addCircleArc(p[1], centre_hi, p[2]), occ.addCircleArc(p[2], centre_hi, p[3]),
+              occ.addLine(p[3], p[4]),
+              occ.addCircleArc(p[4], centre_lo, p[5]), occ.addCircleArc(p[5], centre_lo, p[0])]
+    surface = occ.addPlaneSurface([occ.addCurveLoop(curves)])
+    occ.remove([(0, centre_hi), (0, centre_lo)])
+    return surface
 
 
 def _feature_solid(gmsh, spec: ShapeSpec) -> int:

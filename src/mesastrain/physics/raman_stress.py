@@ -48,8 +48,9 @@ def parse_indices(text: str, option: str) -> tuple:
     except ValueError:
         raise CaseError(option, f"expected three integers separated by commas, e.g. 0,0,1, got "
                                 f"{text!r}") from None
-    if len(vals) != 3 or not any(vals):
-        raise CaseError(option, f"expected three integers, not all zero, e.g. 0,0,1, got "
+    if len(vals) != 3 or not any(vals) or max(abs(v) for v in vals) > 999:
+        raise CaseError(option, f"expected three integers from -999 to 999 (the bound of "
+                                f"case-file Miller indices), not all zero, e.g. 0,0,1, got "
                                 f"{text!r}")
     return vals
 

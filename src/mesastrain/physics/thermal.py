@@ -43,6 +43,8 @@ from mesastrain.errors import MaterialError, MesastrainError
 
 __all__ = [
     "ExpansionFit",
+    "MELTING_POINT_K",
+    "melting_point",
     "expansion_fit",
     "fitted_materials",
     "expansion_coefficient",
@@ -112,6 +114,38 @@ _FITS = {
         source="Okada & Tokumaru, J. Appl. Phys. 56, 314 (1984)",
         alpha=_okada_alpha, integral=_okada_integral),
 }
+
+
+#: Melting points at atmospheric pressure, K, of the built-in compounds, used only as a sanity
+#: bound on the case's temperatures (a crystal above its melting point has no elastic
+#: constants). Recalled from memory of the CRC Handbook of Chemistry and Physics and
+#: Madelung, Semiconductors: Data Handbook (2004); the nitrides, which decompose before they
+#: melt at 1 atm, are given their melting points under nitrogen pressure (GaN: Utsumi et al.,
+#: Nature Materials 2, 735 (2003), about 2500 K; AlN and InN recalled, rounded down).
+MELTING_POINT_K = {
+    "Si": 1687.0, "Ge": 1211.0, "GaAs": 1511.0, "AlAs": 2013.0, "InAs": 1215.0,
+    "InP": 1335.0, "GaP": 1730.0, "GaN": 2500.0, "AlN": 3000.0, "InN": 1373.0,
+}
+
+
+def melting_point(material) -> float | None:
+    """Melting point of a material, K: an alloy takes its lower member's (a safe bound).
+
+    Parameters
+    ----------
+    material : Material
+        As :func:`mesastrain.physics.materials.get_material` returns it.
+
+    Returns
+    -------
+    float or None
+        None for a material without a tabulated melting point.
+    """
+    names = tuple(material.members) or (material.name,)
+    points = [MELTING_POINT_K.get(n) for n in names]
+    if any(p is None for p in points):
+        return None
+    return min(points)
 
 
 def fitted_materials() -> list[str]:

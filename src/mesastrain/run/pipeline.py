@@ -90,7 +90,7 @@ def run_case(case: Case, progress=None, max_memory_gb: float | None = None,
     timings = {}
     est = estimate(case)
     limit = max_memory_gb if max_memory_gb is not None else available_memory_gb()
-    if est.memory_gb > limit:
+    if not est.memory_gb <= limit:      # a NaN limit or estimate refuses too
         raise ResourceError(
             f"mesh: the case needs about {est.memory_gb:.1f} GB ({est.unknowns:,} unknowns) but "
             f"{limit:.1f} GB are allowed; raise mesh.size / mesh.edge_size or use mesh.order = 1")

@@ -49,6 +49,13 @@ def film_volume(sm):
     ({"shape": "disk", "diameter": 200, "etch_depth": 30, "sidewall_angle": 60}, None),
     ({"shape": "rectangle", "width": 200, "length": 120, "corner_radius": 30,
       "etch_depth": 30}, (200 * 120 - (4 - np.pi) * 30 ** 2) * H),
+    # corner_radius at its largest, half the shorter side: a stadium, a disk (issue #14)
+    ({"shape": "rectangle", "width": 200, "length": 120, "corner_radius": 60,
+      "etch_depth": 30}, (200 * 120 - (4 - np.pi) * 60 ** 2) * H),
+    ({"shape": "rectangle", "width": 120, "length": 200, "corner_radius": 60,
+      "etch_depth": 30}, (200 * 120 - (4 - np.pi) * 60 ** 2) * H),
+    ({"shape": "rectangle", "width": 200, "corner_radius": 100, "etch_depth": 30},
+     np.pi * 100 ** 2 * H),
     ({"shape": "polygon", "vertices": [[-100, -60], [100, -60], [100, 0], [0, 0], [0, 60],
                                        [-100, 60]], "etch_depth": 30},
      (200 * 120 - 100 * 60) * H),
@@ -67,6 +74,18 @@ def test_meshed_film_volume(pattern, exact):
     # the size estimate without meshing is within a factor 1.5 of the real count
     est = estimate_shape(case)
     assert 1 / 1.5 < est.elements / sm.nelems < 1.5
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("length, angle", [(120, 75), (200, 75), (120, 100)])
+def test_largest_corner_radius_meshes_tapered_and_mirrored(length, angle):
+    """r = half the shorter side with a sloped sidewall, whole and as a quarter."""
+    case = case_of({"shape": "rectangle", "width": 200, "length": length,
+                    "corner_radius": min(200, length) / 2, "etch_depth": 30,
+                    "sidewall_angle": angle})
+    full = build_shape_mesh(case, ())
+    quarter = build_shape_mesh(case, (0, 1))
+    assert film_volume(quarter) == pytest.approx(film_volume(full) / 4, rel=0.01)
 
 
 def test_quarter_of_a_disk_is_a_quarter():

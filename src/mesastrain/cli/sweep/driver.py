@@ -29,7 +29,7 @@ from mesastrain.cli.sweep.store import (
     store_case,
 )
 from mesastrain.cli.sweep.tables import collect_figures, write_outputs, write_table
-from mesastrain.cli.sweep.worker import dask_client, one_line, solve_case
+from mesastrain.cli.sweep.worker import check_scheduler, dask_client, one_line, solve_case
 from mesastrain.errors import CaseError
 
 
@@ -108,6 +108,11 @@ class _Progress:
             self._width = 0
 
 
+#: Most worker processes of the embedded cluster: each holds a whole solve in memory, and
+#: no machine this runs on has more cores than that.
+MAX_WORKERS = 256
+
+
 def run_sweep(sweep: Sweep, out, scheduler: str | None = None, workers: int | None = None,
               progress: bool = True, wait: float = 60.0, stream=None) -> dict:
     """Run (or resume) a sweep into a folder.
@@ -157,8 +162,13 @@ def run_sweep(sweep: Sweep, out, scheduler: str | None = None, workers: int | No
     if scheduler and workers:
         raise CaseError("--workers", "only for the embedded cluster; the scheduler at "
                                      f"{scheduler} has its own workers")
-    if workers is not None and workers < 1:
-        raise CaseError("--workers", f"expected an integer >= 1, got {workers}")
+    if workers is not None and not 1 <= workers <= MAX_WORKERS:
+        raise CaseError("--workers", f"expected an integer >= 1 and <= {MAX_WORKERS}, got "
+                                     f"{workers}")
+    if not 0 < wait <= 86400:           # also refuses NaN
+        raise CaseError("--wait", f"expected seconds > 0 and at most 86400 (a day), got {wait}")
+    if scheduler:                       # before anything is created
+        scheduler = check_scheduler(scheduler, wait)
     out = prepare_out(Path(out))
     cases_dir = out / CASES_DIR
     cases = expand(sweep)

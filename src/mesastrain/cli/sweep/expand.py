@@ -14,7 +14,7 @@ from mesastrain.case.parse import parse_case
 from mesastrain.case.types import Case
 from mesastrain.cli.sweep.spec import KEY_UNITS, Sweep, parse_path, set_path
 from mesastrain.errors import CaseError
-from mesastrain.units import is_number, parse_length, parse_temperature, show_value
+from mesastrain.units import finite_float, is_number, parse_length, parse_temperature, show_value
 
 #: Bumped when the hashed content changes meaning, so old folders are not reused.
 HASH_SCHEME = 1
@@ -70,7 +70,7 @@ _MISSING = object()
 def _params_label(params) -> str:
     parts = []
     for key, v in params:
-        if is_number(v):
+        if is_number(v) and finite_float(v) is not None:
             unit = KEY_UNITS.get([s for s in parse_path(key, key) if isinstance(s, str)][-1], "")
             text = f"{v:.6g}" + (f" {unit}" if unit not in ("", "1") else "")
         else:

@@ -40,17 +40,21 @@ from __future__ import annotations
 import copy
 import math
 import re
-import tomllib
 from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
 
-from mesastrain.case.parse import parse_case
+from mesastrain.case.parse import parse_case, read_toml
 from mesastrain.errors import CaseError
-from mesastrain.units import is_number, parse_length, parse_temperature, show_value
+from mesastrain.units import finite_float, is_number, parse_length, parse_temperature, show_value
 
 _SWEEP_KEYS = ("title", "base", "combine", "set", "vary", "collect")
+#: Most values of one [[vary]] axis, and most cases of a sweep: 10000 cases of even a
+#: one-second solve take hours on a workstation; a larger study is several sweeps.
+MAX_VALUES = 10000
+MAX_CASES = 10000
+
 _VARY_KEYS = ("key", "values", "from", "to", "count", "step", "spacing")
 _COLLECT_KEYS = ("figures", "units")
 COMBINE_MODES = ("grid", "zip")
@@ -220,23 +224,14 @@ class Sweep:
 
 
 def _read_toml(path, key: str, what: str) -> dict:
-    p = Path(path)
+    """:func:`mesastrain.case.parse.read_toml` (regular file, size, nesting), errors under
+    ``key`` with the path in the message."""
     try:
-        raw = p.read_bytes()
-    except FileNotFoundError:
-        raise CaseError(key, f"{path}: no such {what}") from None
-    except IsADirectoryError:
-        raise CaseError(key, f"{path}: is a directory, not a {what}") from None
-    except OSError as err:
-        raise CaseError(key, f"{path}: cannot be read ({err.strerror or err})") from None
-    try:
-        text = raw.decode("utf-8-sig")
-    except UnicodeDecodeError:
-        raise CaseError(key, f"{path}: not UTF-8 text; save the {what} as UTF-8") from None
-    try:
-        return tomllib.loads(text)
-    except tomllib.TOMLDecodeError as err:
-        raise CaseError(key, f"{path}: TOML syntax error: {' '.join(str(err).split())}") from None
+        return read_toml(path, what)
+    except CaseError as err:
+        where = f"{err.key}: " if err.key and key else ""
+        what_went = f"no such {what}" if err.message == "no such file" else err.message
+        raise CaseError(key or err.key, f"{path}: {where}{what_went}") from None
 
 
 def load_sweep(path) -> Sweep:
@@ -369,6 +364,12 @@ def parse_sweep(data: dict, source: str | None = None, base_dir: Path | None = N
                 raise CaseError(ax.where, f"{len(ax.values)} values but vary[0] has {n0}; "
                                           f"combine = \"zip\" takes the i-th values together, "
                                           f"so every [[vary]] needs the same count")
+    else:
+        total = math.prod(len(ax.values) for ax in axes)
+        if total > MAX_CASES:
+            raise CaseError("vary", f"the grid of {' x '.join(str(len(a.values)) for a in axes)} "
+                                    f"values is {total} cases; at most {MAX_CASES} (split the "
+                                    f"study, or combine = \"zip\")")
 
     # figures
     collect = data.get("collect", {})
@@ -403,9 +404,12 @@ def parse_sweep(data: dict, source: str | None = None, base_dir: Path | None = N
 def _range_number(value, key: str):
     """A range end: (float, kind) with kind None (plain), "length" (nm) or "temperature" (K)."""
     if is_number(value):
-        if not math.isfinite(value):
-            raise CaseError(key, f"expected a finite number, got {show_value(value)}")
-        return float(value), None
+        v = finite_float(value)
+        if v is None:
+            shown = (show_value(value) if not isinstance(value, int)
+                     else f"an integer of {len(str(abs(value)))} digits")
+            raise CaseError(key, f"expected a finite number, got {shown}")
+        return v, None
     if isinstance(value, str):
         try:
             return parse_length(value, key), "length"
@@ -448,6 +452,8 @@ def _axis(t: dict, where: str) -> Axis:
         if not isinstance(values, list) or not values:
             raise CaseError(f"{where}.values", f"expected a non-empty list of values, got "
                                                f"{show_value(values)}")
+        if len(values) > MAX_VALUES:
+            raise CaseError(f"{where}.values", f"{len(values)} values; at most {MAX_VALUES}")
         return Axis(key, tuple(values), where)
     if not has_range:
         raise CaseError(f"{where}.values", "required key is missing; give values = [...] or a "
@@ -471,8 +477,11 @@ def _axis(t: dict, where: str) -> Axis:
                                           "included) or step (linear spacing)")
     if "count" in t:
         n = t["count"]
-        if not isinstance(n, int) or isinstance(n, bool) or n < 1:
-            raise CaseError(f"{where}.count", f"expected an integer >= 1, got {show_value(n)}")
+        if not isinstance(n, int) or isinstance(n, bool) or not 1 <= n <= MAX_VALUES:
+            shown = (show_value(n) if not isinstance(n, int) or abs(n) < 10**12
+                     else f"an integer of {len(str(abs(n)))} digits")
+            raise CaseError(f"{where}.count", f"expected an integer >= 1, at most {MAX_VALUES}, "
+                                              f"got {shown}")
         if n == 1 and a != b:
             raise CaseError(f"{where}.count", "count = 1 needs from = to; give count >= 2")
         if spacing == "log":
@@ -501,8 +510,8 @@ def _axis(t: dict, where: str) -> Axis:
             raise CaseError(f"{where}.step", f"must be > 0, got {show_value(t['step'])}")
         span = abs(b - a)
         n = int(math.floor(span / step * (1 + 1e-12) + 1e-9)) + 1
-        if n > 100000:
-            raise CaseError(f"{where}.step", f"gives {n} values; at most 100000")
+        if n > MAX_VALUES:
+            raise CaseError(f"{where}.step", f"gives {n} values; at most {MAX_VALUES}")
         vals = a + math.copysign(step, b - a if b != a else 1.0) * np.arange(n)
     if kind_a == "temperature":
         values = tuple(f"{_clean(v)!r} K" for v in vals)

@@ -14,6 +14,7 @@ Dask (``distributed``) is imported only when a sweep runs.
 from __future__ import annotations
 
 import os
+import re
 import socket
 import tempfile
 import time
@@ -118,6 +119,38 @@ def _default_workers() -> int:
         return max(1, os.cpu_count() or 1)
 
 
+_ADDRESS = re.compile(r"^(?:(?P<scheme>[A-Za-z][A-Za-z0-9+.-]*)://)?"
+                      r"(?P<host>\[[0-9A-Fa-f:.]+\]|[A-Za-z0-9._-]+):(?P<port>\d{1,5})$")
+
+
+def check_scheduler(scheduler: str, wait: float) -> str:
+    """Check a ``--scheduler`` address and that something listens there, before anything is
+    created; returns the address with its scheme (``tcp://host:port``).
+
+    Raises
+    ------
+    CaseError
+        Naming ``--scheduler``: not ``[tcp://|tls://]host:port`` with a port from 1 to
+        65535, or nothing accepts a connection there within ``wait`` seconds.
+    """
+    m = _ADDRESS.match(scheduler.strip())
+    if m is None or m["scheme"] not in (None, "tcp", "tls") or not 0 < int(m["port"]) < 65536:
+        raise CaseError("--scheduler", f"{scheduler!r} is not a Dask scheduler address; give "
+                                       f"tcp://HOST:PORT (PORT 1 to 65535), e.g. "
+                                       f"tcp://10.0.0.5:8786")
+    host = m["host"].strip("[]")
+    address = f"{m['scheme'] or 'tcp'}://{m['host']}:{int(m['port'])}"
+    try:
+        with socket.create_connection((host, int(m["port"])), timeout=max(wait, 0.1)):
+            pass
+    except (OSError, ValueError) as exc:
+        raise CaseError("--scheduler", f"cannot reach a Dask scheduler at {address} within "
+                                       f"{wait:g} s ({one_line(exc)}); start one with "
+                                       f"`dask scheduler` and give the address it prints"
+                        ) from None
+    return address
+
+
 @contextmanager
 def dask_client(scheduler: str | None, workers: int | None, wait: float, say):
     """A Dask client: on an existing scheduler, or on an embedded LocalCluster."""
@@ -148,7 +181,7 @@ def _client_on(scheduler, workers, wait, say):
         address = scheduler if "://" in scheduler else f"tcp://{scheduler}"
         try:
             client = Client(address, timeout=f"{wait}s", set_as_default=False)
-        except (OSError, TimeoutError) as exc:
+        except Exception as exc:            # unreachable, refused, not a Dask scheduler
             raise CaseError("--scheduler", f"cannot reach a Dask scheduler at {address} within "
                                            f"{wait:g} s ({one_line(exc)}); start one with "
                                            f"`dask scheduler` and give the address it prints"
