@@ -129,6 +129,9 @@ class CrossChecks:
         for i, t in enumerate(self.layers):
             if t["normal"] is not None:
                 continue
+            if t["system"] == "isotropic":      # any frame will do; (001)[100] is always valid
+                t["normal"], t["x_axis"] = (0, 0, 1), (1, 0, 0)
+                continue
             if t["system"] != s["system"]:
                 raise CaseError(f"layer[{i}].normal",
                                 f"required key is missing; {t['label']} is {t['system']} but "

@@ -44,6 +44,7 @@ first failing check raises.
 from __future__ import annotations
 
 import os
+import re
 import stat
 import tomllib
 from pathlib import Path
@@ -52,6 +53,7 @@ from mesastrain.case import readers as rd
 from mesastrain.case.checks import CrossChecks
 from mesastrain.case.keys import read_table
 from mesastrain.case.schema import (
+    MATERIAL,
     PATTERN,
     SHAPE_KEYS,
     SHAPE_REQUIRES,
@@ -60,10 +62,17 @@ from mesastrain.case.schema import (
     default_order,
     table,
 )
-from mesastrain.case.types import TABLE_TYPES, Case
+from mesastrain.case.types import TABLE_TYPES, Case, UserMaterial
 from mesastrain.errors import CaseError, MaterialError, OrientationError
-from mesastrain.physics.crystal import direction_vector, miscut_rotation, plane_normal, sample_frame
-from mesastrain.physics.materials import get_material, is_alloy
+from mesastrain.physics.crystal import (
+    INDEX_SYSTEMS,
+    direction_vector,
+    miscut_rotation,
+    plane_normal,
+    sample_frame,
+)
+from mesastrain.physics.elastic import STIFFNESS_KEYS
+from mesastrain.physics.materials import builtin_materials, get_material, is_alloy
 from mesastrain.units import safe_name, show_value
 
 __all__ = ["MAX_FILE_BYTES", "MAX_NESTING", "check_nesting", "load_case", "parse_case",
@@ -242,6 +251,32 @@ def _build(name: str, t: dict):
     return TABLE_TYPES[name](**{k.field: t.get(k.name, k.default) for k in tab.keys})
 
 
+def _material_error(key: str, table: dict, message: str) -> CaseError:
+    """A MaterialError of ``material.NAME`` as a CaseError naming the offending key.
+
+    The physics messages start with ``material.NAME.KEY`` or ``material.NAME:``; for a
+    stiffness that is not positive definite the key is the last constant the failing
+    condition names (``need C44 > 0 ... (C44 = -1)``).
+    """
+    m = re.match(re.escape(key) + r"(\.\w+)?:?\s*(.*)", message)
+    if m is None:
+        return CaseError(key, message)
+    sub, text = m.group(1), m.group(2)
+    if sub:
+        return CaseError(key + sub, text)
+    system = table.get("system")
+    names = STIFFNESS_KEYS.get(system, ())
+    missing = re.search(r"missing (\w+)", text)
+    named = re.findall(r"\b(" + "|".join(map(re.escape, names)) + r") = ", text) if names else []
+    if missing and missing.group(1) in names:
+        return CaseError(f"{key}.{missing.group(1)}", text)
+    if named:
+        return CaseError(f"{key}.{named[-1]}", text)
+    if system == "anisotropic" and "stiffness" in text:
+        return CaseError(f"{key}.C", text)
+    return CaseError(key, text)
+
+
 # --------------------------------------------------------------------------
 # the parser
 # --------------------------------------------------------------------------
@@ -250,6 +285,7 @@ class _Parser:
 
     def __init__(self, source: str | None):
         self.source = source
+        self.materials = {}
 
     # ---- phase 1: each top-level key on its own, in file order -----------
     def run(self, data) -> Case:
@@ -259,10 +295,19 @@ class _Parser:
         special = {TITLE.name: TITLE.kind.read, "substrate": self._substrate,
                    "layer": self._layers, "pattern": self._pattern, "cut": self._cuts,
                    "dislocations": self._dislocations}
-        got = {}
-        for name, value in data.items():
+        for name in data:
             if name not in TOP_KEYS:
                 raise rd.unknown_key(name, name, TOP_KEYS)
+        # the case's own materials first: layers and substrate may name them anywhere
+        self.materials = self._materials(data.get(MATERIAL.name, {}), MATERIAL.name)
+        with rd.user_materials(self.materials):
+            return self._run(data, special)
+
+    def _run(self, data: dict, special: dict) -> Case:
+        got = {}
+        for name, value in data.items():
+            if name == MATERIAL.name:
+                continue
             if name in special:
                 got[name] = special[name](value, name)
             elif table(name).named:
@@ -284,6 +329,7 @@ class _Parser:
         if pattern["shape"] not in ("none", "mesh"):
             pattern.setdefault("etch_depth", checks.stack())
         mesh.setdefault("order", default_order(pattern))
+        self._thermal_history(got)
         cross = {"layer": checks.layer_orientations, "pattern": checks.pattern_fits,
                  "mesh": checks.mesh_fits,
                  "thermal": lambda: checks.temperatures(got["thermal"]),
@@ -312,13 +358,68 @@ class _Parser:
                 parts[tab.attr] = _build(name, got[name])
             else:
                 parts[tab.attr] = None if name == "thermal" else _build(name, {})
-        return Case(title=title, source=self.source, **parts)
+        return Case(title=title, source=self.source, materials=tuple(self.materials.values()),
+                    **parts)
+
+    # ---- the case's own materials ----------------------------------------
+    @staticmethod
+    def _materials(value, key: str) -> dict:
+        """``[material.NAME]`` tables -> {NAME: UserMaterial}, each checked in full."""
+        if not isinstance(value, dict):
+            raise CaseError(key, f"expected tables written as [material.NAME], got "
+                                 f"{show_value(value)}")
+        out = {}
+        builtin = set(builtin_materials())
+        for name, t in value.items():
+            mk = f"{key}.{name}"
+            if not isinstance(t, dict):
+                raise CaseError(mk, f"expected a table [material.{name}] of constants, got "
+                                    f"{show_value(t)}")
+            for k in t:
+                if k not in MATERIAL.names:
+                    raise rd.unknown_key(f"{mk}.{k}", k, MATERIAL.names)
+            flag = t.get("replace_builtin", False)
+            rd.boolean(flag, f"{mk}.replace_builtin")
+            if (name in builtin or is_alloy(name)) and not flag:
+                raise CaseError(mk, f"shadows the built-in material {name!r}; choose another "
+                                    f"name, or set replace_builtin = true if the replacement "
+                                    f"is meant")
+            um = UserMaterial.from_table(name, t)
+            try:
+                um.material()
+            except MaterialError as err:
+                raise _material_error(mk, t, str(err)) from None
+            out[name] = um
+        return out
+
+    def _thermal_history(self, got: dict) -> None:
+        """Per-layer deposition temperatures against [thermal]; growth_temperature when needed."""
+        thermal = got.get("thermal")
+        layers = got["layer"]
+        for i, t in enumerate(layers):
+            if "deposition_temperature" in t and thermal is None:
+                raise CaseError(f"layer[{i}].deposition_temperature",
+                                'needs a [thermal] table with final_temperature, e.g. '
+                                'final_temperature = "20 C"')
+        if thermal is not None and "growth_temperature" not in thermal:
+            lacking = [i for i, t in enumerate(layers) if "deposition_temperature" not in t]
+            if lacking:
+                raise rd.missing("thermal.growth_temperature",
+                                 f'the growth temperature (layer[{lacking[0]}] has no '
+                                 f'deposition_temperature of its own), e.g. '
+                                 f'growth_temperature = "700 C"')
 
     # ---- materials and orientation shared by substrate and layers -------
-    @staticmethod
-    def _resolve_material(t: dict, key: str) -> dict:
-        """Check x against the material; return canonical name, crystal system and c/a."""
+    def _resolve_material(self, t: dict, key: str) -> dict:
+        """Check x against the material; return canonical name, index system, c/a, lattice."""
         name, x = t["material"], t.get("x")
+        if name in self.materials:
+            if x is not None:
+                raise CaseError(f"{key}.x", f"{name} is not an alloy: do not give x")
+            mat = self.materials[name].material()
+            return {"material": name, "system": INDEX_SYSTEMS[mat.system],
+                    "c_over_a": mat.c_over_a, "label": mat.label,
+                    "has_lattice": mat.has_lattice}
         try:
             mat = get_material(name, x)
         except MaterialError as err:
@@ -326,8 +427,8 @@ class _Parser:
                 raise CaseError(f"{key}.x", f"required key is missing; {err}") from None
             raise CaseError(f"{key}.x" if x is not None else f"{key}.material",
                             str(err)) from None
-        return {"material": mat.name, "system": mat.system, "c_over_a": mat.c_over_a,
-                "label": mat.label}
+        return {"material": mat.name, "system": INDEX_SYSTEMS[mat.system],
+                "c_over_a": mat.c_over_a, "label": mat.label, "has_lattice": mat.has_lattice}
 
     @staticmethod
     def _check_orientation(t: dict, key: str, system: str, c_over_a) -> None:
@@ -357,6 +458,7 @@ class _Parser:
                 miscut_rotation(frame, angle, toward, t["c_over_a"])
             except OrientationError as err:
                 raise CaseError(f"{key}.miscut", str(err)) from None
+        t["grows_on"] = t["has_lattice"]    # what a first layer may grow on
         return t
 
     def _layers(self, value, key: str) -> list:
@@ -375,8 +477,23 @@ class _Parser:
                 self._check_orientation(t, lk, t["system"], t["c_over_a"])
             else:
                 t["normal"] = t["x_axis"] = None
+            self._epitaxy(t, lk, out[-1] if out else None)
             out.append(t)
         return out
+
+    def _epitaxy(self, t: dict, key: str, below: dict | None) -> None:
+        """``epitaxial``: default from the lattice; an epitaxial layer needs a lattice below."""
+        t["grows_on"] = t.get("epitaxial", t["has_lattice"])   # None in the Layer: default
+        if t.get("epitaxial") and not t["has_lattice"]:
+            raise CaseError(f"{key}.epitaxial", f"true needs a lattice constant, and "
+                                                f"{t['label']} has none (a deposited film); "
+                                                f"remove it or set epitaxial = false")
+        if not t["grows_on"] or t.get("relaxed", 0.0) >= 1.0:
+            return
+        if below is not None and not below["grows_on"]:
+            raise CaseError(f"{key}.epitaxial", f"the layer below ({below['label']}) is a "
+                                                f"deposited film with no lattice to grow on; "
+                                                f"set epitaxial = false or relaxed = 1")
 
     def _pattern(self, value, key: str) -> dict:
         t = read_table(PATTERN, value, key)

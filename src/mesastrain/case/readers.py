@@ -16,15 +16,24 @@ declared once, in the schema.
 
 from __future__ import annotations
 
+import contextlib
+import contextvars
 import difflib
 import math
 
 from mesastrain.case.outline import polygon_problem
 from mesastrain.errors import CaseError
 from mesastrain.physics.bands import device_parameters
-from mesastrain.physics.materials import is_alloy, known_materials
+from mesastrain.physics.materials import builtin_materials, is_alloy
 from mesastrain.physics.raman_data import pdp_sets
-from mesastrain.units import finite_float, is_number, parse_length, parse_temperature, show_value
+from mesastrain.units import (
+    _split,
+    finite_float,
+    is_number,
+    parse_length,
+    parse_temperature,
+    show_value,
+)
 
 __all__ = [
     "DIRECTION_NORM_RANGE", "MAX_INDEX", "MAX_ITEMS", "MAX_NAME", "MAX_VERTICES",
@@ -32,8 +41,8 @@ __all__ = [
     "component_list", "fraction", "groups", "growth", "indices", "int_at_least", "int_between",
     "length", "length_unit", "lengths_list", "material_name", "mesh_order", "missing", "name",
     "nonnegative_length", "pitch", "point", "positive_length", "positive_number", "raman_pdp",
-    "refine", "relaxation", "shape_name", "string", "temperature", "tolerance", "unknown_key",
-    "vertices",
+    "refine", "relaxation", "shape_name", "STRESS_UNITS", "stress", "string", "temperature",
+    "tolerance", "unknown_key", "user_materials", "vertices",
 ]
 
 #: Most items of an array of tables ([[layer]], [[probe]], [[cut]], ...) and of a list of
@@ -54,6 +63,23 @@ MAX_NAME = 100
 #: A direction's length must lie within these bounds (its square must stay a normal float,
 #: IEEE 754 double: 2.2e-308 .. 1.8e308), so that normalising it is exact to rounding.
 DIRECTION_NORM_RANGE = (1e-150, 1e150)
+
+#: Stress units accepted in strings, and their size in MPa.
+STRESS_UNITS = {"Pa": 1e-6, "kPa": 1e-3, "MPa": 1.0, "GPa": 1.0e3}
+_STRESS_ALLOWED = "allowed units: " + ", ".join(STRESS_UNITS)
+
+#: Names of the case's own materials ([material.NAME]) while its tables are read.
+_USER_MATERIALS: contextvars.ContextVar = contextvars.ContextVar("user_materials", default=())
+
+
+@contextlib.contextmanager
+def user_materials(names):
+    """Let :func:`material_name` accept ``names`` (a case's own materials) inside the block."""
+    token = _USER_MATERIALS.set(tuple(names))
+    try:
+        yield
+    finally:
+        _USER_MATERIALS.reset(token)
 
 #: A length: a number in nm or a string with a unit (:func:`mesastrain.units.parse_length`).
 length = parse_length
@@ -145,6 +171,35 @@ def fraction(value, key: str) -> float:
     return float(value)
 
 
+def stress(value, key: str) -> float:
+    """A stress written with its unit, ``"1.5 GPa"`` or ``"-800 MPa"``; returns MPa.
+
+    A bare number is refused: film stresses are quoted in MPa and GPa alike,
+    and a unit-less 1.5 is ambiguous by a factor of 1000.
+    """
+    if is_number(value):
+        raise CaseError(key, f"{show_value(value)} has no unit; write a string such as "
+                             f'"{value} MPa" or "{value} GPa" (tensile positive); '
+                             f"{_STRESS_ALLOWED}")
+    if not isinstance(value, str):
+        raise CaseError(key, f'expected a stress such as "1.5 GPa" or "-800 MPa", got '
+                             f"{show_value(value)}")
+    parts = _split(value)
+    if parts is None:
+        raise CaseError(key, f"'{value}' is not a stress; give a string such as \"1.5 GPa\" "
+                             f"(tensile positive); {_STRESS_ALLOWED}")
+    number, unit = parts
+    if unit is None:
+        raise CaseError(key, f"'{value}' has no unit; {_STRESS_ALLOWED}")
+    if unit not in STRESS_UNITS:
+        raise CaseError(key, f"'{value}': unit '{unit}' is not accepted; {_STRESS_ALLOWED}")
+    v = float(number) * STRESS_UNITS[unit]
+    if not math.isfinite(v) or abs(v) > 1e5:
+        raise CaseError(key, f"'{value}' is beyond 100 GPa in magnitude; give the film stress "
+                             f"in MPa or GPa")
+    return v
+
+
 def positive_number(value, key: str) -> float:
     """A finite number > 0 and at most 1e6 (a factor, not a size)."""
     v = finite_float(value) if is_number(value) else None
@@ -206,9 +261,9 @@ def length_unit(value, key: str) -> str:
 
 
 def material_name(value, key: str) -> str:
-    """A material (or alloy) name known to :mod:`mesastrain.physics.materials`."""
+    """A built-in material (or alloy) name, or one of the case's own ``[material.NAME]``."""
     name = string(value, key)
-    known = list(known_materials())
+    known = list(_USER_MATERIALS.get()) + builtin_materials()
     if name not in known and not is_alloy(name):  # is_alloy also knows formula spellings
         lower = {k.lower(): k for k in known}
         close = ([lower[name.lower()]] if name.lower() in lower

@@ -31,13 +31,14 @@ from pathlib import Path
 from mesastrain.case import readers as rd
 from mesastrain.case.keys import Key, Kind, Table
 from mesastrain.physics.bands import device_parameters
-from mesastrain.physics.materials import known_materials
+from mesastrain.physics.elastic import STIFFNESS_KEYS, SYMMETRY_SYSTEMS
+from mesastrain.physics.materials import builtin_materials
 from mesastrain.physics.raman_data import pdp_sets
 from mesastrain.units import LENGTH_UNITS, MAX_LENGTH_NM, MAX_TEMPERATURE_K, TEMPERATURE_UNITS
 
 __all__ = [
     "CARRIERS", "DEFAULT_CUT_COMPONENTS", "DEFAULT_MAPS", "FEATURE_SHAPES", "FIELD_COMPONENTS",
-    "INSIDE_RTOL", "MAX_CUT_POINTS", "MAX_SOLVER_ITERATIONS",
+    "INSIDE_RTOL", "MATERIAL", "MATERIAL_KEYS", "MAX_CUT_POINTS", "MAX_SOLVER_ITERATIONS",
     "PATTERN_SHAPES", "SCHEMA_FILE", "SCHEMA_VERSION", "SHAPE_KEYS",
     "SHAPE_REQUIRES", "SIDEWALL_ANGLE_RANGE", "SOLVER_METHODS", "SOLVER_PRECISIONS",
     "SYMMETRY_CHOICES", "TABLES", "TITLE", "TOP_KEYS", "default_order", "json_schema",
@@ -103,8 +104,12 @@ def _with_unit(units, number: str = _NUMBER) -> str:
 
 
 _DEFS = {
-    "material": {"description": "A material name, or an alloy spelled as a formula.",
-                 "type": "string", "examples": list(known_materials())},
+    "material": {"description": "A built-in material name (`mesastrain materials`), an alloy "
+                                "spelled as a formula, or the NAME of a [material.NAME] table.",
+                 "type": "string", "examples": list(builtin_materials())},
+    "stress": {"description": 'A stress with its unit, tensile positive, e.g. "1.5 GPa", '
+                              '"-800 MPa".',
+               "type": "string", "pattern": _with_unit(rd.STRESS_UNITS)},
     "length": {"description": "A length: a number in nm or a string with a unit, e.g. "
                               '"40 nm", "2 um", "0.5 mm", "3.2 A"; at most 1e9 nm (1 m, more '
                               'than twice the largest wafer) in size.',
@@ -170,6 +175,7 @@ LENGTH = Kind(rd.length, _ref("length"))
 POSITIVE_LENGTH = Kind(rd.positive_length, _ref("positiveLength"))
 NONNEGATIVE_LENGTH = Kind(rd.nonnegative_length, _ref("length"))
 TEMPERATURE = Kind(rd.temperature, _ref("temperature"), echo=lambda kelvin: f"{kelvin!r} K")
+STRESS = Kind(rd.stress, _ref("stress"), echo=lambda mpa: f"{mpa!r} MPa")
 FRACTION = Kind(rd.fraction, _number(minimum=0, maximum=1))
 MATERIAL = Kind(rd.material_name, _ref("material"))
 INDICES = Kind(rd.indices, _ref("indices"))
@@ -228,6 +234,15 @@ LAYER = Table("layer", "layers", "The grown layers, bottom to top; at least one.
         computed="the substrate's (when the crystal systems agree)"),
     Key("x_axis", INDICES, "The layer's crystal direction along sample +x.",
         computed="the substrate's (when the crystal systems agree)"),
+    Key("epitaxial", BOOL, "false: a deposited film (amorphous, polycrystalline) with no "
+                           "lattice mismatch to the layer below.",
+        computed="true when the material has a lattice constant, else false"),
+    Key("stress", STRESS, "Built-in (intrinsic) stress: the equi-biaxial in-plane stress the "
+                          "layer has as a blanket film on the wafer, tensile positive, with "
+                          "its unit; added to any mismatch stress."),
+    Key("deposition_temperature", TEMPERATURE, "Temperature at which this layer was grown or "
+                                               "deposited (needs [thermal] final_temperature).",
+        computed="[thermal] growth_temperature"),
 ), array=True)
 
 PATTERN = Table("pattern", "pattern", "The etched feature, centred on x = y = 0.", (
@@ -285,10 +300,10 @@ SHAPE_KEYS = {s: tuple(k.name for k in PATTERN.keys if s in k.shapes) for s in P
 SHAPE_REQUIRES = {s: tuple((k.name, hint) for k in PATTERN.keys for shape, hint in k.required_for
                            if shape == s) for s in PATTERN_SHAPES}
 
-THERMAL = Table("thermal", "thermal", "Growth and final (use) temperatures; both or neither.", (
-    Key("growth_temperature", TEMPERATURE, "Temperature at which the layers grew.",
-        required='both temperatures, e.g. growth_temperature = "700 C", '
-                 'final_temperature = "20 C"'),
+THERMAL = Table("thermal", "thermal", "Growth and final (use) temperatures.", (
+    Key("growth_temperature", TEMPERATURE, "Temperature at which the layers grew; required "
+                                           "unless every layer gives its own "
+                                           "deposition_temperature."),
     Key("final_temperature", TEMPERATURE, "Temperature of use.",
         required='both temperatures, e.g. growth_temperature = "700 C", '
                  'final_temperature = "20 C"'),
@@ -413,11 +428,42 @@ DISLOCATIONS = Table("dislocations", "dislocations", "Families of parallel strai
         echo_if=lambda d: d.positions is None),
 ), array=True)
 
+# [material.NAME]: materials of one's own, in the general format of the built-in database
+# (read and checked by mesastrain.physics.materials.material_from_table; every error names
+# material.NAME.KEY). Declared here for the key list and the JSON Schema.
+_CONST = Kind(lambda v, k: v, _number())
+_STIFFNESS_DOC = {"E": "Young's modulus, GPa (isotropic).", "nu": "Poisson's ratio (isotropic).",
+                  "C": "Full symmetric 6x6 Voigt stiffness in crystal axes, GPa (anisotropic)."}
+MATERIAL_KEYS = (
+    Key("system", _choice(SYMMETRY_SYSTEMS), "Symmetry system; it sets which constants are "
+                                             "given.", required="the symmetry system"),
+    *(Key(name, Kind(lambda v, k: v, {"type": "array", "minItems": 6, "maxItems": 6, "items": {
+        "type": "array", "items": {"type": "number"}, "minItems": 6, "maxItems": 6}})
+                     if name == "C" else _CONST,
+          _STIFFNESS_DOC.get(name, f"Stiffness constant {name}, GPa, crystal axes."))
+      for name in dict.fromkeys(k for keys in STIFFNESS_KEYS.values() for k in keys)),
+    Key("a", _CONST, "Lattice constant a, Angstrom (none: a deposited film without a lattice "
+                     "to match)."),
+    Key("b", _CONST, "Lattice constant b, Angstrom (orthorhombic, anisotropic)."),
+    Key("c", _CONST, "Lattice constant c, Angstrom."),
+    Key("alpha", Kind(lambda v, k: v, {"anyOf": [_number(), {
+        "type": "array", "items": {"type": "number"}, "minItems": 1, "maxItems": 3}]}),
+        "Thermal expansion, 1e-6/K: one value, or per crystal axis (a, c) or (x, y, z)."),
+    Key("source", Kind(lambda v, k: v, {"anyOf": [{"type": "string"}, {
+        "type": "object", "additionalProperties": {"type": "string"}}]}),
+        "Where the numbers come from: a string, or a table of strings per quantity."),
+    Key("structure", STRING, 'E.g. "wurtzite", "amorphous".'),
+    Key("replace_builtin", BOOL, "true: the NAME is meant to replace the built-in material of "
+                                 "that name.", default=False),
+)
+MATERIAL = Table("material", "materials", "Materials of one's own, [material.NAME], used by "
+                 "layers and substrate by NAME.", MATERIAL_KEYS)
+
 #: Every table, in the order the unknown-key error lists them (after ``title``).
 TABLES = (SUBSTRATE, LAYER, PATTERN, THERMAL, MESH, SOLVER, PROBE, CUT, OUTPUT, CHANNEL,
           DEVICE, READOUTS, DISLOCATIONS)
 #: The allowed top-level keys.
-TOP_KEYS = (TITLE.name,) + tuple(t.name for t in TABLES)
+TOP_KEYS = (TITLE.name, MATERIAL.name) + tuple(t.name for t in TABLES)
 _BY_NAME = {t.name: t for t in TABLES}
 
 
@@ -489,6 +535,10 @@ def json_schema() -> dict:
     dict
     """
     props = {TITLE.name: _key_schema(TITLE)}
+    one = _table_schema(MATERIAL)
+    one["required"] = ["system"]
+    props[MATERIAL.name] = {"type": "object", "description": MATERIAL.doc,
+                            "additionalProperties": one}
     props.update({t.name: _table_schema(t) for t in TABLES})
     props = copy.deepcopy(props)        # the kinds' fragments are shared
     return {

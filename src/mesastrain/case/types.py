@@ -16,6 +16,7 @@ from mesastrain.case.schema import (
     CUT,
     DEVICE,
     DISLOCATIONS,
+    MATERIAL,
     MESH,
     OUTPUT,
     READOUTS,
@@ -23,12 +24,70 @@ from mesastrain.case.schema import (
     TABLES,
     TITLE,
 )
+from mesastrain.physics.materials import get_material, material_from_table
 
 __all__ = [
     "TABLE_TYPES", "Case", "Channel", "DeviceSettings", "DislocationSet", "Layer", "LineCut",
     "MeshSettings", "OutputSettings", "Pattern", "Probe", "ReadoutSettings", "SolverSettings",
-    "Substrate", "Thermal",
+    "Substrate", "Thermal", "UserMaterial",
 ]
+
+
+def _frozen(value):
+    """A TOML value made hashable: lists -> tuples, tables -> sorted (key, value) tuples."""
+    if isinstance(value, dict):
+        return tuple((k, _frozen(v)) for k, v in value.items())
+    if isinstance(value, (list, tuple)):
+        return tuple(_frozen(v) for v in value)
+    return value
+
+
+def _thawed(value):
+    """Inverse of :func:`_frozen` for arrays: tuples -> lists."""
+    if isinstance(value, tuple):
+        return [_thawed(v) for v in value]
+    return value
+
+
+@dataclass(frozen=True)
+class UserMaterial:
+    """A material of the case's own, ``[material.NAME]``.
+
+    Attributes
+    ----------
+    name : str
+    table : tuple of (key, value)
+        The table as written (without ``replace_builtin``), made hashable;
+        :meth:`as_table` gives it back as a dict.
+    replace_builtin : bool
+        The name deliberately replaces the built-in material of that name.
+    """
+
+    name: str
+    table: tuple
+    replace_builtin: bool = MATERIAL.default("replace_builtin")
+
+    @classmethod
+    def from_table(cls, name: str, table: dict) -> UserMaterial:
+        rest = {k: v for k, v in table.items() if k != "replace_builtin"}
+        return cls(name, _frozen(rest), bool(table.get("replace_builtin", False)))
+
+    def as_table(self) -> dict:
+        """The table in case-file form (``replace_builtin`` only when true)."""
+        out = {}
+        for k, v in self.table:
+            if k == "source" and isinstance(v, tuple) and v and isinstance(v[0], tuple):
+                out[k] = dict(v)
+            else:
+                out[k] = _thawed(v)
+        if self.replace_builtin:
+            out["replace_builtin"] = True
+        return out
+
+    def material(self):
+        """The :class:`mesastrain.physics.material_record.Material` it defines."""
+        table = {k: v for k, v in self.as_table().items() if k != "replace_builtin"}
+        return material_from_table(self.name, table, replace_builtin=True)
 
 
 @dataclass(frozen=True)
@@ -38,7 +97,8 @@ class Substrate:
     Attributes
     ----------
     material : str
-        Name as in :func:`mesastrain.physics.materials.known_materials`.
+        Name as in :func:`mesastrain.physics.materials.builtin_materials`, or the
+        NAME of one of the case's ``[material.NAME]`` tables.
     x : float or None
         Alloy fraction of the second member; None for non-alloys.
     thickness : float
@@ -84,6 +144,9 @@ class Layer:
     relaxed: float
     normal: tuple | None
     x_axis: tuple | None
+    epitaxial: bool | None = None
+    stress: float | None = None
+    deposition_temperature: float | None = None
 
 
 @dataclass(frozen=True)
@@ -148,9 +211,13 @@ class Pattern:
 
 @dataclass(frozen=True)
 class Thermal:
-    """Growth and final (use) temperatures, kelvin."""
+    """Growth and final (use) temperatures, kelvin.
 
-    growth_temperature: float
+    ``growth_temperature`` is None when every layer gives its own
+    ``deposition_temperature``.
+    """
+
+    growth_temperature: float | None
     final_temperature: float
 
 
@@ -385,6 +452,8 @@ class Case:
         Device-physics switches (``[device]``).
     dislocations : tuple of DislocationSet
         Misfit dislocations (``[[dislocations]]``), possibly empty.
+    materials : tuple of UserMaterial
+        The case's own materials (``[material.NAME]``), possibly empty.
     readouts : ReadoutSettings
         Stand-off distance, wafer diameter and bow switch (``[readouts]``).
     """
@@ -404,6 +473,19 @@ class Case:
     device: DeviceSettings = DeviceSettings()
     readouts: ReadoutSettings = ReadoutSettings()
     dislocations: tuple = ()
+    materials: tuple = ()
+
+    def material(self, name: str, x: float | None = None):
+        """Resolve a material name: the case's own ``[material.NAME]`` first, then built-ins.
+
+        Returns
+        -------
+        mesastrain.physics.material_record.Material
+        """
+        for m in self.materials:
+            if m.name == name:
+                return m.material()
+        return get_material(name, x)
 
     @property
     def stack_thickness(self) -> float:
@@ -437,6 +519,8 @@ class Case:
         dict
         """
         out = {TITLE.name: self.title}
+        if self.materials:
+            out[MATERIAL.name] = {m.name: m.as_table() for m in self.materials}
         for tab in TABLES:
             value = getattr(self, tab.attr)
             if tab.array:

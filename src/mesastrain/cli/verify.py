@@ -16,83 +16,15 @@ The check groups are the explicit list :data:`CHECKS` of functions
 from __future__ import annotations
 
 import json
-import math
 import time
 from collections.abc import Callable
-from dataclasses import asdict, dataclass
+from dataclasses import asdict
 
 import numpy as np
 
 from mesastrain.cli.common import EXIT_FAILED
-
-
-@dataclass
-class Check:
-    """One row of the verification table.
-
-    Attributes
-    ----------
-    quantity : str
-        What is compared, with its unit.
-    published : float
-        The published value (or the published formula evaluated with the
-        inputs named in ``source``).
-    source : str
-        Where the published value comes from (authors, journal, year).
-    computed : float
-        What this installation computes.
-    tolerance : float
-        Largest accepted relative error (absolute when ``absolute``).
-    absolute : bool
-        Compare |computed - published| instead of the relative error.
-    low, high : float, optional
-        For a range check (a fact of the trade): pass when low <= computed <= high.
-    kind : str
-        ``"validation"``: compared with a value published independently of this
-        tool's inputs (a measured or tabulated number, another code, a signed
-        fact of the trade). ``"implementation"``: a published formula evaluated
-        with the tool's own inputs (material table, same lattice law), which
-        checks the implementation but cannot catch a wrong input or a sign
-        shared by formula and model.
-    """
-
-    quantity: str
-    published: float
-    source: str
-    computed: float
-    tolerance: float
-    absolute: bool = False
-    low: float | None = None
-    high: float | None = None
-    kind: str = "validation"
-
-    @property
-    def error(self) -> float:
-        if self.low is not None:
-            return 0.0 if self.low <= self.computed <= self.high else math.inf
-        if self.absolute:
-            return abs(self.computed - self.published)
-        return abs(self.computed - self.published) / abs(self.published)
-
-    @property
-    def passed(self) -> bool:
-        # plain bool: numpy comparisons give numpy.bool_, which json cannot write
-        return bool(np.isfinite(self.computed) and self.error <= self.tolerance)
-
-
-# --------------------------------------------------------------------------
-# helpers
-# --------------------------------------------------------------------------
-def _case(substrate: str, layer: dict, normal=(0, 0, 1), x_axis=(1, 0, 0), thickness=1e5,
-          **extra):
-    from mesastrain.case.parse import parse_case
-
-    data = {"title": "verify", "substrate": {"material": substrate, "thickness": thickness,
-                                             "normal": list(normal), "x_axis": list(x_axis)},
-            "layer": [layer], "mesh": {"order": 2}, "output": {"report": False, "vtu": False},
-            "readouts": {"bow": False}}
-    data.update(extra)
-    return parse_case(data)
+from mesastrain.cli.verify_row import Check, _case  # noqa: F401 (Check re-exported)
+from mesastrain.cli.verify_stack import check_le11, check_stack
 
 
 def _blanket_film_stress(case) -> tuple[np.ndarray, np.ndarray, object]:
@@ -431,8 +363,8 @@ def check_raman() -> list[Check]:
 
 #: Check groups, in the order of the table: functions returning a list of :class:`Check`.
 CHECKS: list[Callable[[], list[Check]]] = [
-    check_rotation, check_blanket, check_thermal, check_critical_thickness, check_bow,
-    check_eshelby, check_dislocations, check_raman]
+    check_rotation, check_blanket, check_low_symmetry, check_thermal, check_critical_thickness, check_bow,
+    check_eshelby, check_dislocations, check_raman, check_stack, check_le11]
 
 
 # --------------------------------------------------------------------------

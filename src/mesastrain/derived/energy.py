@@ -20,7 +20,9 @@ __all__ = [
     "PB_BURGERS_NM",
     "PB_LATTICE_NM",
     "critical_thickness",
+    "crack_warning",
     "critical_warning",
+    "CRACK_STRESS_MPA",
     "layer_energy",
     "poisson_ratio_100",
 ]
@@ -108,6 +110,31 @@ def critical_thickness(res, lm) -> dict | None:
         out["people_bean_parameters"] = {"b_nm": PB_BURGERS_NM, "a_nm": PB_LATTICE_NM, "nu": nu}
         out["exceeds_people_bean"] = bool(np.isfinite(pb) and h > pb) or bool(np.isnan(pb))
     return out
+
+
+#: Tensile in-plane blanket stress above which a brittle crystalline or ceramic film is
+#: flagged as at risk of cracking, MPa. Common practice for GaN on Si(111) and on sapphire
+#: (thick GaN on Si cracks on cooling at tensile stresses of the order of 1 GPa; from memory,
+#: e.g. Dadgar et al., Jpn. J. Appl. Phys. 39, L1183 (2000) [M]); a rule of thumb, not a
+#: fracture criterion (that needs the film thickness and a toughness).
+CRACK_STRESS_MPA = 1000.0
+#: Material groups checked for cracking (metals yield instead; deposited dielectrics carry
+#: their stress by recipe and are not flagged).
+_BRITTLE_GROUPS = ("material", "alloy", "substrate", "user")
+
+
+def crack_warning(lm, blanket_stress) -> str | None:
+    """A warning when a brittle layer's largest in-plane blanket stress is tensile beyond
+    :data:`CRACK_STRESS_MPA` (common practice, see there)."""
+    if lm.material.group not in _BRITTLE_GROUPS or lm.material.system == "isotropic":
+        return None
+    s = np.asarray(blanket_stress, dtype=float)[:2, :2]
+    top = float(np.max(np.linalg.eigvalsh(s)))
+    if top <= CRACK_STRESS_MPA:
+        return None
+    return (f"{lm.name} ({lm.material.label}) carries {top:.0f} MPa tensile in-plane stress "
+            f"as a blanket film, above {CRACK_STRESS_MPA:.0f} MPa: at risk of cracking "
+            f"(common-practice threshold for GaN-class films; check thickness and growth)")
 
 
 def critical_warning(lm, ct: dict) -> str | None:

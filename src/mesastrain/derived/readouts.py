@@ -51,7 +51,12 @@ from mesastrain.derived.corners import (
     standoff_values,
     standoff_warnings,
 )
-from mesastrain.derived.energy import critical_thickness, critical_warning, layer_energy
+from mesastrain.derived.energy import (
+    crack_warning,
+    critical_thickness,
+    critical_warning,
+    layer_energy,
+)
 from mesastrain.derived.relaxation import RECOVERY, blanket_state, edge_relaxation, plot_relaxation
 from mesastrain.derived.sampling import cell_centres, etch_floor, sample_inside
 from mesastrain.derived.tractions import interface_balance, plot_tractions, traction_profiles
@@ -117,6 +122,9 @@ def derive(res) -> Derived:
                     entry["relaxation"] = rl
                     relax_rows.extend(rows)
             entry["energy_per_area"] = layer_energy(res, lm, b_sig, b_eps)
+            w = crack_warning(lm, b_sig)
+            if w:
+                warnings.append(w)
             ct = critical_thickness(res, lm)
             if ct is not None:
                 entry["critical_thickness"] = ct

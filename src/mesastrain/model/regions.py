@@ -11,14 +11,16 @@ Thermal mismatch
 ----------------
 With a ``[thermal]`` table the eigenstrain gains a thermal part. The tabulated
 lattice constants hold at :data:`LATTICE_TABLE_TEMPERATURE`. Write
-D_i(T) = int_{300 K}^{T} (alpha_i - alpha_substrate) dT (axis a or c,
-:func:`mesastrain.physics.thermal.thermal_mismatch_strain`). The in-plane lattice each
-layer takes is set at the growth temperature (coherent with the layer below,
-moved toward its own lattice by ``relaxed``) and afterwards follows the
+D_i(T) = int_{300 K}^{T} (alpha_i - alpha_substrate) dT, a tensor in the sample
+frame with each material's alphas rotated from its crystal axes
+(:func:`mesastrain.physics.deposited.thermal_mismatch_eigenstrain`). The in-plane
+lattice each layer takes is set at its own deposition (growth) temperature T_i
+(coherent with the layer below, moved toward its own lattice by ``relaxed``;
+a deposited, non-epitaxial film counts as r = 1) and afterwards follows the
 substrate. To first order the stress-free strain relative to the substrate at
 the final temperature then gains
 
-    D_i(T_final) - q_i,   q_i = (1 - r_i) q_(i-1) + r_i D_i(T_growth),  q_0 = 0,
+    D_i(T_final) - q_i,   q_i = (1 - r_i) q_(i-1) + r_i D_i(T_i),  q_0 = 0,
 
 so a pseudomorphic layer (r = 0) keeps the lattice mismatch of the final
 temperature, and a fully relaxed single layer gains
@@ -34,9 +36,9 @@ import numpy as np
 
 from mesastrain.case.types import Case
 from mesastrain.errors import CaseError, MaterialError
-from mesastrain.physics.crystal import Frame, miscut_rotation, sample_frame
-from mesastrain.physics.materials import Material, get_material
-from mesastrain.physics.thermal import thermal_mismatch_strain
+from mesastrain.physics.crystal import INDEX_SYSTEMS, Frame, miscut_rotation, sample_frame
+from mesastrain.physics.deposited import deposited_film_eigenstrain, thermal_mismatch_eigenstrain
+from mesastrain.physics.materials import Material
 
 #: Temperature at which the materials table gives lattice constants, K.
 LATTICE_TABLE_TEMPERATURE = 300.0
@@ -69,6 +71,12 @@ class LayerModel:
     thermal_eigenstrain : ndarray (3, 3) or None
         The thermal part of ``eigenstrain_crystal`` (crystal axes); None when
         the case has no ``[thermal]`` table.
+    epitaxial : bool
+        False for a deposited film (no lattice mismatch).
+    builtin_stress : float or None
+        The layer's built-in blanket stress, MPa (tensile positive), if given.
+    deposition_temperature : float or None
+        K; None without a ``[thermal]`` table.
     """
 
     index: int
@@ -83,37 +91,60 @@ class LayerModel:
     stiffness_sample: np.ndarray
     eigenstrain_sample: np.ndarray
     thermal_eigenstrain: np.ndarray | None = None
+    epitaxial: bool = True
+    builtin_stress: float | None = None
+    deposition_temperature: float | None = None
 
     @property
     def name(self) -> str:
         return "substrate" if self.index == 0 else f"layer {self.index}"
 
 
-def _reference_lattice(below: tuple, below_system: str, mat: Material) -> tuple:
+def _reference_lattice(below: tuple, below_system: str, mat: Material, key: str) -> tuple:
     """Lattice (a, c) that ``mat`` would take if fully coherent with ``below``.
 
     Same structure: the lattice below itself. Hexagonal on a cubic (111)
     surface: a_hex matches the surface net spacing a_cubic/sqrt(2); cubic on
-    hexagonal: a_cubic/sqrt(2) matches a_hex. The c of a hexagonal layer on a
-    cubic one scales with a (only the in-plane part produces stress).
+    hexagonal: a_cubic/sqrt(2) matches a_hex. Hexagonal on trigonal (GaN or
+    AlN on c-plane sapphire, rotated 30 degrees in-plane): a_hex matches
+    a_trig/sqrt(3), the oxygen sublattice spacing. The c of a hexagonal layer on
+    another structure scales with a (only the in-plane part produces stress).
     """
     a_b, c_b = below
-    if mat.system == below_system:
-        return (a_b, c_b if mat.system == "hexagonal" else None)
-    if mat.system == "hexagonal":      # hexagonal on cubic
-        a_ref = a_b / np.sqrt(2.0)
+    if mat.system == below_system and mat.system in ("cubic", "hexagonal", "trigonal"):
+        return (a_b, c_b if mat.system != "cubic" else None)
+    if mat.system == "hexagonal" and below_system in ("cubic", "trigonal"):
+        a_ref = a_b / (np.sqrt(2.0) if below_system == "cubic" else np.sqrt(3.0))
         return (a_ref, mat.c * a_ref / mat.a)
-    return (a_b * np.sqrt(2.0), None)  # cubic on hexagonal
+    if mat.system == "cubic" and below_system == "hexagonal":
+        return (a_b * np.sqrt(2.0), None)
+    raise CaseError(key, f"no coherent epitaxial relationship is known for {mat.label} "
+                         f"({mat.system}) on a {below_system} lattice; set relaxed = 1 (its "
+                         f"stress then comes from the thermal history) or epitaxial = false")
+
+
+def _frame(mat: Material, normal, x_axis) -> Frame:
+    return sample_frame(normal, x_axis, INDEX_SYSTEMS[mat.system], mat.c_over_a)
 
 
 def build_layers(case: Case) -> list[LayerModel]:
-    """Resolve materials, orientations and eigenstrains of every region."""
+    """Resolve materials, orientations and eigenstrains of every region.
+
+    Parameters
+    ----------
+    case : Case
+
+    Returns
+    -------
+    list of LayerModel
+        The substrate, then each layer bottom to top.
+    """
     sub = case.substrate
     try:
-        smat = get_material(sub.material, sub.x)
+        smat = case.material(sub.material, sub.x)
     except Exception as exc:  # validated already; keep a clear message anyway
         raise CaseError("substrate.material", str(exc)) from exc
-    sframe = sample_frame(sub.normal, sub.x_axis, smat.system, smat.c_over_a)
+    sframe = _frame(smat, sub.normal, sub.x_axis)
     tilt = None
     if sub.miscut is not None:
         # a vicinal wafer: every frame of the stack turns by the same rotation
@@ -123,69 +154,85 @@ def build_layers(case: Case) -> list[LayerModel]:
                       np.zeros((3, 3)), 0.0, sframe.stiffness_to_sample(smat.stiffness),
                       np.zeros((3, 3)))]
     below_lat, below_sys = (smat.a, smat.c), smat.system
-    q_below = (0.0, 0.0)          # thermal lattice shift (a, c) of the layer below, see module notes
+    q_below = np.zeros((3, 3))    # thermal lattice shift of the layer below (sample frame)
     z = 0.0
     for i, lay in enumerate(case.layers, start=1):
-        mat = get_material(lay.material, lay.x)
+        key = f"layer[{i - 1}]"
+        mat = case.material(lay.material, lay.x)
         if lay.normal is not None:
-            frame = sample_frame(lay.normal, lay.x_axis, mat.system, mat.c_over_a)
+            frame = _frame(mat, lay.normal, lay.x_axis)
         else:
-            frame = sample_frame(sub.normal, sub.x_axis, mat.system, mat.c_over_a)
+            frame = _frame(mat, sub.normal, sub.x_axis)
         if tilt is not None:
             frame = frame.tilted(tilt, sub.miscut[0])
-        a_ref, c_ref = _reference_lattice(below_lat, below_sys, mat)
-        r = lay.relaxed
-        a_eff = a_ref + r * (mat.a - a_ref)
-        e_a = (mat.a - a_eff) / mat.a
-        if mat.system == "hexagonal":
-            c_eff = c_ref + r * (mat.c - c_ref)
-            e_c = (mat.c - c_eff) / mat.c
-            eig_c = np.diag([e_a, e_a, e_c])
+        epitaxial = mat.has_lattice if lay.epitaxial is None else bool(lay.epitaxial)
+        r = lay.relaxed if epitaxial else 1.0
+        if not epitaxial:
+            a_eff, c_eff, eig_c = mat.a, mat.c, np.zeros((3, 3))
+        elif r >= 1.0:      # fully relaxed: its own lattice, whatever lies below
+            a_eff, c_eff, eig_c = mat.a, mat.c, np.zeros((3, 3))
         else:
-            c_eff = None
-            eig_c = e_a * np.eye(3)
+            a_ref, c_ref = _reference_lattice(below_lat, below_sys, mat, f"{key}.relaxed")
+            a_eff = a_ref + r * (mat.a - a_ref)
+            e_a = (mat.a - a_eff) / mat.a
+            if mat.c is not None and mat.system != "cubic":
+                c_eff = c_ref + r * (mat.c - c_ref)
+                eig_c = np.diag([e_a, e_a, (mat.c - c_eff) / mat.c])
+            else:
+                c_eff = None
+                eig_c = e_a * np.eye(3)
+        stiff = frame.stiffness_to_sample(mat.stiffness)
+        eig_s = frame.to_sample(eig_c)
         thermal_c = None
         if case.thermal is not None:
-            thermal_c, q_below = _thermal_part(case, i, mat, smat, r, q_below, below_sys)
-            eig_c = eig_c + thermal_c
-        out.append(LayerModel(i, mat, frame, z, z + lay.thickness, r, (a_eff, c_eff), eig_c,
-                              (a_eff - mat.a) / mat.a, frame.stiffness_to_sample(mat.stiffness),
-                              frame.to_sample(eig_c), thermal_c))
+            th_s, q_below = _thermal_part(case, lay, key, mat, frame, smat, sframe, r, q_below)
+            thermal_c = frame.to_crystal(th_s)
+            eig_s = eig_s + th_s
+        if lay.stress is not None:
+            eig_s = eig_s + deposited_film_eigenstrain(stiff, lay.stress)
+        misfit = 0.0 if a_eff is None else (a_eff - mat.a) / mat.a
+        out.append(LayerModel(i, mat, frame, z, z + lay.thickness, r, (a_eff, c_eff),
+                              frame.to_crystal(eig_s), misfit, stiff, eig_s, thermal_c,
+                              epitaxial=epitaxial, builtin_stress=lay.stress,
+                              deposition_temperature=_deposition_temperature(case, lay)))
         z += lay.thickness
         below_lat, below_sys = (a_eff, c_eff), mat.system
     return out
 
 
-def _thermal_part(case: Case, i: int, mat: Material, smat: Material, r: float,
-                  q_below: tuple, below_sys: str) -> tuple[np.ndarray, tuple]:
-    """Thermal eigenstrain of layer ``i`` (crystal axes) and its lattice shift (a, c).
+def _deposition_temperature(case: Case, lay) -> float | None:
+    if case.thermal is None:
+        return None
+    if lay.deposition_temperature is not None:
+        return lay.deposition_temperature
+    return case.thermal.growth_temperature
 
-    Implements D_i(T_final) - q_i of the module notes for the a axis (and the
-    c axis of a hexagonal layer, whose reference follows the c chain below a
-    hexagonal layer and the a chain below a cubic one).
+
+def _thermal_part(case: Case, lay, key: str, mat: Material, frame: Frame, smat: Material,
+                  sframe: Frame, r: float, q_below: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Thermal eigenstrain of one layer (sample frame) and its lattice shift Q_i.
+
+    Implements D_i(T_final) - Q_i of the module notes, with D_i(T) the
+    sample-frame thermal mismatch against the substrate from the table
+    temperature to T (:func:`mesastrain.physics.deposited.thermal_mismatch_eigenstrain`,
+    alpha(T) fits where both materials have one) and T_i the layer's own
+    deposition temperature.
     """
     t0 = LATTICE_TABLE_TEMPERATURE
-    tg, tf = case.thermal.growth_temperature, case.thermal.final_temperature
-    same = mat.name == smat.name and mat.x == smat.x
+    tg, tf = _deposition_temperature(case, lay), case.thermal.final_temperature
+    same = mat.name == smat.name and mat.x == smat.x and mat.group == smat.group
 
-    def mismatch(axis: str, temperature: float) -> float:
+    def mismatch(temperature: float) -> np.ndarray:
         if same:
-            return 0.0
+            return np.zeros((3, 3))
         try:
-            return float(thermal_mismatch_strain(mat, smat, t0, temperature, axis=axis))
+            return thermal_mismatch_eigenstrain(mat, smat, t0, temperature, frame, sframe,
+                                                fit="auto")
         except MaterialError as exc:
-            key = ("thermal.growth_temperature" if temperature == tg
-                   else "thermal.final_temperature")
-            raise CaseError(key, f"layer[{i - 1}] ({mat.label} on {smat.label}): {exc}") from None
+            where = (f"{key}.deposition_temperature" if lay.deposition_temperature is not None
+                     and temperature == tg else "thermal.growth_temperature" if temperature == tg
+                     else "thermal.final_temperature")
+            raise CaseError(where, f"{key} ({mat.label} on {smat.label}): {exc}") from None
 
-    q_a = (1.0 - r) * q_below[0] + r * mismatch("a", tg)
-    add_a = mismatch("a", tf) - q_a
-    if mat.system == "hexagonal":
-        ref_c = q_below[1] if below_sys == "hexagonal" else q_below[0]
-        q_c = (1.0 - r) * ref_c + r * mismatch("c", tg)
-        add_c = mismatch("c", tf) - q_c
-        return np.diag([add_a, add_a, add_c]), (q_a, q_c)
-    return add_a * np.eye(3), (q_a, q_a)
-
-
-
+    q = (1.0 - r) * q_below + r * mismatch(tg)
+    return mismatch(tf) - q, q

@@ -42,6 +42,12 @@ for _I, (_i, _j) in enumerate(VOIGT_PAIRS):
     _VOIGT_INDEX[_i, _j] = _VOIGT_INDEX[_j, _i] = _I
 
 SYSTEMS = ("cubic", "hexagonal", "trigonal", "isotropic")
+#: Symmetry system of a material (mesastrain.physics.elastic) -> the system its Miller indices
+#: are read in. Tetragonal, orthorhombic and anisotropic crystals: indices are read as
+#: Cartesian directions in the crystal axes (exact for the axes themselves, [001], [100], ...).
+INDEX_SYSTEMS = {"cubic": "cubic", "hexagonal": "hexagonal", "trigonal": "trigonal",
+                 "isotropic": "isotropic", "tetragonal": "isotropic",
+                 "orthorhombic": "isotropic", "anisotropic": "isotropic"}
 #: Systems whose Miller indices are Cartesian directions (the rest use the hexagonal basis).
 _CARTESIAN = ("cubic", "isotropic")
 

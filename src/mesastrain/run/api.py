@@ -46,7 +46,13 @@ from mesastrain.fem.fields import Fields, evaluate_at_points, recover
 from mesastrain.fem.solve import SolverReport, solve_condensed, solve_model
 from mesastrain.mesh.imported import read_mesh, skfem_mesh
 from mesastrain.mesh.unstructured import UnstructuredMesh, box_boundary
-from mesastrain.physics.crystal import rotate_tensor2, rotate_voigt_stiffness, sample_frame
+from mesastrain.physics.crystal import (
+    INDEX_SYSTEMS,
+    rotate_tensor2,
+    rotate_voigt_stiffness,
+    sample_frame,
+)
+from mesastrain.physics.material_record import Material
 from mesastrain.physics.materials import get_material
 
 __all__ = ["Region", "Solution", "solve", "isotropic_stiffness", "read_mesh"]
@@ -58,8 +64,10 @@ class Region:
 
     Attributes
     ----------
-    material : str or None
-        Name in the material table (``mesastrain materials``).
+    material : str, Material or None
+        Name in the material table (``mesastrain materials``), or a
+        :class:`mesastrain.physics.material_record.Material` of one's own
+        (e.g. from :func:`mesastrain.physics.materials.material_from_table`).
     x : float or None
         Alloy fraction.
     normal, x_axis : tuple of int
@@ -72,7 +80,7 @@ class Region:
         Voigt stiffness in the sample frame, GPa (instead of ``material``).
     """
 
-    material: str | None = None
+    material: str | Material | None = None
     x: float | None = None
     normal: tuple = (0, 0, 1)
     x_axis: tuple = (1, 0, 0)
@@ -98,9 +106,16 @@ class Region:
             return C, eig
         if self.material is None:
             raise MesastrainError("a Region needs a material name or a stiffness")
-        mat = get_material(self.material, self.x)
+        if isinstance(self.material, Material):
+            if self.x is not None:
+                raise MesastrainError("Region.x is for alloy names; a Material object is "
+                                      "already at its composition")
+            mat = self.material
+        else:
+            mat = get_material(self.material, self.x)
         if rotation is None:
-            frame = sample_frame(self.normal, self.x_axis, mat.system, mat.c_over_a)
+            frame = sample_frame(self.normal, self.x_axis, INDEX_SYSTEMS[mat.system],
+                                 mat.c_over_a)
             return frame.stiffness_to_sample(mat.stiffness), frame.to_sample(eig)
         R = np.asarray(rotation, dtype=float)
         return rotate_voigt_stiffness(mat.stiffness, R), rotate_tensor2(eig, R)
