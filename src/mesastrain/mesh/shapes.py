@@ -48,7 +48,13 @@ log = logging.getLogger(__name__)
 #: a Python callback, which cost about 0.5 ms a call and 80 % of the meshing time).
 #: Below it the single-threaded Delaunay mesher and the exact callback are kept, so the
 #: meshes of small cases (every demo case) stay what they were.
-PARALLEL_TETS = 150_000
+PARALLEL_TETS = 100_000
+
+#: gmsh wall time per tetrahedron, including OpenCASCADE and reading the mesh back, with the
+#: Python size callback and with HXT and size fields (benchmarks/tet_scaling.py, L-shaped
+#: pad, 25k-170k tetrahedra, load average about 3 on 2 cores).
+GMSH_S_PER_TET = 2.0e-4
+GMSH_S_PER_TET_PARALLEL = 8.0e-5
 
 #: Fraction of the element volume h^3 a tetrahedron of size h occupies on average in gmsh
 #: meshes (measured on this project's shapes; used by the size estimate only).
@@ -642,7 +648,8 @@ def estimate_shape(case) -> Estimate:
     spec = shape_spec(case, ())
     count = _expected_tets(spec)
     nel = max(int(count), 1)
+    gmsh_s = nel * (GMSH_S_PER_TET_PARALLEL if count > PARALLEL_TETS else GMSH_S_PER_TET)
     order = case.mesh.order
     scalar = int(nel * (1.4 if order == 2 else 0.18)) + 1
     return estimate_from_counts(case, int(nel * 0.18) + 1, nel, scalar, 10 if order == 2 else 4,
-                                90 if order == 2 else 45)
+                                90 if order == 2 else 45, mesh_seconds=gmsh_s)
