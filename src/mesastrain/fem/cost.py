@@ -176,8 +176,17 @@ def resources(unknowns: int, nonzeros: int, elements: int, nloc: int, order: int
 
 
 
+#: Tetrahedral cases (gmsh shapes, imported meshes): derived quantities, writing every
+#: default output and start-up, seconds = TET_OUTPUT_S + TET_OUTPUT_S_PER_UNKNOWN n.
+#: Measured with benchmarks/tet_scaling.py (L-shaped pad, quadratic tetrahedra, 133k-737k
+#: unknowns: 8.2, 16.7 and 18.7 s; load average about 3 on 2 cores).
+TET_OUTPUT_S = 4.0
+TET_OUTPUT_S_PER_UNKNOWN = 2.0e-5
+
+
 def estimate_from_counts(case, nodes: int, elements: int, scalar_dofs: int,
-                         dofs_per_element: int, nnz_per_row: int) -> Estimate:
+                         dofs_per_element: int, nnz_per_row: int,
+                         mesh_seconds: float = 0.0) -> Estimate:
     """An :class:`Estimate` from mesh counts, with the memory and time rules of :func:`resources`.
 
     Used for the meshes that are not structured hexahedra (cross-sections,
@@ -192,11 +201,16 @@ def estimate_from_counts(case, nodes: int, elements: int, scalar_dofs: int,
         Scalar dofs per element.
     nnz_per_row : int
         Typical stored nonzeros per matrix row.
+    mesh_seconds : float
+        Time of the mesher (gmsh) when the caller can predict it; a nonzero
+        value also adds the output time of :data:`TET_OUTPUT_S`.
     """
     n = 3 * int(scalar_dofs)
     nnz = n * nnz_per_row
     method = choose_method(case.solver.method, n, case.solver.direct_limit)
     mem, secs = resources(n, nnz, int(elements), int(dofs_per_element), case.mesh.order, method,
                           multigrid="algebraic")
+    if mesh_seconds:
+        secs += mesh_seconds + TET_OUTPUT_S + TET_OUTPUT_S_PER_UNKNOWN * n
     return Estimate(int(nodes), int(elements), n, case.mesh.order, method, mem, secs)
 

@@ -112,6 +112,35 @@ def split_triangles(M: sp.csr_matrix, dtype, keep: np.ndarray | None = None
     return LD, DU, diag
 
 
+class _CoarseSolver:
+    """Direct solve on the coarsest level: sparse LU, or a pseudo-inverse if it is singular.
+
+    A coarsest operator may be singular when an unheld part or an empty coarse
+    dof survives; the pseudo-inverse (symmetric eigendecomposition, eigenvalues
+    below 1e-10 of the largest dropped) then projects that part out, as pyamg's
+    own "pinv" coarse solver does. Only for small coarsest levels.
+    """
+
+    PINV_LIMIT = 6000
+
+    def __init__(self, op: sp.csr_matrix):
+        self.lu = self.pinv = None
+        try:
+            self.lu = spla.splu(op.tocsc(), permc_spec="MMD_AT_PLUS_A")
+        except RuntimeError:          # "Factor is exactly singular"
+            if op.shape[0] > self.PINV_LIMIT:
+                raise ValueError(f"the coarsest multigrid level ({op.shape[0]} unknowns) "
+                                 "is singular") from None
+            w, V = np.linalg.eigh(op.toarray())
+            good = w > 1e-10 * max(float(w.max()), 0.0)
+            log.debug("coarsest level singular: %d of %d modes dropped",
+                      int((~good).sum()), w.size)
+            self.pinv = (V[:, good] / w[good]) @ V[:, good].T
+
+    def solve(self, b: np.ndarray) -> np.ndarray:
+        return self.lu.solve(b) if self.lu is not None else self.pinv @ b
+
+
 class Hierarchy:
     """Operators of a multigrid V-cycle (finest first) and the cycle itself.
 
@@ -185,7 +214,7 @@ class Hierarchy:
         # the coarsest level, symmetrised and in double precision, factorised once
         op = sp.csr_matrix(op, dtype=np.float64)
         op = 0.5 * (op + op.T)
-        self.coarse_lu = spla.splu(op.tocsc(), permc_spec="MMD_AT_PLUS_A")
+        self.coarse_lu = _CoarseSolver(op)
 
     @property
     def levels(self) -> int:
@@ -257,24 +286,96 @@ def restrict_spaces(spaces: GridSpaces, free0: np.ndarray) -> list:
     return out
 
 
+#: Strength of connection per smoothed-aggregation level (pyamg "symmetric" with threshold
+#: theta). All connections on the finest level; from the second level on, where the Galerkin
+#: operators are denser, theta = 0.1 keeps the aggregates from swallowing a whole level
+#: (5,026 -> 84 unknowns on a P1 level of 45k): on the L-shaped pad, quadratic tetrahedra,
+#: 321k unknowns, p-multigrid took 37 iterations with theta = 0 everywhere, 21 with this
+#: and 60 with theta = 0.1 everywhere (benchmarks/tet_scaling.py).
+STRENGTH = [("symmetric", {"theta": 0.0})] + [("symmetric", {"theta": 0.1})] * 9
+
+
+def smoothed_aggregation_levels(A: sp.csr_matrix, B: np.ndarray | None
+                                ) -> tuple[list, list]:
+    """Smoothed-aggregation prolongators and coarse operators (pyamg), finest first.
+
+    The setup runs in double precision: the tentative prolongator orthonormalises
+    the near-nullspace candidates on each aggregate (a QR factorisation), and an
+    aggregate with too few free dofs for all six rigid-body modes (a corner node
+    with a held component, a two-node aggregate of linear tetrahedra) makes some
+    of its columns dependent. In double precision pyamg sets those columns to
+    zero; in single precision their round-off (1e-7, above pyamg's threshold
+    1e-10) survives as spurious unit columns that duplicate others, and the
+    coarsest operator becomes singular ("Factor is exactly singular").
+    Zero columns are then removed (with the rows and columns of the coarse
+    operators they span and the rows of the next prolongator).
+
+    Returns
+    -------
+    Ps : list of csr_matrix
+        P_l (n_l x n_{l+1}).
+    ops : list of csr_matrix
+        Coarse operators, levels 1 .. L-1, double precision.
+    """
+    import pyamg
+
+    A64 = sp.csr_matrix((A.data.astype(np.float64, copy=False), A.indices, A.indptr),
+                        shape=A.shape)
+    ml = pyamg.smoothed_aggregation_solver(
+        A64, B=None if B is None else np.ascontiguousarray(B, dtype=np.float64),
+        symmetry="hermitian", strength=STRENGTH,
+        smooth=("jacobi", {"omega": 4.0 / 3.0, "degree": 1, "weighting": "local"}),
+        improve_candidates=None, max_coarse=max(COARSEST_UNKNOWNS // 6, 100),
+        max_levels=len(STRENGTH),
+        keep=False, presmoother=None, postsmoother=None, coarse_solver=None)
+    Ps = [sp.csr_matrix(lvl.P) for lvl in ml.levels[:-1]]
+    ops = [sp.csr_matrix(lvl.A) for lvl in ml.levels[1:]]
+    del ml, A64
+    for lev, P in enumerate(Ps):
+        norm = np.sqrt(np.asarray(P.multiply(P).sum(axis=0)).ravel())
+        keep = norm > 1e-12 * (norm.max() if norm.size else 1.0)
+        if keep.all():
+            continue
+        log.debug("smoothed aggregation: %d empty coarse dofs removed on level %d",
+                  int((~keep).sum()), lev + 1)
+        Ps[lev] = P[:, keep].tocsr()
+        ops[lev] = ops[lev][keep][:, keep].tocsr()
+        if lev + 1 < len(Ps):
+            Ps[lev + 1] = Ps[lev + 1][keep].tocsr()
+    return Ps, ops
+
+
 def algebraic_hierarchy(A: sp.csr_matrix, B: np.ndarray | None, dtype=np.float32
                         ) -> Hierarchy:
     """Smoothed-aggregation coarse spaces (pyamg) wrapped as a :class:`Hierarchy`.
 
-    The prolongators come from pyamg (standard aggregation, symmetric strength,
-    one Jacobi smoothing step with row-sum weighting); the cycle is the same as
-    for the geometric hierarchy.
+    The prolongators come from :func:`smoothed_aggregation_levels` (standard
+    aggregation, symmetric strength, one Jacobi smoothing step with row-sum
+    weighting); the cycle is the same as for the geometric hierarchy.
     """
-    import pyamg
-
-    A32 = sp.csr_matrix((A.data.astype(dtype), A.indices, A.indptr), shape=A.shape)
-    ml = pyamg.smoothed_aggregation_solver(
-        A32, B=None if B is None else np.ascontiguousarray(B, dtype=dtype),
-        symmetry="hermitian", strength="symmetric",
-        smooth=("jacobi", {"omega": 4.0 / 3.0, "degree": 1, "weighting": "local"}),
-        improve_candidates=None, max_coarse=max(COARSEST_UNKNOWNS // 6, 100), max_levels=10,
-        keep=False, presmoother=None, postsmoother=None, coarse_solver=None)
-    Ps = [lvl.P for lvl in ml.levels[:-1]]
-    ops = [lvl.A.astype(np.float64) for lvl in ml.levels[1:]]
-    del ml, A32
+    Ps, ops = smoothed_aggregation_levels(A, B)
     return Hierarchy(A, Ps, dtype=dtype, coarse_ops=ops)
+
+
+def p_hierarchy(A: sp.csr_matrix, E: sp.csr_matrix, B1: np.ndarray | None,
+                dtype=np.float32, sweeps=(1,)) -> Hierarchy:
+    """p-multigrid: the P2 level, the P1 level E^T A E, then smoothed aggregation on P1.
+
+    See :mod:`mesastrain.fem.pmultigrid`.
+
+    Parameters
+    ----------
+    A : csr_matrix (n2, n2)
+        Free-free block of the P2 matrix.
+    E : csr_matrix (n2, n1)
+        Prolongation from the free P1 dofs.
+    B1 : ndarray (n1, 6) or None
+        Rigid-body modes at the free P1 dofs.
+    sweeps : sequence of int
+        Gauss-Seidel sweeps per level (the first is the P2 level).
+    """
+    from mesastrain.fem.pmultigrid import galerkin
+
+    A1 = galerkin(A, E)
+    Ps, ops = smoothed_aggregation_levels(A1, B1)
+    return Hierarchy(A, [E, *Ps], dtype=dtype, coarse_ops=[A1, *ops], sweeps=sweeps)

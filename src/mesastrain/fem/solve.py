@@ -48,6 +48,7 @@ from mesastrain.fem import multigrid
 from mesastrain.fem.assembly import rigid_body_modes
 from mesastrain.fem.constraints import Boundary, reduce_dofs, reduce_system, support_dofs, tie_faces
 from mesastrain.fem.discretisation import Discretisation
+from mesastrain.fem.pmultigrid import linear_space
 
 log = logging.getLogger(__name__)
 
@@ -92,8 +93,9 @@ class SolverReport:
     Attributes
     ----------
     method : str
-        ``"direct"``, ``"amg-cg"`` (smoothed aggregation) or ``"gmg-cg"``
-        (geometric multigrid), or ``"none"`` for a zero load.
+        ``"direct"``, ``"amg-cg"`` (smoothed aggregation), ``"gmg-cg"``
+        (geometric multigrid), ``"pmg-cg"`` (p-multigrid on quadratic
+        tetrahedra), or ``"none"`` for a zero load.
     unknowns : int
         Free unknowns after condensation.
     iterations : int
@@ -266,7 +268,7 @@ def solve_condensed(K: sp.csr_matrix, f: np.ndarray, fixed: np.ndarray,
                     tol: float = 1e-8, maxiter: int = 2000,
                     progress=None, *, stress_tol: float = STRESS_TOL,
                     precision: str = "single", direct_limit: int | None = None,
-                    spaces=None) -> tuple[np.ndarray, SolverReport]:
+                    spaces=None, linear=None) -> tuple[np.ndarray, SolverReport]:
     """Solve K u = f with u = 0 on the fixed dofs.
 
     Parameters
@@ -298,6 +300,11 @@ def solve_condensed(K: sp.csr_matrix, f: np.ndarray, fixed: np.ndarray,
         (:meth:`mesastrain.fem.assembly.SymbolicCache.coarse_spaces`; a callable
         is called only when the iterative solver runs). None: algebraic
         multigrid.
+    linear : LinearSpace, optional
+        The P1 space inside a P2 tetrahedral discretisation
+        (:func:`mesastrain.fem.pmultigrid.linear_space`): p-multigrid, smoothed
+        aggregation on P1 below a Gauss-Seidel-smoothed P2 level. Used when
+        ``spaces`` is None.
 
     Returns
     -------
@@ -351,6 +358,15 @@ def solve_condensed(K: sp.csr_matrix, f: np.ndarray, fixed: np.ndarray,
                 H = multigrid.Hierarchy(A.K, multigrid.restrict_spaces(spaces, free),
                                         dtype=dtype, keep=free)
                 method_name = "gmg-cg"
+            elif linear is not None:
+                A = condense(K, free)
+                E, free1 = linear.vector_prolongation(free)
+                B1 = None
+                if near_null is not None:
+                    B1 = np.asarray(near_null).reshape(-1, 3, near_null.shape[1])[
+                        linear.vertices].reshape(-1, near_null.shape[1])[free1]
+                H = multigrid.p_hierarchy(A, E, B1, dtype=dtype)
+                method_name = "pmg-cg"
             else:
                 A = condense(K, free)
                 B = None if near_null is None else np.asarray(near_null)[idx]
@@ -407,7 +423,7 @@ def solve_model(K, f, disc: Discretisation, boundary: Boundary, solver, progress
     modes = rigid_body_modes(disc.doflocs)
     if not boundary.periodic:
         return solve_condensed(K, f, fixed, modes, progress=progress, spaces=spaces,
-                               **solver_options(solver))
+                               linear=linear_space(disc), **solver_options(solver))
     ties = tie_faces(disc.doflocs, boundary.periodic)
     Kr, fr, P = reduce_system(K, f, ties)
     rows = (ties.independent[:, None] * 3 + np.arange(3)).ravel()

@@ -42,6 +42,20 @@ from mesastrain.mesh.unstructured import UnstructuredMesh, box_boundary
 
 log = logging.getLogger(__name__)
 
+#: Above this many expected tetrahedra gmsh meshes with its parallel 3-D algorithm (HXT,
+#: Marot, Pellerin and Remacle, Int. J. Numer. Meth. Eng. 117, 2019) and with the size
+#: function given as gmsh's own distance/threshold fields (evaluated in C++, not through
+#: a Python callback, which cost about 0.5 ms a call and 80 % of the meshing time).
+#: Below it the single-threaded Delaunay mesher and the exact callback are kept, so the
+#: meshes of small cases (every demo case) stay what they were.
+PARALLEL_TETS = 100_000
+
+#: gmsh wall time per tetrahedron, including OpenCASCADE and reading the mesh back, with the
+#: Python size callback and with HXT and size fields (benchmarks/tet_scaling.py, L-shaped
+#: pad, 25k-170k tetrahedra, load average about 3 on 2 cores).
+GMSH_S_PER_TET = 2.0e-4
+GMSH_S_PER_TET_PARALLEL = 8.0e-5
+
 #: Fraction of the element volume h^3 a tetrahedron of size h occupies on average in gmsh
 #: meshes (measured on this project's shapes; used by the size estimate only).
 TET_VOLUME_FACTOR = 0.16
@@ -182,7 +196,8 @@ def shape_spec(case, mirrors=()) -> ShapeSpec:
 #: gmsh options this module sets (restored afterwards when gmsh was already running).
 _OPTIONS = ("General.Terminal", "General.Verbosity", "Mesh.MeshSizeFromPoints",
             "Mesh.MeshSizeFromCurvature", "Mesh.MeshSizeExtendFromBoundary", "Mesh.MeshSizeMax",
-            "Mesh.MeshSizeMin", "Mesh.ElementOrder", "Mesh.Optimize")
+            "Mesh.MeshSizeMin", "Mesh.ElementOrder", "Mesh.Optimize", "Mesh.Algorithm3D",
+            "General.NumThreads")
 
 
 _STOP_SIGNALS = tuple(getattr(signal, n) for n in ("SIGINT", "SIGTERM") if hasattr(signal, n))
@@ -417,6 +432,132 @@ def _set_periodic(gmsh, spec: ShapeSpec, zlo: float, zhi: float) -> None:
             gmsh.model.mesh.setPeriodic(2, [slave], [match], affine)
 
 
+def _expected_tets(spec: ShapeSpec) -> float:
+    """Tetrahedra the size field asks for: the integral of 1 / (TET_VOLUME_FACTOR h^3).
+
+    Midpoint rule on a grid graded like the size field itself.
+    """
+    field = SizeField(spec)
+    x0, x1, y0, y1 = spec.box
+    he, g, cap = spec.sizes.edge_size, spec.sizes.growth, spec.sizes.lateral_cap
+    hx, hy = spec.foot_outline.half_extent()
+
+    def axis(lo, hi, half):
+        brk = sorted({lo, hi, *[v for v in (-half, half) if lo < v < hi]})
+        sizes = [he if abs(abs(b) - half) < 1e-9 * (hi - lo) else None for b in brk]
+        return join_segments(brk, sizes, [cap] * (len(brk) - 1), g)
+
+    xs, ys = axis(x0, x1, hx), axis(y0, y1, hy)
+    zb = sorted({-spec.depth, *spec.interfaces, spec.floor})
+    zs = join_segments(zb, [None] + [spec.sizes.size] * (len(zb) - 1),
+                       [cap] * (len(zb) - 1), g)
+    xm, ym, zm = (0.5 * (a[1:] + a[:-1]) for a in (xs, ys, zs))
+    vol = np.diff(xs)[:, None] * np.diff(ys)[None, :]
+    X, Y = np.meshgrid(xm, ym, indexing="ij")
+    count = 0.0
+    for k, z in enumerate(zm):
+        h = field(X, Y, np.full_like(X, z))
+        inside = np.ones_like(X, dtype=bool)
+        if z > spec.floor:
+            inside = spec.outline_at(z).contains(X, Y)
+        dz = zs[k + 1] - zs[k]
+        count += float(np.sum(vol[inside] / (TET_VOLUME_FACTOR * h[inside] ** 3))) * dz
+    return count
+
+
+def _size_fields(gmsh, spec: ShapeSpec) -> None:
+    """The size function of :class:`SizeField` as gmsh fields (background mesh field).
+
+    h_edge + (g - 1) d to the sidewall surfaces and h_film + (g - 1) d to the
+    film volumes are Threshold fields on Distance fields (linear growth, capped
+    at h_max), h_film inside the film a Constant field; their minimum is the
+    size. The distances are to points sampled on the surfaces at half the local
+    size, so they agree with :class:`SizeField` to within a quarter element.
+    """
+    fld = gmsh.model.mesh.field
+    s = spec.sizes
+    g = max(s.growth - 1.0, 1e-6)
+    x0, x1, y0, y1 = spec.box
+    low = min(0.0, spec.floor)
+    tol = 1e-6 * (spec.top + spec.depth)
+    film, feature = [], []
+    for _, vol in gmsh.model.getEntities(3):
+        zc = gmsh.model.occ.getCenterOfMass(3, vol)[2]
+        if zc > low:
+            film.append(vol)
+        if zc > spec.floor:
+            feature.append(vol)
+
+    def faces(vols):
+        out = gmsh.model.getBoundary([(3, v) for v in vols], combined=False, oriented=False)
+        return sorted({abs(t) for d, t in out if d == 2})
+
+    sides = []
+    for tag in faces(feature):
+        bx0, by0, bz0, bx1, by1, bz1 = gmsh.model.getBoundingBox(2, tag)
+        if bz1 - bz0 <= tol:
+            continue                       # horizontal: top, interface or floor
+        on_box = ((bx1 - bx0 <= tol and min(abs(bx0 - x0), abs(bx0 - x1)) <= tol)
+                  or (by1 - by0 <= tol and min(abs(by0 - y0), abs(by0 - y1)) <= tol))
+        if not on_box:
+            sides.append(tag)
+    fields = []
+
+    def distance_threshold(tags, h):
+        ext = 0.0
+        for tag in tags:
+            b = gmsh.model.getBoundingBox(2, tag)
+            ext = max(ext, b[3] - b[0], b[4] - b[1], b[5] - b[2])
+        d = fld.add("Distance")
+        fld.setNumbers(d, "SurfacesList", tags)
+        fld.setNumber(d, "Sampling", int(min(max(np.ceil(2.0 * ext / h), 20), 2000)))
+        th = fld.add("Threshold")
+        fld.setNumber(th, "InField", d)
+        fld.setNumber(th, "SizeMin", h)
+        fld.setNumber(th, "SizeMax", max(s.lateral_cap, h))
+        fld.setNumber(th, "DistMin", 0.0)
+        fld.setNumber(th, "DistMax", max((s.lateral_cap - h) / g, 1e-9))
+        fields.append(th)
+
+    if sides:
+        distance_threshold(sides, s.edge_size)
+    if film:
+        distance_threshold(faces(film), s.size)
+        c = fld.add("Constant")
+        fld.setNumbers(c, "VolumesList", film)
+        fld.setNumber(c, "VIn", s.size)
+        fld.setNumber(c, "VOut", s.lateral_cap)
+        fields.append(c)
+    if not fields:
+        c = fld.add("Constant")
+        fld.setNumber(c, "VIn", s.lateral_cap)
+        fld.setNumber(c, "VOut", s.lateral_cap)
+        fields.append(c)
+    m = fld.add("Min")
+    fld.setNumbers(m, "FieldsList", fields)
+    fld.setAsBackgroundMesh(m)
+
+
+#: Smallest signed inverse condition number (gmsh "minSICN", 1 for the regular tetrahedron)
+#: accepted without a second optimisation pass. One sliver (0.0002) in 25k tetrahedra of the
+#: L-shaped pad at mesh.size 19 nm made the multigrid smoother fail (145 instead of about
+#: 20 iterations); meshes without slivers are left exactly as gmsh made them.
+SLIVER_QUALITY = 0.02
+
+
+def _remove_slivers(gmsh) -> None:
+    """Run gmsh's Netgen optimiser when the mesh holds a sliver (see :data:`SLIVER_QUALITY`)."""
+    tags, _ = gmsh.model.mesh.getElementsByType(4)
+    if len(tags) == 0:
+        return
+    q = np.asarray(gmsh.model.mesh.getElementQualities(tags, "minSICN"))
+    if q.min() >= SLIVER_QUALITY:
+        return
+    log.info("gmsh: %d tetrahedra below quality %g; optimising with Netgen",
+             int((q < SLIVER_QUALITY).sum()), SLIVER_QUALITY)
+    gmsh.model.mesh.optimize("Netgen")
+
+
 def mesh_shape(spec: ShapeSpec) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Run gmsh on a shape specification.
 
@@ -460,10 +601,17 @@ def mesh_shape(spec: ShapeSpec) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         opt.setNumber("Mesh.MeshSizeMin", 0.5 * spec.sizes.edge_size)
         opt.setNumber("Mesh.ElementOrder", 1)
         opt.setNumber("Mesh.Optimize", 1)
-        gmsh.model.mesh.setSizeCallback(
-            lambda dim, tag, x, y, z, lc: float(field(x, y, z)))
+        parallel = _expected_tets(spec) > PARALLEL_TETS
+        if parallel:
+            _size_fields(gmsh, spec)
+            opt.setNumber("Mesh.Algorithm3D", 10)
+            opt.setNumber("General.NumThreads", max(1, min(os.cpu_count() or 1, 8)))
+        else:
+            gmsh.model.mesh.setSizeCallback(
+                lambda dim, tag, x, y, z, lc: float(field(x, y, z)))
         try:
             gmsh.model.mesh.generate(3)
+            _remove_slivers(gmsh)
         except Exception as exc:    # gmsh raises plain Exceptions
             raise MeshError(f"gmsh could not mesh the shape: {exc}") from None
         tags, coords, _ = gmsh.model.mesh.getNodes()
@@ -530,33 +678,10 @@ def estimate_shape(case) -> Estimate:
     scalar dofs per tetrahedron, a P1 mesh about 0.18.
     """
     spec = shape_spec(case, ())
-    field = SizeField(spec)
-    x0, x1, y0, y1 = spec.box
-    he, g, cap = spec.sizes.edge_size, spec.sizes.growth, spec.sizes.lateral_cap
-    hx, hy = spec.foot_outline.half_extent()
-
-    def axis(lo, hi, half):
-        brk = sorted({lo, hi, *[v for v in (-half, half) if lo < v < hi]})
-        sizes = [he if abs(abs(b) - half) < 1e-9 * (hi - lo) else None for b in brk]
-        return join_segments(brk, sizes, [cap] * (len(brk) - 1), g)
-
-    xs, ys = axis(x0, x1, hx), axis(y0, y1, hy)
-    zb = sorted({-spec.depth, *spec.interfaces, spec.floor})
-    zs = join_segments(zb, [None] + [spec.sizes.size] * (len(zb) - 1),
-                       [cap] * (len(zb) - 1), g)
-    xm, ym, zm = (0.5 * (a[1:] + a[:-1]) for a in (xs, ys, zs))
-    vol = np.diff(xs)[:, None] * np.diff(ys)[None, :]
-    count = 0.0
-    for k, z in enumerate(zm):
-        X, Y = np.meshgrid(xm, ym, indexing="ij")
-        h = field(X, Y, np.full_like(X, z))
-        inside = np.ones_like(X, dtype=bool)
-        if z > spec.floor:
-            inside = spec.outline_at(z).contains(X, Y)
-        dz = zs[k + 1] - zs[k]
-        count += float(np.sum(vol[inside] / (TET_VOLUME_FACTOR * h[inside] ** 3))) * dz
+    count = _expected_tets(spec)
     nel = max(int(count), 1)
+    gmsh_s = nel * (GMSH_S_PER_TET_PARALLEL if count > PARALLEL_TETS else GMSH_S_PER_TET)
     order = case.mesh.order
     scalar = int(nel * (1.4 if order == 2 else 0.18)) + 1
     return estimate_from_counts(case, int(nel * 0.18) + 1, nel, scalar, 10 if order == 2 else 4,
-                                90 if order == 2 else 45)
+                                90 if order == 2 else 45, mesh_seconds=gmsh_s)
