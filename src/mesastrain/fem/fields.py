@@ -209,13 +209,42 @@ def evaluate_at_points(disc: Discretisation, u: np.ndarray, elements: np.ndarray
         dx = np.einsum("ijp,ip->jp", invDF[:, :, :, 0], dphi)     # (3, npts)
         grad += np.einsum("pi,jp->pij", ue[:, a, :], dx)
         disp += phi[:, None] * ue[:, a, :]
-    tot = _sym(grad)
+    el, sig = elastic_state(_sym(grad), elements, region, stiffness, eigenstrain,
+                            cell_eigenstrain)
+    return el, sig, disp
+
+
+def elastic_state(total_strain, elements, region, stiffness, eigenstrain,
+                  cell_eigenstrain=None) -> tuple[np.ndarray, np.ndarray]:
+    """Elastic strain and stress at points from their total strain.
+
+    Parameters
+    ----------
+    total_strain : ndarray (npts, 3, 3)
+        Symmetric total strain at each point.
+    elements : ndarray of int (npts,)
+        Element holding each point.
+    region : ndarray of int (nelems,)
+        Region of every element.
+    stiffness : ndarray (nregions, 6, 6)
+        Sample-frame Voigt stiffness per region, GPa.
+    eigenstrain : ndarray (nregions, 3, 3)
+    cell_eigenstrain : ndarray (nelems, 3, 3), optional
+        Per-element eigenstrain added to the region's own.
+
+    Returns
+    -------
+    strain : ndarray (npts, 3, 3)
+        Elastic strain (total minus eigenstrain).
+    stress : ndarray (npts, 3, 3)
+        MPa.
+    """
     C = voigt_to_full(np.asarray(stiffness, dtype=float))
-    el = tot - np.asarray(eigenstrain)[region[elements]]
+    el = total_strain - np.asarray(eigenstrain)[region[elements]]
     if cell_eigenstrain is not None:
         el = el - cell_eigenstrain[elements]
     sig = np.einsum("nijkl,nkl->nij", C[region[elements]], el) * GPA_TO_MPA
-    return el, sig, disp
+    return el, sig
 
 
 def reference_coordinates(mapping, x: np.ndarray, elements: np.ndarray,

@@ -31,12 +31,11 @@ import numpy as np
 from mesastrain.fem.constraints import Boundary
 from mesastrain.fem.cost import Estimate, estimate_from_counts
 from mesastrain.fem.discretisation import INTORDER, Discretisation
-from mesastrain.fem.fields import GPA_TO_MPA, Fields, reference_coordinates
+from mesastrain.fem.fields import Fields, elastic_state, reference_coordinates
 from mesastrain.mesh.base import ModelMesh
 from mesastrain.mesh.grid import GridSpacing, StackLayout, axis_coordinates
 from mesastrain.mesh.planning import layout_of
 from mesastrain.mesh.structured import distinct_rows, grid_cells
-from mesastrain.physics.crystal import voigt_to_full
 
 #: Thickness of the exported slab along y, as a fraction of the modelled x extent.
 SLAB_FRACTION = 0.05
@@ -220,12 +219,8 @@ class SectionMesh(ModelMesh):
             d3 = np.stack([d2[0], np.zeros_like(d2[0]), d2[1]])
             grad += np.einsum("pi,jp->pij", ue[:, a, :], d3)
             disp += phi[:, None] * ue[:, a, :]
-        tot = 0.5 * (grad + grad.transpose(0, 2, 1))
-        C = voigt_to_full(np.asarray(stiffness, dtype=float))
-        el = tot - np.asarray(eigenstrain)[region[elements]]
-        if cell_eigenstrain is not None:
-            el = el - cell_eigenstrain[elements]
-        sig = np.einsum("nijkl,nkl->nij", C[region[elements]], el) * GPA_TO_MPA
+        el, sig = elastic_state(0.5 * (grad + grad.transpose(0, 2, 1)), elements, region,
+                                stiffness, eigenstrain, cell_eigenstrain)
         return el, sig, disp
 
     def unfolded(self, uf) -> SectionMesh:
