@@ -20,7 +20,6 @@ import numpy as np
 # the 6-component layout is defined with the fields (derived quantities use it too)
 from mesastrain.fem.fields import VTK_TENSOR_ORDER, from_vtk6, to_vtk6  # noqa: F401
 
-
 #: VTK cell type ids of the meshio cell names the meshes export.
 _VTK_CELL = {"hexahedron": 12, "tetra": 10, "tetra10": 24, "hexahedron27": 29, "wedge": 13,
              "quad": 9, "triangle": 5}

@@ -91,7 +91,8 @@ class FieldSource:
         self.grown = np.stack([gp.min(axis=1), gp.max(axis=1)], axis=1)   # (3, 2)
         self.model = np.stack([p.min(axis=1), p.max(axis=1)], axis=1)
         self.top = float(self.grown[2, 1])
-        self.stack = max(self.top, 1e-9)
+        # height of the grown stack (for a buried region, its depth below the top)
+        self.stack = max(self.top, self.top - float(self.grown[2, 0]), 1e-9)
         first = self.region == 1
         if np.any(first):
             z1 = p[2, np.unique(t[:nv, first])]
@@ -292,7 +293,9 @@ def draw_map(src: FieldSource, png: Path, name: str, view: str = "section",
     axw = 6.2 if aspect < 0.8 else 5.0
     axh = min(axw * aspect, 5.5)
     axw = axh / aspect if axw * aspect > axh else axw
-    caption = title or f"{label}, {where_text}"
+    to_scale = axh >= 1.2       # a thin slab seen from above: stretched, and said so
+    axh = max(axh, 1.2)
+    caption = title or f"{label}, {where_text}" + ("" if to_scale else " (not to scale)")
     clip = (f"colour scale centred on zero; limits: {percentile:g}th percentile of the "
             f"magnitude in the layers, rounded up (corner peaks beyond it)" if signed else
             f"colour limits: {percentile:g}th percentile in the layers, rounded up "
@@ -320,7 +323,7 @@ def draw_map(src: FieldSource, png: Path, name: str, view: str = "section",
     ax.add_collection(LineCollection(seg, colors="k", linewidths=0.9))
     ax.set_xlim(*xl)
     ax.set_ylim(*yl)
-    ax.set_aspect("equal")
+    ax.set_aspect("equal" if to_scale else "auto")
     ax.set_xlabel(xlab)
     ax.set_ylabel(ylab)
     ax.xaxis.set_major_locator(MaxNLocator(nbins=7, steps=[1, 2, 2.5, 5, 10]))

@@ -1,9 +1,11 @@
 """Plane sections of a result held in memory, for the 2-D pictures.
 
 A section of the body on an axis plane (x, y or z = const) is cut from the
-linear vertices of the mesh: hexahedra are split into six tetrahedra and each
-tetrahedron crossing the plane gives a triangle or a quadrilateral (two
-triangles). The section's points lie on mesh edges; a point belongs to one
+linear vertices of the mesh: a hexahedron crossing the plane gives a convex
+polygon of three to six corners on its edges (fanned into triangles), a
+tetrahedron a triangle or a quadrilateral. Only element edges are cut (no
+diagonals), so neighbouring elements share the section's points whatever
+their local vertex order (mirrored halves included). The section's points lie on mesh edges; a point belongs to one
 region, so points on an interface are doubled, one per side, and values that
 jump across interfaces (stress, strain) stay sharp.
 
@@ -28,9 +30,9 @@ import numpy as np
 
 __all__ = ["Section", "cut"]
 
-#: Hexahedron -> six tetrahedra (scikit-fem's local vertex order, ``MeshHex1.to_meshtet``).
-_HEX_TETS = np.array([[0, 1, 3, 4], [0, 3, 2, 4], [2, 3, 4, 6], [3, 4, 6, 7], [3, 4, 5, 7],
-                      [1, 3, 4, 5]])
+#: The twelve edges of a hexahedron in scikit-fem's local vertex order (``MeshHex1``).
+_HEX_EDGES = np.array([(0, 1), (0, 2), (0, 3), (1, 4), (1, 5), (2, 4), (2, 6), (3, 5), (3, 6),
+                       (4, 7), (5, 7), (6, 7)])
 
 
 @dataclass
@@ -131,12 +133,54 @@ def _regional_weights(sec: Section, t, region, volume):
     return rows, cols, wv / wsum[rows], len(uniq), pair_a, pair_b
 
 
-def _tetrahedra(t: np.ndarray, els: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Linear tetrahedra (4, m) of the given elements and their parent element."""
-    if t.shape[0] >= 8:                 # hexahedra
-        tets = t[:8, els][_HEX_TETS.T]  # (4, 6, m)
-        return tets.reshape(4, -1), np.tile(els, 6)
-    return t[:4, els], els
+def _hex_polygons(p, t, d, els, region, axis):
+    """Corners (a, b, region) and triangles of the polygons cut from hexahedra ``els``."""
+    v = t[:8, els]
+    ea, eb = v[_HEX_EDGES[:, 0]], v[_HEX_EDGES[:, 1]]          # (12, m)
+    cross = (d[ea] > 0) != (d[eb] > 0)
+    s = d[ea] / np.where(cross, d[ea] - d[eb], 1.0)
+    keep = [i for i in range(3) if i != axis]
+    pa, pb = p[keep][:, ea], p[keep][:, eb]                      # (2, 12, m)
+    xy = pa + s * (pb - pa)
+    k = cross.sum(axis=0)
+    c = np.where(cross, xy, 0.0).sum(axis=1) / np.maximum(k, 1)  # centroid (2, m)
+    ang = np.where(cross, np.arctan2(xy[1] - c[1], xy[0] - c[0]), np.inf)
+    order = np.argsort(ang, axis=0)                              # crossing corners first
+    m = len(els)
+    base = np.arange(m) * 12
+    corner_a = np.take_along_axis(ea, order, 0).T.ravel()
+    corner_b = np.take_along_axis(eb, order, 0).T.ravel()
+    lo, hi = np.minimum(corner_a, corner_b), np.maximum(corner_a, corner_b)
+    corners = np.stack([lo, hi, np.repeat(region[els], 12)], axis=1)
+    tris = [np.stack([base, base + i, base + i + 1], axis=1)[k > i + 1] for i in range(1, 5)]
+    return corners, np.concatenate(tris)
+
+
+def _tet_polygons(t, d, els, region):
+    """Corners (a, b, region) and triangles of the triangles/quads cut from tetrahedra."""
+    tets = t[:4, els]
+    pos = d[tets] > 0
+    k = pos.sum(axis=0)
+    order = np.argsort(~pos, axis=0, kind="stable")     # positive vertices first
+    v = np.take_along_axis(tets, order, axis=0)
+    corners, tris, base = [], [], 0
+    for kk, edges in ((1, [(0, 1), (0, 2), (0, 3)]), (3, [(3, 0), (3, 1), (3, 2)]),
+                      (2, [(0, 2), (0, 3), (1, 3), (1, 2)])):
+        m = k == kk
+        if not np.any(m):
+            continue
+        ends = np.stack([np.stack([v[i, m], v[j, m]], axis=1) for i, j in edges], axis=1)
+        n, nc = ends.shape[0], ends.shape[1]
+        corners.append(np.concatenate([np.sort(ends, axis=2).reshape(-1, 2),
+                                       np.repeat(region[els[m]], nc)[:, None]], axis=1))
+        idx = base + np.arange(n * nc).reshape(n, nc)
+        tris.append(idx[:, [0, 1, 2]])
+        if nc == 4:
+            tris.append(idx[:, [0, 2, 3]])
+        base += n * nc
+    if not corners:
+        return np.zeros((0, 3), dtype=np.int64), np.zeros((0, 3), dtype=np.int64)
+    return np.concatenate(corners), np.concatenate(tris)
 
 
 def cut(p: np.ndarray, t: np.ndarray, region: np.ndarray, axis: int,
@@ -165,39 +209,18 @@ def cut(p: np.ndarray, t: np.ndarray, region: np.ndarray, axis: int,
     nv = 8 if t.shape[0] >= 8 else 4
     de = d[t[:nv]]
     els = np.flatnonzero((de.min(axis=0) < 0) & (de.max(axis=0) > 0))
-    tets, parent = _tetrahedra(t, els)
-    dt = d[tets]
-    pos = dt > 0
-    k = pos.sum(axis=0)
-    keep = (k > 0) & (k < 4)
-    tets, parent, pos, k = tets[:, keep], parent[keep], pos[:, keep], k[keep]
-    order = np.argsort(~pos, axis=0, kind="stable")     # positive vertices first
-    v = np.take_along_axis(tets, order, axis=0)
-    pieces = []     # (edge ends (m, 3|4, 2), parent)
-    for kk, edges in ((1, [(0, 1), (0, 2), (0, 3)]), (3, [(3, 0), (3, 1), (3, 2)]),
-                      (2, [(0, 2), (0, 3), (1, 3), (1, 2)])):
-        m = k == kk
-        if np.any(m):
-            ends = np.stack([np.stack([v[i, m], v[j, m]], axis=1) for i, j in edges], axis=1)
-            pieces.append((ends, parent[m]))
-    if not pieces:
+    if nv == 8:
+        corners, tri = _hex_polygons(p, t, d, els, region, axis)
+    else:
+        corners, tri = _tet_polygons(t, d, els, region)
+    if len(tri) == 0:
         empty = np.zeros(0, dtype=np.int64)
         return Section(axis, position, np.zeros((0, 2)), np.zeros((0, 3), dtype=np.int64),
                        empty, empty, empty, np.zeros(0))
-    # every corner of every polygon as (a, b, region); a < b so shared edges coincide
-    corners, tri_local = [], []
-    base = 0
-    for ends, par in pieces:
-        m, nc = ends.shape[0], ends.shape[1]
-        corners.append(np.concatenate([np.sort(ends, axis=2).reshape(-1, 2),
-                                       np.repeat(region[par], nc)[:, None]], axis=1))
-        idx = base + np.arange(m * nc).reshape(m, nc)
-        tri_local.append(idx[:, [0, 1, 2]])
-        if nc == 4:
-            tri_local.append(idx[:, [0, 2, 3]])
-        base += m * nc
-    corners = np.concatenate(corners)
-    tri = np.concatenate(tri_local)
+    used = np.zeros(len(corners), dtype=bool)        # (a hexahedron's uncut edges: unused)
+    used[tri.ravel()] = True
+    tri = (np.cumsum(used) - 1)[tri]
+    corners = corners[used]
     a, b, r = corners[:, 0], corners[:, 1], corners[:, 2]
     s = d[a] / (d[a] - d[b])
     # a corner at a vertex on the plane is that vertex, whatever edge it came from
