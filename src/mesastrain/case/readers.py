@@ -327,24 +327,25 @@ def shape_name(shapes: tuple):
     return read
 
 
-def component_list(allowed: tuple):
-    """A reader of a non-empty list of field component names out of ``allowed``.
+def component_list(allowed: tuple, what: str = "field component",
+                   example: str = '["stress_xx", "von_mises"]'):
+    """A reader of a non-empty list of names out of ``allowed`` (``what`` names them).
 
     Repeated names are dropped (first kept); a list longer than MAX_ITEMS is refused.
     """
     def read(value, key: str) -> tuple:
         if not isinstance(value, list) or not value or not all(isinstance(v, str)
                                                                 for v in value):
-            raise CaseError(key, f'expected a list of component names, e.g. ["stress_xx", '
-                                 f'"von_mises"], got {_brief(value)}')
+            raise CaseError(key, f'expected a list of {what} names, e.g. {example}, '
+                                 f'got {_brief(value)}')
         if len(value) > MAX_ITEMS:
-            raise CaseError(key, f"{len(value)} components; at most {MAX_ITEMS} (there are "
+            raise CaseError(key, f"{len(value)} names; at most {MAX_ITEMS} (there are "
                                  f"{len(allowed)} different ones)")
         for i, v in enumerate(value):
             if v not in allowed:
                 close = difflib.get_close_matches(v, allowed, n=1)
                 hint = f'did you mean "{close[0]}"? ' if close else ""
-                raise CaseError(f"{key}[{i}]", f"{_brief(v)} is not a field component; "
+                raise CaseError(f"{key}[{i}]", f"{_brief(v)} is not a {what}; "
                                                f"{hint}allowed: {', '.join(allowed)}")
         return tuple(dict.fromkeys(value))
     return read

@@ -37,8 +37,9 @@ from mesastrain.physics.raman_data import pdp_sets
 from mesastrain.units import LENGTH_UNITS, MAX_LENGTH_NM, MAX_TEMPERATURE_K, TEMPERATURE_UNITS
 
 __all__ = [
-    "CARRIERS", "DEFAULT_CUT_COMPONENTS", "DEFAULT_MAPS", "FEATURE_SHAPES", "FIELD_COMPONENTS",
-    "INSIDE_RTOL", "MATERIAL", "MATERIAL_KEYS", "MAX_CUT_POINTS", "MAX_SOLVER_ITERATIONS",
+    "CARRIERS", "DEFAULT_CUT_COMPONENTS", "DEFAULT_MAPS", "DEFAULT_VTU_FIELDS",
+    "FEATURE_SHAPES", "FIELD_COMPONENTS", "INSIDE_RTOL", "MATERIAL", "MATERIAL_KEYS",
+    "MAX_CUT_POINTS", "MAX_SOLVER_ITERATIONS", "VTU_FIELDS",
     "PATTERN_SHAPES", "SCHEMA_FILE", "SCHEMA_VERSION", "SHAPE_KEYS",
     "SHAPE_REQUIRES", "SIDEWALL_ANGLE_RANGE", "SOLVER_METHODS", "SOLVER_PRECISIONS",
     "SYMMETRY_CHOICES", "TABLES", "TITLE", "TOP_KEYS", "default_order", "json_schema",
@@ -70,6 +71,11 @@ FIELD_COMPONENTS = tuple(f"{q}_{c}" for q in ("stress", "strain")
                          for c in ("xx", "yy", "zz", "yz", "xz", "xy")) + (
     "displacement_x", "displacement_y", "displacement_z", "von_mises", "hydrostatic",
     "principal_max", "principal_min")
+#: Arrays ``[output] fields`` may ask ``fields.vtu`` to hold (``layer`` is always written).
+VTU_FIELDS = ("displacement", "stress", "strain", "von_mises", "element_strain", "total_strain",
+              "hydrostatic", "stress_crystal", "strain_crystal", "derived")
+#: What ``fields.vtu`` holds when ``[output] fields`` is not given (about 80 bytes per node).
+DEFAULT_VTU_FIELDS = ("displacement", "stress", "strain", "von_mises")
 #: Components a line cut plots when its ``components`` key is not given.
 DEFAULT_CUT_COMPONENTS = ("stress_xx", "stress_yy", "stress_zz", "stress_xz")
 #: Components drawn as plan-view and cross-section maps when ``output.maps`` is not given.
@@ -365,6 +371,20 @@ OUTPUT = Table("output", "output", "Output switches.", (
     Key("report", BOOL, "Write report.html with its pictures.", default=True),
     Key("maps", COMPONENTS, "Components drawn as plan-view and cross-section maps.",
         default=DEFAULT_MAPS),
+    Key("fields", Kind(rd.component_list(VTU_FIELDS, "fields.vtu array",
+                                         '["displacement", "stress", "strain"]'),
+                       {"type": "array", "minItems": 1, "items": {"enum": list(VTU_FIELDS)}}),
+        "Arrays written to fields.vtu besides the layer ids: displacement, stress (nodal and "
+        "element average), strain (nodal), von_mises (nodal), element_strain, total_strain "
+        "(element averages), hydrostatic (nodal), stress_crystal and strain_crystal (element "
+        "averages in each layer's crystal axes, with crystal_frame), derived (every "
+        "derived-quantity field: device, dislocations ...).", default=DEFAULT_VTU_FIELDS),
+    Key("precision", _choice(("single", "double")),
+        "Floating-point precision of the arrays in fields.vtu (single: 4 bytes, about 7 "
+        "digits).", default="single"),
+    Key("pictures", BOOL, "Draw the PNG pictures (maps, plots); false with report = false "
+                          "writes summary.json, fields.vtu and the CSV tables only (what "
+                          "run --quick does).", default=True),
 ))
 
 CHANNEL = Table("channel", "channels", "Conduction channels for the piezoresistance readout.", (

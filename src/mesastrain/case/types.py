@@ -307,12 +307,22 @@ class OutputSettings:
     maps : tuple of str
         Components (:data:`mesastrain.case.schema.FIELD_COMPONENTS`) drawn as plan-view and
         cross-section maps in the report.
+    fields : tuple of str
+        Arrays in ``fields.vtu`` besides ``layer``
+        (:data:`mesastrain.case.schema.VTU_FIELDS`).
+    precision : {"single", "double"}
+        Floating-point precision of those arrays.
+    pictures : bool
+        Draw the PNG pictures (maps and plots).
     """
 
     vtu: bool
     crystal_frame: bool
     report: bool = OUTPUT.default("report")
     maps: tuple = OUTPUT.default("maps")
+    fields: tuple = OUTPUT.default("fields")
+    precision: str = OUTPUT.default("precision")
+    pictures: bool = OUTPUT.default("pictures")
 
 
 @dataclass(frozen=True)

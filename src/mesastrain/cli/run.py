@@ -86,8 +86,11 @@ def _solve_and_write(args, case, dest) -> int:
                                             providers=PROVIDERS)
     else:
         res = solve_and_derive(case, progress=progress, max_memory_gb=args.max_memory)
-    progress("writing results")
-    write_result(res, dest)
+    quick = getattr(args, "quick", False)
+    write_result(res, dest, quick=quick, progress=progress)
+    parts = [(k, res.timings[f"write_{k}"]) for k in ("fields", "tables", "pictures", "report")
+             if f"write_{k}" in res.timings]
+    progress("written: " + ", ".join(f"{k} {v:.1f} s" for k, v in parts))
     summary = jsonable(summary_of(res))
     if not args.quiet:
         print(results_table(summary))
@@ -96,7 +99,10 @@ def _solve_and_write(args, case, dest) -> int:
 
             print()
             print(convergence_table(study))
-        print(f"results in {out}/ (summary.json, fields.vtu)")
+        made = "summary.json, fields.vtu" if case.output.vtu else "summary.json"
+        if not quick and case.output.pictures:
+            made += ", pictures" + (", report.html" if case.output.report else "")
+        print(f"results in {out}/ ({made})")
         print(CAUTION)
     return 0
 
@@ -125,6 +131,9 @@ def add_command(subparsers) -> None:
     r.add_argument("--progress", action="store_true",
                    help="show progress even when stderr is not a terminal")
     r.add_argument("-q", "--quiet", action="store_true", help="no result table")
+    r.add_argument("--quick", action="store_true",
+                   help="write summary.json, fields.vtu and the CSV tables only: no pictures, "
+                        "no report")
     r.add_argument("--convergence", action="store_true",
                    help="also solve with element sizes / 1.5 and / 2.25 and report how the "
                         "headline figures move (observed order, verdict)")

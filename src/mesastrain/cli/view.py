@@ -4,7 +4,8 @@ Where a display exists (``DISPLAY`` or ``WAYLAND_DISPLAY`` set, or forced with
 ``--window``) it opens an interactive pyvista window: the body cut open on the
 section y = 0, coloured by the chosen component on a zero-centred scale, with
 the layer boundaries drawn. Otherwise (or with ``--pictures``) it writes the
-standard pictures of :func:`mesastrain.io.render.standard_pictures` into the
+standard maps of :func:`mesastrain.io.maps.standard_maps` (matplotlib, no OpenGL
+needed; also where a display exists but no GL library does) into the
 result folder (or ``--out``) and prints their paths.
 """
 
@@ -35,8 +36,7 @@ def result_vtu(folder: Path) -> Path:
 
 
 #: Arrays every ``fields.vtu`` written by mesastrain carries: (where, name, components).
-REQUIRED_ARRAYS = (("cell", "layer", 1), ("cell", "stress", 6), ("cell", "strain", 6),
-                   ("point", "displacement", 3))
+REQUIRED_ARRAYS = (("cell", "layer", 1), ("cell", "stress", 6), ("point", "displacement", 3))
 
 
 def check_fields(vtu: Path) -> None:
@@ -107,15 +107,21 @@ def interactive(vtu: Path, name: str = "stress_xx") -> None:
 
 
 def cmd_view(args) -> int:
-    from mesastrain.io.render import standard_pictures
+    import sys
+
+    from mesastrain.io.gl import gl_library, no_gl_note
+    from mesastrain.io.maps import FieldSource, standard_maps
 
     vtu = result_vtu(args.result)
     if (args.window or has_display()) and not args.pictures:
-        interactive(vtu, args.component[0])
-        return 0
+        if gl_library() is not None:
+            interactive(vtu, args.component[0])
+            return 0
+        print(no_gl_note("the 3-D window"), "- writing the 2-D pictures instead",
+              file=sys.stderr)
     out = Path(args.out) if args.out else vtu.parent
     out.mkdir(parents=True, exist_ok=True)
-    for p in standard_pictures(vtu, out, tuple(args.component)):
+    for p in standard_maps(FieldSource.from_vtu(vtu), out, tuple(args.component)):
         print(p)
     return 0
 

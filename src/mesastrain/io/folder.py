@@ -10,7 +10,6 @@ from mesastrain import __version__
 from mesastrain.fem.fields import hydrostatic, von_mises
 from mesastrain.io.destination import Destination, claim_output, write_failure
 from mesastrain.io.export import to_vtk6, write_json, write_vtu
-from mesastrain.io.render import render_section
 from mesastrain.io.report import write_report
 from mesastrain.io.wording import CAUTION
 from mesastrain.model.regions import LayerModel
@@ -139,42 +138,133 @@ def _probes_with_derived(res: Result) -> list:
 
 
 def vtu_data(res: Result) -> tuple[dict, dict]:
-    """Point and cell data written to ``fields.vtu``."""
+    """Point and cell data written to ``fields.vtu``: ``layer`` and ``[output] fields``.
+
+    The default set (displacement, nodal and element stress, nodal strain and
+    von Mises, single precision) keeps the file near 80 bytes per node once compressed;
+    strain, crystal-frame tensors and derived fields are written on request.
+    """
     fl = res.fields
-    pd = {
-        "displacement": fl.displacement,
-        "strain": to_vtk6(fl.node_strain),
-        "stress": to_vtk6(fl.node_stress),
-        "von_mises": von_mises(fl.node_stress),
-        "hydrostatic": hydrostatic(fl.node_stress),
-    }
+    out = res.case.output
+    want = set(getattr(out, "fields", ()))
+    ft = np.float64 if getattr(out, "precision", "single") == "double" else np.float32
+
+    def f(a):
+        return np.ascontiguousarray(a, dtype=ft)
+
     layer = res.mesh.layer
-    cd = {
-        "layer": layer.astype(np.int32),
-        "strain": to_vtk6(fl.cell_strain),
-        "stress": to_vtk6(fl.cell_stress),
-        "total_strain": to_vtk6(fl.cell_total_strain),
-        "von_mises": von_mises(fl.cell_stress),
-        "hydrostatic": hydrostatic(fl.cell_stress),
-    }
-    if res.case.output.crystal_frame:
+    pd: dict = {}
+    cd: dict = {"layer": layer.astype(np.int32)}
+    if "displacement" in want:
+        pd["displacement"] = f(fl.displacement)
+    if "stress" in want:
+        pd["stress"] = f(to_vtk6(fl.node_stress))
+        cd["stress"] = f(to_vtk6(fl.cell_stress))
+    if "von_mises" in want:
+        pd["von_mises"] = f(von_mises(fl.node_stress))
+    if "strain" in want:
+        pd["strain"] = f(to_vtk6(fl.node_strain))
+    if "element_strain" in want:
+        cd["strain"] = f(to_vtk6(fl.cell_strain))
+    if "total_strain" in want:
+        cd["total_strain"] = f(to_vtk6(fl.cell_total_strain))
+    if "hydrostatic" in want:
+        pd["hydrostatic"] = f(hydrostatic(fl.node_stress))
+    crystal = [q for q in ("stress_crystal", "strain_crystal") if q in want]
+    if out.crystal_frame and crystal:
         Rs = np.array([lm.frame.R for lm in res.layers])[layer]   # sample axes in crystal
-        # crystal-frame tensor: T_c = R^T T_s R
-        cd["stress_crystal"] = to_vtk6(np.einsum("nai,nab,nbj->nij", Rs, fl.cell_stress, Rs))
-        cd["strain_crystal"] = to_vtk6(np.einsum("nai,nab,nbj->nij", Rs, fl.cell_strain, Rs))
-    for d in res.derived:
-        pd.update(d.point_data)
-        cd.update(d.cell_data)
+        for q in crystal:    # crystal-frame tensor: T_c = R^T T_s R
+            t = fl.cell_stress if q == "stress_crystal" else fl.cell_strain
+            cd[q] = f(to_vtk6(np.einsum("nai,nab,nbj->nij", Rs, t, Rs)))
+    if "derived" in want:
+        for d in res.derived:
+            pd.update({k: f(v) if np.issubdtype(np.asarray(v).dtype, np.floating) else v
+                       for k, v in d.point_data.items()})
+            cd.update({k: f(v) if np.issubdtype(np.asarray(v).dtype, np.floating) else v
+                       for k, v in d.cell_data.items()})
     return pd, cd
 
 
-def write_result(res: Result, out, overwrite: bool = False) -> Path:
+def _timed(res: Result, key: str, progress, what: str):
+    """Context manager that reports a writing stage and records its time in ``res.timings``."""
+    import contextlib
+    import time
+
+    @contextlib.contextmanager
+    def stage():
+        if progress is not None:
+            progress(what)
+        t0 = time.perf_counter()
+        try:
+            yield
+        finally:
+            res.timings[key] = res.timings.get(key, 0.0) + time.perf_counter() - t0
+    return stage()
+
+
+def _map_source(res: Result):
+    """The in-memory fields the maps are drawn from (plus derived element data)."""
+    from mesastrain.io.maps import FieldSource
+
+    extra = {}
+    for d in res.derived:
+        extra.update(d.cell_data)
+    return FieldSource.from_result(res, extra)
+
+
+def draw_pictures(res: Result, folder: Path) -> list[str]:
+    """The maps of ``[output] maps`` and the providers' section maps, from memory.
+
+    For each component of ``output.maps`` a cross-section and a plan view (and
+    the sidewall close-up of the first one for a patterned case); then every
+    ``section_maps`` picture a derived provider asks for. Drawn with matplotlib
+    (:mod:`mesastrain.io.maps`): no OpenGL, nothing read back from disk.
+
+    Returns
+    -------
+    list of str
+        Names of the pictures written.
+    """
+    from mesastrain.io.maps import draw_map
+
+    folder = Path(folder)
+    src = _map_source(res)
+    written = []
+    if not res.case.output.vtu:     # as before: no maps without fields (the report says so)
+        return written
+    for i, name in enumerate(res.case.output.maps):
+        for view in ("section", "plan") + (("edge",) if i == 0 and src.patterned else ()):
+            png = folder / f"map_{view}_{name}.png"
+            try:
+                draw_map(src, png, name, view)
+            except ValueError as exc:     # the plane misses the body (e.g. a plan above it)
+                res.warnings.append(f"picture {png.name} not drawn: {exc}")
+                continue
+            written.append(png.name)
+    for d in res.derived:
+        for png, kw in d.section_maps.items():
+            q = kw.get("quantity", "stress")
+            comp = kw.get("component")
+            name = f"{q}_{comp.lower()}" if comp else q
+            draw_map(src, folder / png, name, "section", position=kw.get("y"),
+                     depth=kw.get("depth"), note=kw.get("note"))
+            written.append(png)
+    return written
+
+
+def write_result(res: Result, out, overwrite: bool = False, quick: bool = False,
+                 progress=None) -> Path:
     """Write the output folder atomically.
 
     Everything goes into a partial folder beside the target first; only when every
     file is complete is it swapped into place (replacing an earlier result when
     ``overwrite``), so an interrupted or failed run leaves the old result or nothing.
     See :mod:`mesastrain.io.destination` for what may be replaced.
+
+    The writing stages are timed into ``summary.json`` ``timings``:
+    ``write_fields`` (fields.vtu), ``write_tables`` (CSV files),
+    ``write_pictures`` (every PNG) and ``write_report`` (report.html, which
+    embeds the PNGs already written and draws none of its own).
 
     Parameters
     ----------
@@ -184,6 +274,11 @@ def write_result(res: Result, out, overwrite: bool = False) -> Path:
         :func:`mesastrain.io.destination.claim_output` (checked and locked).
     overwrite : bool
         Replace an existing previous result (ignored for a Destination).
+    quick : bool
+        Write ``summary.json``, ``fields.vtu`` and the CSV tables only (no
+        pictures, no report), whatever ``[output]`` says.
+    progress : callable(str), optional
+        Told the start of each writing stage.
 
     Returns
     -------
@@ -197,23 +292,33 @@ def write_result(res: Result, out, overwrite: bool = False) -> Path:
     """
     if not isinstance(out, Destination):
         with claim_output(out, overwrite) as dest:
-            return write_result(res, dest)
+            return write_result(res, dest, quick=quick, progress=progress)
     dest = out
+    o = res.case.output
+    pictures = getattr(o, "pictures", True) and not quick
+    report = getattr(o, "report", False) and not quick
     try:
         tmp = dest.partial()
+        if o.vtu:
+            with _timed(res, "write_fields", progress, "writing fields.vtu"):
+                pd, cd = vtu_data(res)
+                write_vtu(tmp / "fields.vtu", res.mesh.mesh, pd, cd)
+        files = [(n, w) for d in res.derived for n, w in d.files.items()]
+        with _timed(res, "write_tables", progress, "writing tables"):
+            for name, writer in files:
+                if not name.endswith(".png"):
+                    writer(tmp / name)
+        if pictures:
+            with _timed(res, "write_pictures", progress, "drawing pictures"):
+                for name, writer in files:
+                    if name.endswith(".png"):
+                        writer(tmp / name)
+                draw_pictures(res, tmp)
         write_json(tmp / "summary.json", summary_of(res))
-        if res.case.output.vtu:
-            pd, cd = vtu_data(res)
-            write_vtu(tmp / "fields.vtu", res.mesh.mesh, pd, cd)
-        for d in res.derived:
-            for name, writer in d.files.items():
-                writer(tmp / name)
-        if res.case.output.vtu:     # pictures the providers ask for, drawn from fields.vtu
-            for d in res.derived:
-                for name, kwargs in d.section_maps.items():
-                    render_section(tmp / "fields.vtu", tmp / name, **kwargs)
-        if getattr(res.case.output, "report", False):   # last: it embeds the files above
-            write_report(tmp)
+        if report:      # last: it embeds the files above
+            with _timed(res, "write_report", progress, "writing report.html"):
+                write_report(tmp, pictures=False)
+            write_json(tmp / "summary.json", summary_of(res))   # with the report's time
         return dest.commit(tmp)
     except OSError as exc:
         raise write_failure(exc, dest.shown) from None

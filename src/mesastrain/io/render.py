@@ -165,9 +165,10 @@ def map_values(mesh, name: str):
     """
     if name.startswith(("stress_", "strain_")) and len(name.split("_")[1]) == 2:
         q, c = name.split("_")
-        values, _ = _component(mesh, q, c.upper(), "cell")
+        where = "cell" if q in mesh.cell_data.keys() else "point"
+        values, _ = _component(mesh, q, c.upper(), where)
         unit = "MPa" if q == "stress" else "dimensionless"
-        return values, "cell", f"{q} {c.upper()} ({unit})", True
+        return values, where, f"{q} {c.upper()} ({unit})", True
     if name.startswith("displacement_"):
         values, c = _component(mesh, "displacement", name[-1].upper(), "point")
         return values, "point", f"displacement {c} (nm)", True
@@ -177,9 +178,17 @@ def map_values(mesh, name: str):
         values = ev[:, -1] if name == "principal_max" else ev[:, 0]
         return values, "cell", f"{name.replace('_', ' ')} stress (MPa)", True
     if name in ("von_mises", "hydrostatic"):
-        values, _ = _component(mesh, name, None, "cell")
-        return (values, "cell", "von Mises stress (MPa)" if name == "von_mises"
-                else "hydrostatic stress (MPa)", name == "hydrostatic")
+        label = "von Mises stress (MPa)" if name == "von_mises" else "hydrostatic stress (MPa)"
+        if name in mesh.cell_data.keys():
+            return _component(mesh, name, None, "cell")[0], "cell", label, name == "hydrostatic"
+        if name in mesh.point_data.keys():
+            return _component(mesh, name, None, "point")[0], "point", label, name == "hydrostatic"
+        sig = from_vtk6(np.asarray(mesh.cell_data["stress"]))
+        tr = np.trace(sig, axis1=1, axis2=2) / 3.0
+        if name == "hydrostatic":
+            return tr, "cell", label, True
+        dev = sig - tr[:, None, None] * np.eye(3)
+        return np.sqrt(1.5 * np.einsum("nij,nij->n", dev, dev)), "cell", label, False
     values, comp = _component(mesh, name, None, "cell")
     unit = UNITS.get(name, next((u for p, u in UNIT_PREFIXES.items() if name.startswith(p)), ""))
     label = name.replace("_", " ") + (f" {comp}" if comp else "") + (f" ({unit})" if unit else "")

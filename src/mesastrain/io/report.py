@@ -111,8 +111,9 @@ def write_report(folder: Path, maps=None, pictures: bool = True,
     maps : sequence of str, optional
         Components drawn as maps; default: the case's ``output.maps``.
     pictures : bool
-        Render the maps (pyvista, offscreen). Other pictures already in the
-        folder are embedded regardless.
+        Render the maps from ``fields.vtu`` (pyvista, offscreen). A run draws
+        them beforehand from memory (:func:`mesastrain.io.folder.draw_pictures`)
+        and passes False; pictures already in the folder are embedded regardless.
     sections : tuple of callable(summary, folder) -> str or None, default: SECTIONS
         The body, in order.
 
@@ -125,7 +126,11 @@ def write_report(folder: Path, maps=None, pictures: bool = True,
     summary = json.loads((folder / "summary.json").read_text(encoding="utf-8"))
     if maps is None:
         maps = summary.get("case", {}).get("output", {}).get("maps", ())
-    note = render_pictures(folder, maps) if pictures else None
+    if pictures:
+        note = render_pictures(folder, maps)
+    else:
+        note = ("No maps: fields.vtu was not written (output.vtu = false)."
+                if maps and not (folder / "fields.vtu").is_file() else None)
     if note:
         summary["_pictures_note"] = note
     body = []

@@ -34,7 +34,9 @@ def blanket(substrate="SiGe", sub_x=0.2, layer="Si", layer_x=None, normal=(0, 0,
         "mesh": {"order": 1},
         "probe": [{"name": "film", "at": [0, 0, 10]}, {"name": "sub", "at": [0, 0, -5]}],
         "device": {"maps": False},
-        "output": {"report": False},   # report.html renders many pictures: not needed here
+        "output": {"report": False,    # report.html renders many pictures: not needed here
+                   "fields": ["displacement", "stress", "strain", "strain_crystal", "derived"],
+                   "precision": "double"},
     }
     if sub_x is not None:
         d["substrate"]["x"] = sub_x

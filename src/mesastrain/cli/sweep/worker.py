@@ -87,7 +87,8 @@ def solve_case(case: Case, case_id: str) -> dict:
         limit = _worker_memory_gb()
         res = solve_and_derive(case, max_memory_gb=limit)
         with tempfile.TemporaryDirectory(prefix="mesastrain-case-") as tmp:
-            folder = write_result(res, Path(tmp) / "case")
+            # quick: summary.json, fields.vtu and the tables; the sweep draws its own plots
+            folder = write_result(res, Path(tmp) / "case", quick=True)
             files = {p.relative_to(folder).as_posix(): p.read_bytes()
                      for p in sorted(folder.rglob("*")) if p.is_file()}
         rec.update(status="ok", files=files, timings={k: round(v, 3)
