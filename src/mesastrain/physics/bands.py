@@ -227,7 +227,9 @@ def band_parameters(material: str, x: float | None = None) -> BandParameters:
     Returns
     -------
     BandParameters
-        For SiGe every number is the linear interpolation between Si and Ge.
+        For SiGe every number is the linear interpolation between Si and Ge, plus the
+        quadratic bowing ``c x (1 - x)`` of the entries listed in ``[bands_bowing.SiGe]``
+        (today E_v,av, fitted to Rieger & Vogl 1993).
 
     Raises
     ------
@@ -246,8 +248,13 @@ def band_parameters(material: str, x: float | None = None) -> BandParameters:
         si, ge = _tabulated("Si"), _tabulated("Ge")
         mixed = {k: (1.0 - x) * getattr(si, k) + x * getattr(ge, k)
                  for k in _NUMERIC if getattr(si, k) is not None and getattr(ge, k) is not None}
-        return replace(si, name="SiGe", x=x, sources=si.sources + ge.sources + (
-            "SiGe: every entry linear in x between Si and Ge (common practice for the "
+        bowed = []
+        for key, entry in device_parameters().get("bands_bowing", {}).get("SiGe", {}).items():
+            c, line = parameter_entry(entry, f"bands_bowing.SiGe.{key}")
+            mixed[key] += c * x * (1.0 - x)
+            bowed.append(line)
+        return replace(si, name="SiGe", x=x, sources=si.sources + ge.sources + tuple(bowed) + (
+            "SiGe: every other entry linear in x between Si and Ge (common practice for the "
             "deformation potentials; rough for the gaps)",), **mixed)
     if material not in known:
         raise MaterialError(f"no band parameters for {material!r}; known: "

@@ -110,13 +110,13 @@ def test_relaxed_substrate_has_no_band_shift(strained_si):
 
 def test_sige_on_si_valence_offset_end_to_end():
     # Coherent Si(1-x)Ge(x) on Si(001): heavy-hole offset ~0.74 x eV, People & Bean, Appl. Phys.
-    # Lett. 48, 538 (1986) [C citation, value M]; 15 % as in the issue. The model (Van de Walle
-    # 1989 potentials [M]) gives about 0.66 x (tests/test_bands.py).
+    # Lett. 48, 538 (1986) [C citation, value M]. The model gives about 0.69 x here; the 8 %
+    # tolerance is derived from the scatter of b in tests/unit/physics/test_bands.py.
     x = 0.1
     s = summary(run(blanket(substrate="Si", sub_x=None, layer="SiGe", layer_x=x)))
     top_film = s["probes"][0]["band_edges"]["valence_edge_common"]
     top_si = s["probes"][1]["band_edges"]["valence_edge_common"]
-    assert top_film - top_si == pytest.approx(0.74 * x, rel=0.15)
+    assert top_film - top_si == pytest.approx(0.74 * x, rel=0.08)
 
 
 def test_zinc_blende_gamma_valley_end_to_end():
