@@ -6,12 +6,19 @@ import numpy as np
 
 from mesastrain.physics.crystal import voigt_to_full
 
-#: A 200 nm square Si0.8Ge0.2 mesa on Si(001), <110> edges, coarse mesh, one probe.
-SMALL_MESA = """
-title = "small mesa"
+
+def sige_on_si(title: str, pattern: str, mesh: str, substrate: str = "50 um",
+               extra: str = "") -> str:
+    """Case text of a 20 nm Si0.8Ge0.2 layer on Si(001) with <110> edges (our own scenario).
+
+    ``pattern`` and ``mesh`` are the bodies of the ``[pattern]`` (without ``etch_depth``,
+    which is 30 nm) and ``[mesh]`` tables; ``extra`` is appended verbatim.
+    """
+    return f"""
+title = "{title}"
 [substrate]
 material = "Si"
-thickness = "50 um"
+thickness = "{substrate}"
 normal = [0, 0, 1]
 x_axis = [1, 1, 0]
 [[layer]]
@@ -19,17 +26,21 @@ material = "SiGe"
 x = 0.2
 thickness = "20 nm"
 [pattern]
-shape = "rectangle"
-width = "200 nm"
+{pattern}
 etch_depth = "30 nm"
 [mesh]
-order = 1
-size = 25
-edge_size = 10
-[[probe]]
+{mesh}
+{extra}"""
+
+
+CENTRE_PROBE = """[[probe]]
 name = "centre"
 at = [0, 0, 10]
 """
+
+#: A 200 nm square Si0.8Ge0.2 mesa on Si(001), <110> edges, coarse mesh, one probe.
+SMALL_MESA = sige_on_si("small mesa", 'shape = "rectangle"\nwidth = "200 nm"',
+                        "order = 1\nsize = 25\nedge_size = 10", extra=CENTRE_PROBE)
 
 
 def rotated_cubic(c11, c12, c44, angle_deg, axis=(1.0, 1.0, 1.0)):

@@ -23,30 +23,11 @@ import pytest
 from mesastrain.cli.main import main
 from mesastrain.io import destination
 from mesastrain.io.destination import MARKER, is_result_folder
-from small_cases import SMALL_MESA, as_from_a_terminal
+from small_cases import SMALL_MESA, as_from_a_terminal, sige_on_si
 
-DISK = """
-title = "small disk"
-[substrate]
-material = "Si"
-thickness = "2 um"
-normal = [0, 0, 1]
-x_axis = [1, 1, 0]
-[[layer]]
-material = "SiGe"
-x = 0.2
-thickness = "20 nm"
-[pattern]
-shape = "disk"
-diameter = "200 nm"
-etch_depth = "30 nm"
-[mesh]
-order = 1
-size = 12
-edge_size = 5
-[solver]
-method = "direct"
-"""
+DISK = sige_on_si("small disk", 'shape = "disk"\ndiameter = "200 nm"',
+                  "order = 1\nsize = 12\nedge_size = 5", substrate="2 um",
+                  extra='[solver]\nmethod = "direct"\n')
 
 #: SMALL_MESA without pictures and report (quicker to write).
 QUICK_MESA = SMALL_MESA + """

@@ -19,26 +19,7 @@ from mesastrain.fem.constraints import support_dofs
 from mesastrain.fem.discretisation import discretise_tet
 from mesastrain.fem.pmultigrid import linear_space
 from mesastrain.fem.solve import solve_condensed
-from small_cases import EIG, STIFF
-
-CASE = """
-title = "tet solver"
-[substrate]
-material = "Si"
-thickness = "50 um"
-normal = [0, 0, 1]
-x_axis = [1, 1, 0]
-[[layer]]
-material = "SiGe"
-x = 0.2
-thickness = "20 nm"
-[pattern]
-{shape}
-etch_depth = "30 nm"
-[mesh]
-order = {order}
-size = {size}
-"""
+from small_cases import EIG, STIFF, sige_on_si
 
 SHAPES = {
     "disk": 'shape = "disk"\ndiameter = "200 nm"',
@@ -50,7 +31,7 @@ SHAPES = {
 def shape_system(shape, order, size):
     from mesastrain.run.pipeline import build_layers, build_model_mesh, decide_symmetry
 
-    case = parse_case(tomllib.loads(CASE.format(shape=SHAPES[shape], order=order, size=size)))
+    case = parse_case(tomllib.loads(sige_on_si("tet solver", SHAPES[shape], f"order = {order}\nsize = {size}")))
     layers = build_layers(case)
     sm = build_model_mesh(case, layers, decide_symmetry(case, layers))
     disc = sm.discretise(order)

@@ -15,6 +15,7 @@ import pytest
 from mesastrain.case.parse import parse_case
 from mesastrain.cli.main import main
 from mesastrain.run.convergence import assess, study
+from small_cases import CENTRE_PROBE, sige_on_si
 
 
 @pytest.mark.parametrize("p", [1.0, 2.0, 3.0])
@@ -39,31 +40,9 @@ def test_small_changes_are_converged():
     assert assess([100.0, 100.1, 100.12], 1.5, scale=100.0)["verdict"] == "converged"
 
 
-SMALL = """
-title = "tiny mesa"
-[substrate]
-material = "Si"
-thickness = "50 um"
-normal = [0, 0, 1]
-x_axis = [1, 1, 0]
-[[layer]]
-material = "SiGe"
-x = 0.2
-thickness = "20 nm"
-[pattern]
-shape = "rectangle"
-width = "100 nm"
-etch_depth = "30 nm"
-[mesh]
-order = 1
-size = 40
-edge_size = 20
-growth = 2.0
-substrate_depth = 100
-[[probe]]
-name = "centre"
-at = [0, 0, 10]
-"""
+SMALL = sige_on_si("tiny mesa", 'shape = "rectangle"\nwidth = "100 nm"',
+                   "order = 1\nsize = 40\nedge_size = 20\ngrowth = 2.0\nsubstrate_depth = 100",
+                   extra=CENTRE_PROBE)
 
 
 @pytest.mark.slow
