@@ -1,0 +1,56 @@
+"""The headline figures: names, order, values taken from the providers' summaries."""
+
+import numpy as np
+
+from mesastrain.derived import PROVIDERS, headline
+from mesastrain.derived.headline import Figure, headline_figures, merged_summary
+from mesastrain.run.result import Derived
+
+
+def test_headline_is_the_last_provider():
+    assert PROVIDERS[-1] is headline.derive
+
+
+def test_figures_come_from_the_readouts_and_probes(small_mesa_result):
+    res = small_mesa_result
+    figs = headline_figures(res)
+    names = [f.name for f in figs]
+    assert len(names) == len(set(names)), "figure names must be unique"
+    by = {f.name: f for f in figs}
+    s = merged_summary(res)
+    layer = s["readouts"]["layers"][1]
+    # the centre stress figure is the readout's centre stress, not a copy of another number
+    c = np.asarray(layer["centre_stress"])
+    assert by[f"{layer['name']} centre sxx"].value == float(c[0, 0])
+    assert by[f"{layer['name']} centre sxx"].unit == "MPa"
+    # each probe's normal stresses in sample axes
+    p = res.probes[0]
+    assert by[f"probe {p['name']} szz"].value == float(np.asarray(p["stress"])[2, 2])
+    # interface peaks at a free edge are singular; stand-off values are not
+    kinds = {f.kind for f in figs}
+    assert {"centre", "standoff", "interface", "probe"} <= kinds
+    assert all(f.singular for f in figs if f.kind == "interface")
+    assert not any(f.singular for f in figs if f.kind in ("standoff", "centre", "probe"))
+
+
+def test_standoff_figures_keep_the_worst_side(small_mesa_result):
+    res = small_mesa_result
+    s = merged_summary(res)
+    figs = {f.name: f for f in headline_figures(res) if f.kind == "standoff"}
+    for edge in s["readouts"]["edges"]:
+        base = headline._without_side(edge["name"])
+        for region, v in edge["values"].items():
+            f = figs[f"standoff {base} {region} von_mises"]
+            assert abs(f.value) >= abs(v["von_mises"]) - 1e-12
+
+
+def test_contributions_are_attached_by_name(small_mesa_result):
+    res = small_mesa_result
+    name = headline_figures(res)[0].name
+    fake = Derived(summary={"discretisation_error": {"figures": {name: {"error": 1.5}}}})
+    res2 = type(res)(**{**res.__dict__, "derived": [*res.derived, fake]})
+    rows = headline.derive(res2).summary["headline"]
+    assert rows[0]["discretisation_error"] == {"error": 1.5}
+    assert "discretisation_error" not in rows[1]
+    assert "material_scatter" not in rows[0]
+    assert set(Figure.__dataclass_fields__) <= set(rows[0])
