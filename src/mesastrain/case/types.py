@@ -78,6 +78,9 @@ class UserMaterial:
         for k, v in self.table:
             if k == "source" and isinstance(v, tuple) and v and isinstance(v[0], tuple):
                 out[k] = dict(v)
+            elif k == "spread" and isinstance(v, tuple):
+                out[k] = {q: ({kk: _thawed(vv) for kk, vv in entry}
+                              if isinstance(entry, tuple) else entry) for q, entry in v}
             else:
                 out[k] = _thawed(v)
         if self.replace_builtin:

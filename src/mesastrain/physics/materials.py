@@ -37,7 +37,7 @@ from mesastrain.physics.elastic import (  # noqa: F401 (re-exported)
     stiffness_from_constants,
     validate_stiffness,
 )
-from mesastrain.physics.material_record import Material, build_material
+from mesastrain.physics.material_record import Material, Spread, build_material, parse_spreads
 
 _CUBIC_KEYS = ("C11", "C12", "C44")
 _HEX_KEYS = ("C11", "C12", "C13", "C33", "C44")
@@ -298,12 +298,15 @@ def _compound(name: str) -> Material:
     stiff = build(*constants.values())
     stiff.setflags(write=False)
     src = m["source"]
+    a, c = float(m["a"]), float(m["c"]) if "c" in m else None
+    alpha = tuple(float(v) for v in m["alpha"])
+    spreads = parse_spreads(m.get("spread"), m["system"], {**constants, "a": a, "c": c}, alpha,
+                            f"materials.toml: material.{name}")
     return Material(
         name=name, x=None, system=m["system"], constants=constants, stiffness=stiff,
-        a=float(m["a"]), c=float(m["c"]) if "c" in m else None,
-        alpha=tuple(float(v) for v in m["alpha"]),
+        a=a, c=c, alpha=alpha,
         sources=tuple(f"{name} {q}: {src[q]}" for q in ("stiffness", "lattice", "alpha") if q in src),
-        structure=m["structure"])
+        structure=m["structure"], spreads=spreads)
 
 
 def _alloy(name: str, x: float) -> Material:
@@ -322,12 +325,49 @@ def _alloy(name: str, x: float) -> Material:
     else:
         a = lin(m0.a, m1.a)
     c = None if m0.c is None else lin(m0.c, m1.c)
+    spreads = _alloy_spreads(name, al, m0, m1, x, a)
     return Material(
         name=name, x=x, system=m0.system, constants=constants, stiffness=stiff, a=a, c=c,
         alpha=tuple(lin(p, q) for p, q in zip(m0.alpha, m1.alpha)),
         sources=(f"{name} alloy law: {al['source']}",) + m0.sources + m1.sources,
         structure=m0.structure, lattice_law=al["lattice_law"], members=tuple(al["members"]),
-        label_template=al["label"], group="alloy")
+        label_template=al["label"], group="alloy", spreads=spreads)
+
+
+def _alloy_spreads(name: str, al: dict, m0: Material, m1: Material, x: float,
+                   a: float) -> tuple:
+    """Spreads of an alloy at x: the members' spreads interpolated like the quantity itself.
+
+    Stiffness and alpha (and the lattice constant of a Vegard alloy) are linear in x,
+    so their change is the same mix of the members' changes. An alloy whose table
+    has ``spread.lattice_law`` (SiGe: Vegard's law against the adopted Dismukes fit)
+    gains a ``"lattice law"`` spread: the other law's a(x) minus the adopted one.
+    """
+    out = []
+    quantities = ["stiffness", "alpha"] + (["lattice"] if al["lattice_law"] == "vegard" else [])
+    for q in quantities:
+        s0, s1 = m0.spread(q), m1.spread(q)
+        if s0 is None and s1 is None:
+            continue
+        keys = list(dict.fromkeys([*(s0.delta if s0 else {}), *(s1.delta if s1 else {})]))
+        delta = {}
+        for k in keys:
+            d0 = np.asarray(s0.delta.get(k, 0.0) if s0 else 0.0, dtype=float)
+            d1 = np.asarray(s1.delta.get(k, 0.0) if s1 else 0.0, dtype=float)
+            d = (1.0 - x) * d0 + x * d1
+            delta[k] = tuple(float(v) for v in np.ravel(d)) if k == "alpha" else float(d)
+        kinds = {s.kind for s in (s0, s1) if s is not None}
+        src = "; ".join(f"{m.name}: {s.source}" for m, s in ((m0, s0), (m1, s1)) if s)
+        out.append(Spread(q, delta, kinds.pop() if len(kinds) == 1 else "mixed",
+                          f"members interpolated linearly in x ({src})"))
+    law = (al.get("spread") or {}).get("lattice_law")
+    if law is not None:
+        if law.get("law") != "vegard" or al["lattice_law"] == "vegard":
+            raise MaterialError(f"materials.toml: alloy.{name}.spread.lattice_law.law must be "
+                                f"'vegard' against another adopted law")
+        a_other = (1.0 - x) * m0.a + x * m1.a
+        out.append(Spread("lattice law", {"a": a_other - a}, "law", law["source"]))
+    return tuple(out)
 
 
 def get_material(name: str, x: float | None = None) -> Material:
