@@ -42,7 +42,7 @@ __all__ = [
     "MAX_CUT_POINTS", "MAX_SOLVER_ITERATIONS", "VTU_FIELDS",
     "PATTERN_SHAPES", "SCHEMA_FILE", "SCHEMA_VERSION", "SHAPE_KEYS",
     "SHAPE_REQUIRES", "SIDEWALL_ANGLE_RANGE", "SOLVER_METHODS", "SOLVER_PRECISIONS",
-    "SYMMETRY_CHOICES", "TABLES", "TITLE", "TOP_KEYS", "default_order", "json_schema",
+    "SYMMETRY_CHOICES", "TABLES", "TITLE", "TOP_KEYS", "UNCERTAINTY", "UNCERTAINTY_GROUPS", "default_order", "json_schema",
     "json_schema_text", "table",
 ]
 
@@ -425,6 +425,24 @@ READOUTS = Table("readouts", "readouts", "Settings of the engineering readouts."
     Key("bow", BOOL, "Solve the free-standing blanket wafer for its curvature.", default=True),
 ))
 
+#: Constant groups the material-data scatter can vary (``[uncertainty] groups``): every
+#: material's stiffness constants, its lattice constant or lattice law, its thermal
+#: expansion (only with ``[thermal]``) and the Raman phonon deformation potential set.
+UNCERTAINTY_GROUPS = ("stiffness", "lattice", "alpha", "raman")
+
+UNCERTAINTY = Table("uncertainty", "uncertainty", "Material-data scatter propagated to the "
+                    "headline figures by first-order sensitivities.", (
+    Key("enabled", BOOL, "Compute the band of each headline figure from the published spread "
+                         "of the material data (one extra solve per constant group that has "
+                         "a spread, reusing the main solve's preconditioner).", default=True),
+    Key("groups", Kind(rd.component_list(UNCERTAINTY_GROUPS, "constant group",
+                                         '["stiffness", "lattice"]'),
+                       {"type": "array", "items": _enum(UNCERTAINTY_GROUPS), "minItems": 1,
+                        "maxItems": len(UNCERTAINTY_GROUPS)}, echo=list),
+        "Which kinds of constants vary: " + ", ".join(UNCERTAINTY_GROUPS) + " (per material; "
+        "alpha only with [thermal]).", default=UNCERTAINTY_GROUPS),
+))
+
 DISLOCATIONS = Table("dislocations", "dislocations", "Families of parallel straight misfit "
                      "dislocations; each gives one of positions, spacing and relaxation.", (
     _NAME,
@@ -481,7 +499,7 @@ MATERIAL = Table("material", "materials", "Materials of one's own, [material.NAM
 
 #: Every table, in the order the unknown-key error lists them (after ``title``).
 TABLES = (SUBSTRATE, LAYER, PATTERN, THERMAL, MESH, SOLVER, PROBE, CUT, OUTPUT, CHANNEL,
-          DEVICE, READOUTS, DISLOCATIONS)
+          DEVICE, READOUTS, DISLOCATIONS, UNCERTAINTY)
 #: The allowed top-level keys.
 TOP_KEYS = (TITLE.name, MATERIAL.name) + tuple(t.name for t in TABLES)
 _BY_NAME = {t.name: t for t in TABLES}

@@ -23,13 +23,14 @@ from mesastrain.case.schema import (
     SOLVER,
     TABLES,
     TITLE,
+    UNCERTAINTY,
 )
 from mesastrain.physics.materials import get_material, material_from_table
 
 __all__ = [
     "TABLE_TYPES", "Case", "Channel", "DeviceSettings", "DislocationSet", "Layer", "LineCut",
     "MeshSettings", "OutputSettings", "Pattern", "Probe", "ReadoutSettings", "SolverSettings",
-    "Substrate", "Thermal", "UserMaterial",
+    "Substrate", "Thermal", "UncertaintySettings", "UserMaterial",
 ]
 
 
@@ -350,6 +351,24 @@ class ReadoutSettings:
 
 
 @dataclass(frozen=True)
+class UncertaintySettings:
+    """Material-data scatter of the headline figures (``[uncertainty]``).
+
+    Attributes
+    ----------
+    enabled : bool
+        Propagate the published spreads of the material data to the headline
+        figures (first-order sensitivities, one extra solve per constant group).
+    groups : tuple of str
+        Kinds of constants that vary: ``stiffness``, ``lattice``, ``alpha``
+        (only with ``[thermal]``), ``raman`` (the phonon deformation potential set).
+    """
+
+    enabled: bool = UNCERTAINTY.default("enabled")
+    groups: tuple = UNCERTAINTY.default("groups")
+
+
+@dataclass(frozen=True)
 class Channel:
     """A conduction channel for the piezoresistance readout.
 
@@ -469,6 +488,8 @@ class Case:
         The case's own materials (``[material.NAME]``), possibly empty.
     readouts : ReadoutSettings
         Stand-off distance, wafer diameter and bow switch (``[readouts]``).
+    uncertainty : UncertaintySettings
+        Material-data scatter switch and groups (``[uncertainty]``).
     """
 
     title: str
@@ -485,6 +506,7 @@ class Case:
     channels: tuple = ()
     device: DeviceSettings = DeviceSettings()
     readouts: ReadoutSettings = ReadoutSettings()
+    uncertainty: UncertaintySettings = UncertaintySettings()
     dislocations: tuple = ()
     materials: tuple = ()
 
@@ -548,4 +570,5 @@ class Case:
 TABLE_TYPES = {"substrate": Substrate, "layer": Layer, "pattern": Pattern, "thermal": Thermal,
                "mesh": MeshSettings, "solver": SolverSettings, "probe": Probe, "cut": LineCut,
                "output": OutputSettings, "channel": Channel, "device": DeviceSettings,
-               "readouts": ReadoutSettings, "dislocations": DislocationSet}
+               "readouts": ReadoutSettings, "dislocations": DislocationSet,
+               "uncertainty": UncertaintySettings}

@@ -268,7 +268,7 @@ def solve_condensed(K: sp.csr_matrix, f: np.ndarray, fixed: np.ndarray,
                     tol: float = 1e-8, maxiter: int = 2000,
                     progress=None, *, stress_tol: float = STRESS_TOL,
                     precision: str = "single", direct_limit: int | None = None,
-                    spaces=None, linear=None) -> tuple[np.ndarray, SolverReport]:
+                    spaces=None, linear=None, follow_up=None) -> tuple[np.ndarray, SolverReport]:
     """Solve K u = f with u = 0 on the fixed dofs.
 
     Parameters
@@ -305,6 +305,13 @@ def solve_condensed(K: sp.csr_matrix, f: np.ndarray, fixed: np.ndarray,
         (:func:`mesastrain.fem.pmultigrid.linear_space`): p-multigrid, smoothed
         aggregation on P1 below a Gauss-Seidel-smoothed P2 level. Used when
         ``spaces`` is None.
+    follow_up : callable(u, solve), optional
+        Called once the solve has converged, while its factorisation or
+        multigrid hierarchy is still alive: ``u`` is the solution (n,) and
+        ``solve(rhs, tol=None, stress_tol=None) -> x`` solves K x = rhs (n,),
+        x = 0 on the fixed dofs, reusing it (extra right-hand sides, e.g. the
+        sensitivities of the material-data scatter; default tolerances those of
+        the main solve).
 
     Returns
     -------
@@ -345,7 +352,7 @@ def solve_condensed(K: sp.csr_matrix, f: np.ndarray, fixed: np.ndarray,
                 "(check the boundary conditions and that every part is connected)") from exc
         t1 = time.perf_counter()
         x = lu.solve(b)
-        del lu
+        H = None
         method_name = "direct"
     else:
         if callable(spaces):
@@ -380,7 +387,7 @@ def solve_condensed(K: sp.csr_matrix, f: np.ndarray, fixed: np.ndarray,
         say(f"multigrid ({method_name[:3]}): {H.levels} levels {H.sizes}, operator complexity "
             f"{complexity:.2f}, set up in {t1 - t0:.1f} s")
         x, iterations, _, err = pcg(A, b, H, tol, stress_tol, maxiter, progress)
-        del H
+        lu = None
     t2 = time.perf_counter()
     if not np.all(np.isfinite(x)):
         raise SolverError("the solution contains NaN or Inf: the system is singular or "
@@ -396,11 +403,30 @@ def solve_condensed(K: sp.csr_matrix, f: np.ndarray, fixed: np.ndarray,
     report = SolverReport(method_name, nf, iterations, res, t1 - t0, t2 - t1, err, levels,
                           complexity, prec)
     log.info("solved: %s", report)
+    if follow_up is not None:
+        def solve_again(rhs: np.ndarray, tol2: float | None = None,
+                        stress_tol2: float | None = None) -> np.ndarray:
+            b2 = np.asarray(rhs, dtype=float)[idx]
+            out = np.zeros(n)
+            if not np.any(b2):
+                return out
+            if lu is not None:
+                out[idx] = lu.solve(b2)
+                return out
+            t_, s_ = tol if tol2 is None else tol2, stress_tol if stress_tol2 is None else stress_tol2
+            x2, it2, rel2, err2 = pcg(A, b2, H, t_, s_, maxiter, None)
+            if not (np.all(np.isfinite(x2)) and rel2 <= max(10 * t_, 1e-10) and err2 <= 10 * s_):
+                raise SolverError(f"an extra right-hand side did not converge: relative "
+                                  f"residual {rel2:.2e} after {it2} iterations")
+            out[idx] = x2
+            return out
+        follow_up(u, solve_again)
+    del lu, H
     return u, report
 
 
 def solve_model(K, f, disc: Discretisation, boundary: Boundary, solver, progress=None,
-                spaces=None):
+                spaces=None, follow_up=None):
     """Apply supports and periodic ties, solve, and return the full displacement.
 
     Parameters
@@ -413,6 +439,10 @@ def solve_model(K, f, disc: Discretisation, boundary: Boundary, solver, progress
     progress : callable(str), optional
     spaces : GridSpaces or callable, optional
         Geometric coarse spaces of ``disc`` (see :func:`solve_condensed`).
+    follow_up : callable(u, solve), optional
+        Extra right-hand sides on the same operator (see :func:`solve_condensed`);
+        ``u`` and the right-hand sides are full (ndofs,) vectors, periodic ties
+        applied inside.
 
     Returns
     -------
@@ -423,13 +453,18 @@ def solve_model(K, f, disc: Discretisation, boundary: Boundary, solver, progress
     modes = rigid_body_modes(disc.doflocs)
     if not boundary.periodic:
         return solve_condensed(K, f, fixed, modes, progress=progress, spaces=spaces,
-                               linear=linear_space(disc), **solver_options(solver))
+                               linear=linear_space(disc), follow_up=follow_up,
+                               **solver_options(solver))
     ties = tie_faces(disc.doflocs, boundary.periodic)
     Kr, fr, P = reduce_system(K, f, ties)
     rows = (ties.independent[:, None] * 3 + np.arange(3)).ravel()
     # the coarse spaces are not passed on: they are built on the untied grid, and the
     # tied system would need coarse grids whose opposite faces are tied as well, which
     # grid_hierarchy does not build; the reduced system uses algebraic multigrid
+    tied = None
+    if follow_up is not None:
+        def tied(ur_, solve_r):
+            follow_up(P @ ur_, lambda rhs, *a: P @ solve_r(P.T @ rhs, *a))
     ur, rep = solve_condensed(Kr, fr, reduce_dofs(fixed, ties), modes[rows], progress=progress,
-                              **solver_options(solver))
+                              follow_up=tied, **solver_options(solver))
     return P @ ur, rep

@@ -127,12 +127,15 @@ def _frame(mat: Material, normal, x_axis) -> Frame:
     return sample_frame(normal, x_axis, INDEX_SYSTEMS[mat.system], mat.c_over_a)
 
 
-def build_layers(case: Case) -> list[LayerModel]:
+def build_layers(case: Case, material=None) -> list[LayerModel]:
     """Resolve materials, orientations and eigenstrains of every region.
 
     Parameters
     ----------
     case : Case
+    material : callable(name, x) -> Material, optional
+        Resolves the material names (default ``case.material``); the material-data
+        scatter passes one that returns materials with varied constants.
 
     Returns
     -------
@@ -140,8 +143,9 @@ def build_layers(case: Case) -> list[LayerModel]:
         The substrate, then each layer bottom to top.
     """
     sub = case.substrate
+    resolve = case.material if material is None else material
     try:
-        smat = case.material(sub.material, sub.x)
+        smat = resolve(sub.material, sub.x)
     except Exception as exc:  # validated already; keep a clear message anyway
         raise CaseError("substrate.material", str(exc)) from exc
     sframe = _frame(smat, sub.normal, sub.x_axis)
@@ -158,7 +162,7 @@ def build_layers(case: Case) -> list[LayerModel]:
     z = 0.0
     for i, lay in enumerate(case.layers, start=1):
         key = f"layer[{i - 1}]"
-        mat = case.material(lay.material, lay.x)
+        mat = resolve(lay.material, lay.x)
         if lay.normal is not None:
             frame = _frame(mat, lay.normal, lay.x_axis)
         else:

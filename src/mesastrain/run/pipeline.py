@@ -44,6 +44,7 @@ from mesastrain.model.symmetry import Symmetry
 from mesastrain.model.symmetry import decide as decide_symmetry
 from mesastrain.run.resources import available_memory_gb, estimate
 from mesastrain.run.result import Derived, Result
+from mesastrain.run.sensitivity import Sensitivities, groups_of, unfold_sensitivities
 
 log = logging.getLogger(__name__)
 
@@ -121,22 +122,34 @@ def run_case(case: Case, progress=None, max_memory_gb: float | None = None,
     if sm.kind == "section" and solver.method == "auto":
         # a cross-section factorises cheaply (2-D fill-in); multigrid gains nothing there
         solver = replace(solver, method="direct")
+    sens = None
+    if case.uncertainty.enabled:
+        groups = groups_of(case, layers)
+        if groups:
+            sens = Sensitivities(case, groups, disc, sm.region, stiff, eig, extra, cache,
+                                 progress=say)
     u, rep = solve_model(K, f, disc, sm.boundary(), solver, progress=say,
-                         spaces=cache.deferred_spaces(sm.region))
+                         spaces=cache.deferred_spaces(sm.region), follow_up=sens)
     timings["solve"] = time.perf_counter() - t
+    if sens is not None:
+        timings["sensitivities"] = float(sum(sens.seconds.values()))
+        timings["solve"] -= timings["sensitivities"]
     say(f"solve: {rep.method}, {rep.iterations} iterations, residual {rep.residual:.1e}, "
         f"{timings['solve']:.1f} s")
     del K, cache
     t = time.perf_counter()
     model = model_summary(sm, sym, disc)
+    du = {} if sens is None else sens.du
     if sym.mirrors:   # reflect the solved part: everything downstream sees the whole body
+        du = unfold_sensitivities(sm, disc, du)
         sm, disc, u = unfold_model(sm, disc, u)
     fl = recover(disc, u, sm.region, stiff, eig, sm.solve_nnodes, sm.solve_mesh.t, extra)
     fl = sm.expand_fields(fl)
     if not (np.all(np.isfinite(fl.cell_stress)) and np.all(np.isfinite(fl.displacement))):
         raise SolverError("the recovered fields contain NaN or Inf; nothing was written")
     res = Result(case=case, layers=layers, mesh=sm, disc=disc, u=u, fields=fl,
-                 cell_eigenstrain=extra, solver=rep, timings=timings)
+                 cell_eigenstrain=extra, solver=rep, timings=timings, sensitivities=du,
+                 scatter_groups=tuple(sens.groups) if sens is not None else ())
     res.derived.append(Derived(summary={"model": model}))
     res.probes.extend(evaluate_probes(res))
     timings["recovery"] = time.perf_counter() - t

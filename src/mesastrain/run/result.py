@@ -80,6 +80,12 @@ class Result:
     timings : dict of str -> float, s
     warnings : list of str
     derived : list of Derived
+    sensitivities : dict of str -> ndarray (ndofs,)
+        Per constant group of the material-data scatter, the derivative of ``u``
+        along the group's published spread (nm per spread; whole body); empty
+        when ``[uncertainty]`` is off (:mod:`mesastrain.run.sensitivity`).
+    scatter_groups : tuple of Group
+        The constant groups of ``sensitivities``.
     """
 
     case: Case
@@ -94,6 +100,8 @@ class Result:
     timings: dict = field(default_factory=dict)
     warnings: list = field(default_factory=list)
     derived: list = field(default_factory=list)
+    sensitivities: dict = field(default_factory=dict, repr=False)
+    scatter_groups: tuple = ()
 
     @property
     def order(self) -> int:
