@@ -413,7 +413,8 @@ def solve_condensed(K: sp.csr_matrix, f: np.ndarray, fixed: np.ndarray,
             if lu is not None:
                 out[idx] = lu.solve(b2)
                 return out
-            t_, s_ = tol if tol2 is None else tol2, stress_tol if stress_tol2 is None else stress_tol2
+            t_ = tol if tol2 is None else tol2
+            s_ = stress_tol if stress_tol2 is None else stress_tol2
             x2, it2, rel2, err2 = pcg(A, b2, H, t_, s_, maxiter, None)
             if not (np.all(np.isfinite(x2)) and rel2 <= max(10 * t_, 1e-10) and err2 <= 10 * s_):
                 raise SolverError(f"an extra right-hand side did not converge: relative "
@@ -421,7 +422,7 @@ def solve_condensed(K: sp.csr_matrix, f: np.ndarray, fixed: np.ndarray,
             out[idx] = x2
             return out
         follow_up(u, solve_again)
-    del lu, H
+    lu = H = None     # free the factorisation / hierarchy before returning
     return u, report
 
 
