@@ -491,6 +491,12 @@ MATERIAL_KEYS = (
         "type": "object", "additionalProperties": {"type": "string"}}]}),
         "Where the numbers come from: a string, or a table of strings per quantity."),
     Key("structure", STRING, 'E.g. "wurtzite", "amorphous".'),
+    Key("spread", Kind(lambda v, k: v, {"type": "object", "additionalProperties": False,
+                                        "properties": {q: {"type": "object"} for q in
+                                                       ("stiffness", "lattice", "alpha")}}),
+        "Published scatter per quantity (stiffness, lattice, alpha): a table of the second "
+        "source's values (or [low, high] ranges) with a source string, e.g. { C11 = 118.8, "
+        "C12 = 53.7, source = \"...\" }; [uncertainty] propagates it."),
     Key("replace_builtin", BOOL, "true: the NAME is meant to replace the built-in material of "
                                  "that name.", default=False),
 )

@@ -229,7 +229,7 @@ def parse_spreads(table, system: str, values: dict, alpha: tuple, who: str) -> t
                "alpha": ["alpha"] if alpha else []}
     out = []
     for q, entry in table.items():
-        where = f"{who}.spread.{q}"
+        where = f"{who}.spread: {q}"
         if q not in allowed or not allowed[q]:
             ok = [k for k, v in allowed.items() if v]
             raise MaterialError(f"{where} is not a quantity this material has; allowed: "
