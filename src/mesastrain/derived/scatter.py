@@ -214,8 +214,9 @@ def derive(res) -> Derived:
         Empty when ``[uncertainty] enabled = false``. Otherwise
         ``summary["material_scatter"]`` with ``method``, ``groups`` (name ->
         kind, material, quantity, spreads), ``figures`` (name -> ``error``,
-        ``dominant``, ``contributions``; singular figures ``singular: true``
-        and no error) and ``seconds``.
+        ``dominant``, ``contributions`` (|change| per group) and ``changes``
+        (the signed change of the figure for one spread of each group);
+        singular figures ``singular: true`` and no error) and ``seconds``.
     """
     case = res.case
     if not case.uncertainty.enabled:
@@ -246,7 +247,9 @@ def derive(res) -> Derived:
         err = float(np.sqrt(sum(c * c for c in contrib.values())))
         dominant = max(contrib, key=contrib.get) if err > 0 else None
         out_figs[f.name] = {"error": err, "dominant": dominant,
-                            "contributions": {g: c for g, c in contrib.items() if c > 0}}
+                            "contributions": {g: c for g, c in contrib.items() if c > 0},
+                            "changes": {g: float(v[i]) for g, v in changes.items()
+                                        if np.isfinite(v[i])}}
     for f in figs:
         if f.singular:
             out_figs[f.name] = {"error": None, "singular": True}
