@@ -12,6 +12,7 @@ import time
 from pathlib import Path
 
 from mesastrain.case.parse import load_case
+from mesastrain.cli.headline_table import headline_table
 from mesastrain.errors import CaseError
 
 
@@ -94,6 +95,10 @@ def _solve_and_write(args, case, dest) -> int:
     summary = jsonable(summary_of(res))
     if not args.quiet:
         print(results_table(summary))
+        figures = headline_table(summary)
+        if figures:
+            print()
+            print(figures)
         if study is not None:
             from mesastrain.run.convergence import table as convergence_table
 

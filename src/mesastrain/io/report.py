@@ -24,6 +24,7 @@ from pathlib import Path
 from mesastrain.io.markup import esc, image, mpa, num, table
 from mesastrain.io.render import standard_pictures
 from mesastrain.io.report_device import section_device
+from mesastrain.io.report_headline import section_headline_errors
 from mesastrain.io.report_misfit import section_misfit
 from mesastrain.io.report_sections import (
     section_bow,
@@ -70,7 +71,8 @@ figcaption { font-size: 0.86em; color: #4d5a66; }
 
 #: Report sections in order: ``section(summary, folder) -> HTML fragment or None``.
 SECTIONS: tuple[Callable[[dict, Path], str | None], ...] = (
-    section_inputs, section_stack, section_headline, section_bow, section_probes,
+    section_inputs, section_headline_errors, section_stack, section_headline, section_bow,
+    section_probes,
     section_misfit, section_device, section_convergence, section_pictures)
 
 
