@@ -356,6 +356,41 @@ def test_plots_have_units_and_one_line_per_other_value(tmp_path):
         assert p.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
 
 
+def test_headline_error_bars_are_collected_and_banded(tmp_path):
+    # a headline figure collected by name brings its error bars: table columns and bands
+    import csv
+
+    from mesastrain.cli.sweep.figures import ERROR_CONTRIBUTIONS, error_paths
+    from mesastrain.cli.sweep.tables import collect_figures, write_table
+    from mesastrain.derived.headline import CONTRIBUTIONS
+
+    assert tuple(ERROR_CONTRIBUTIONS) == CONTRIBUTIONS
+    f = "headline.layer 1 centre sxx.value"
+    assert error_paths(f)["material_scatter"] == "headline.layer 1 centre sxx.material_scatter.error"
+    assert error_paths("probes.centre.stress.xx") == {}
+    sw = parse_sweep(_sweep(vary=[{"key": "pattern.width", "values": [200, 300, 400]}],
+                            collect={"figures": [f]}), base=SMALL_BASE)
+    outs = []
+    for k, c in enumerate(expand(sw)):
+        row = {"name": "layer 1 centre sxx", "value": -100.0 * (k + 1), "unit": "MPa",
+               "material_scatter": {"error": 10.0 * (k + 1), "dominant": "SiGe lattice law"}}
+        if k:                     # the first case ran without a discretisation estimate
+            row["discretisation_error"] = {"error": 3.0}
+        folder = tmp_path / "cases" / c.hash
+        folder.mkdir(parents=True)
+        (folder / "summary.json").write_text(json.dumps({"headline": [row]}))
+        outs.append(CaseOutcome(c, status="ok"))
+    errors, units = collect_figures(sw, tmp_path, outs)
+    assert errors == {} and units[f] == "MPa"
+    assert [oc.figures[f] for oc in outs] == [-100.0, -200.0, -300.0]
+    write_table(sw, tmp_path, outs)
+    rows = list(csv.DictReader((tmp_path / TABLE_CSV).open()))
+    assert [r[error_paths(f)["material_scatter"]] for r in rows] == ["10", "20", "30"]
+    assert [r[error_paths(f)["discretisation_error"]] for r in rows] == ["", "3", "3"]
+    paths = plot_sweep(sw, outs, tmp_path / "plots")
+    assert len(paths) == 1 and paths[0].read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+
+
 # --------------------------------------------------------------------------
 # command line without Dask
 # --------------------------------------------------------------------------

@@ -11,6 +11,15 @@ of a list (from 0). Two shorthands: in a list of tables that carry a ``name``
 (``probes.centre.displacement.z``). Units are inferred from the quantity
 (stress MPa, lengths and displacements nm, strain dimensionless) or given in
 ``[collect] units = {"path" = "unit"}``.
+
+Error bars
+----------
+A headline figure is collected by its name, ``headline.NAME.value`` (e.g.
+``headline.layer 1 centre sxx.value``; the names are those of ``summary.json``
+``headline``). Its error bars come with it: the table gains one column per error
+contribution (``headline.NAME.material_scatter.error``,
+``headline.NAME.discretisation_error.error``; empty where a run did not compute
+it) and the plots draw them as bands around the curve (:func:`error_paths`).
 """
 
 from __future__ import annotations
@@ -34,6 +43,11 @@ _UNIT_SUFFIXES = (("_nm3", "nm^3"), ("_nm", "nm"), ("_um", "um"), ("_mpa", "MPa"
                   ("_gpa", "GPa"), ("_mev", "meV"), ("_ev", "eV"), ("_k", "K"),
                   ("_seconds", "s"), ("_s", "s"), ("_percent", "%"), ("_cm-1", "cm^-1"),
                   ("_per_m", "1/m"), ("_j_m2", "J/m^2"))
+
+#: The error contributions a headline figure may carry, as in
+#: :data:`mesastrain.derived.headline.CONTRIBUTIONS` (listed here so that the sweep command
+#: does not load the derived-quantity providers), with the legend text of their bands.
+ERROR_CONTRIBUTIONS = {"discretisation_error": "mesh", "material_scatter": "material data"}
 
 _TENSOR = {"xx": (0, 0), "yy": (1, 1), "zz": (2, 2), "xy": (0, 1), "yz": (1, 2), "xz": (0, 2),
            "yx": (1, 0), "zy": (2, 1), "zx": (2, 0)}
@@ -111,6 +125,22 @@ def figure_value(summary: dict, path: str, key: str = "figure"):
     raise CaseError(key, f"{path} is {show_value(cur)}, not a number")
 
 
+def error_paths(path: str) -> dict:
+    """The error-bar paths of a headline figure's value path, by contribution.
+
+    ``headline.NAME.value`` -> ``{"discretisation_error": "headline.NAME.discretisation_error
+    .error", "material_scatter": ...}``; any other path -> ``{}``.
+    """
+    try:
+        segs = parse_path(path, "figure")
+    except CaseError:
+        return {}
+    if len(segs) == 3 and segs[0] == "headline" and isinstance(segs[1], str) \
+            and segs[2] == "value":
+        return {c: f"headline.{segs[1]}.{c}.error" for c in ERROR_CONTRIBUTIONS}
+    return {}
+
+
 def _is_num_or_none(v) -> bool:
     return v is None or is_number(v)
 
@@ -150,7 +180,10 @@ def figure_unit(path: str, given: dict | None = None, summary: dict | None = Non
     segs = parse_path(path, "figure")
     tables = []                           # unit tables met on the way, outermost first
     cur = summary
-    for s in segs:
+    for k, s in enumerate(segs):
+        if (segs[0] == "headline" and k == 2 and isinstance(cur, dict)
+                and isinstance(cur.get("unit"), str)):
+            return cur["unit"]            # a headline figure and its error bars carry it
         if isinstance(cur, dict) and isinstance(cur.get("units"), dict):
             tables.append(cur["units"])
         if isinstance(cur, dict):

@@ -14,7 +14,7 @@ from pathlib import Path
 import numpy as np
 
 from mesastrain import __version__
-from mesastrain.cli.sweep.figures import figure_unit, figure_value
+from mesastrain.cli.sweep.figures import ERROR_CONTRIBUTIONS, error_paths, figure_unit, figure_value
 from mesastrain.cli.sweep.spec import Sweep
 from mesastrain.cli.sweep.store import (
     CASES_DIR,
@@ -62,6 +62,11 @@ def collect_figures(sweep: Sweep, out: Path, outcomes) -> tuple[dict, dict]:
             except CaseError as err:
                 oc.figures[f] = None
                 errors.setdefault(f, str(err))
+            for ep in error_paths(f).values():     # absent when a run did not compute it
+                try:
+                    oc.figures[ep] = figure_value(summary, ep)
+                except CaseError:
+                    oc.figures[ep] = None
     units = {f: figure_unit(f, sweep.units, first) for f in sweep.figures}
     return {f: e for f, e in errors.items() if not resolved[f]}, units
 
@@ -75,8 +80,12 @@ def _columns(sweep: Sweep, units: dict | None = None) -> list[dict]:
         cols.append({"name": ax.key, "unit": ax.unit, "meaning": "varied case-file key "
                      "(resolved value: lengths nm, temperatures K)"})
     for f in sweep.figures:
-        cols.append({"name": f, "unit": (units or {}).get(f, figure_unit(f, sweep.units)),
-                     "meaning": "figure from the case's summary.json"})
+        unit = (units or {}).get(f, figure_unit(f, sweep.units))
+        cols.append({"name": f, "unit": unit, "meaning": "figure from the case's summary.json"})
+        for c, ep in error_paths(f).items():
+            cols.append({"name": ep, "unit": unit,
+                         "meaning": f"error bar of {f}: {ERROR_CONTRIBUTIONS[c]} "
+                                    f"({c}; empty where the run did not compute it)"})
     cols.append({"name": "error", "unit": "", "meaning": "why the case failed"})
     return cols
 
@@ -87,7 +96,9 @@ def _rows(sweep: Sweep, outcomes) -> list[list]:
         res = oc.case.resolved()
         row = [oc.case.index, oc.case.hash, oc.status, oc.seconds]
         row += [res[ax.key] for ax in sweep.axes]
-        row += [oc.figures.get(f) for f in sweep.figures]
+        for f in sweep.figures:
+            row.append(oc.figures.get(f))
+            row += [oc.figures.get(ep) for ep in error_paths(f).values()]
         row.append(oc.error or "")
         rows.append(row)
     return rows
@@ -230,8 +241,10 @@ def plot_sweep(sweep: Sweep, outcomes, folder: Path, units: dict | None = None) 
                 if oc.status == "failed":
                     failed += 1
                 gk = tuple(r[a.key] for a in others) if sweep.combine == "grid" else ()
-                groups.setdefault(gk, []).append((r[ax.key], y))
-            if not any(y is not None for pts in groups.values() for _, y in pts):
+                bars = {c: (oc.figures.get(ep) if oc.status == "ok" else None)
+                        for c, ep in error_paths(f).items()}
+                groups.setdefault(gk, []).append((r[ax.key], y, bars))
+            if not any(p[1] is not None for pts in groups.values() for p in pts):
                 continue
             fig = Figure(figsize=(6.4, 4.4), dpi=110)
             FigureCanvasAgg(fig)
@@ -248,7 +261,10 @@ def plot_sweep(sweep: Sweep, outcomes, folder: Path, units: dict | None = None) 
                                                           else "")
                                 if is_number(v) else f"{a.key} = {v}"
                                 for a, v in zip(others, gk)) or None
-                pl.plot(x, y, marker="o", label=lab)
+                line, = pl.plot(x, y, marker="o", label=lab)
+                banded = _error_bands(pl, x, y, [p[2] for p in pts], line.get_color(),
+                                      len(groups) == 1)
+                ally += banded
                 allx += [xi for xi, yi in zip(x, y) if np.isfinite(yi)]
                 ally += [yi for yi in y if np.isfinite(yi)]
             if numeric and min(distinct) > 0 and max(distinct) / min(distinct) > 20:
@@ -268,7 +284,7 @@ def plot_sweep(sweep: Sweep, outcomes, folder: Path, units: dict | None = None) 
             pl.set_title(title, fontsize=10)
             fig.suptitle(sweep.title, fontsize=8, color="0.35")
             pl.grid(True, which="both", alpha=0.3)
-            if len(groups) > 1 and len(groups) <= 10:
+            if (len(groups) > 1 and len(groups) <= 10) or pl.get_legend_handles_labels()[1]:
                 pl.legend(fontsize=8)
             fig.tight_layout()
             folder.mkdir(parents=True, exist_ok=True)
@@ -278,6 +294,25 @@ def plot_sweep(sweep: Sweep, outcomes, folder: Path, units: dict | None = None) 
             os.replace(tmp, path)
             written.append(path)
     return written
+
+
+def _error_bands(pl, x, y, bars: list, color, label: bool) -> list:
+    """Shade each error contribution of a headline figure around its curve (fill_between).
+
+    Returns the band edges drawn (for the zero line decision).
+    """
+    edges = []
+    for k, (c, text) in enumerate(ERROR_CONTRIBUTIONS.items()):
+        e = np.array([np.nan if b.get(c) is None else b[c] for b in bars], dtype=float)
+        if not np.any(np.isfinite(e)):
+            continue
+        yv = np.asarray(y, dtype=float)
+        lo, hi = yv - e, yv + e
+        pl.fill_between(x, lo, hi, color=color, alpha=0.18 if k else 0.32, lw=0,
+                        hatch=None if k else "//",
+                        label=f"\N{PLUS-MINUS SIGN} {text}" if label else None)
+        edges += [v for v in np.concatenate([lo, hi]) if np.isfinite(v)]
+    return edges
 
 
 def summary_text(sweep: Sweep, meta: dict, outcomes, max_rows: int = 40) -> str:
