@@ -1,0 +1,96 @@
+"""The material-data scatter provider on the small mesa (session fixture)."""
+
+import numpy as np
+import pytest
+
+from mesastrain.cli.headline_table import headline_table
+from mesastrain.derived.headline import headline_figures, merged_summary
+from mesastrain.derived.scatter import evaluation_plan, figure_values
+from mesastrain.io.export import jsonable
+from mesastrain.io.folder import summary_of
+from mesastrain.io.report_headline import SINGULAR_TEXT, figure_texts, section_headline_errors
+from mesastrain.physics.materials import get_material
+
+
+@pytest.fixture(scope="module")
+def summary(small_mesa_result):
+    return merged_summary(small_mesa_result)
+
+
+def test_every_figure_has_a_band_or_is_singular(small_mesa_result, summary):
+    ms = summary["material_scatter"]
+    assert list(ms["groups"]) == ["Si C_ij", "SiGe C_ij", "SiGe lattice law", "Raman PDP set"]
+    rows = summary["headline"]
+    assert len(rows) > 10
+    for row in rows:
+        entry = ms["figures"][row["name"]]
+        assert row["material_scatter"] == entry
+        if row["singular"]:
+            assert entry == {"error": None, "singular": True}
+            continue
+        c = entry["contributions"]
+        assert entry["error"] == pytest.approx(np.sqrt(sum(v * v for v in c.values())))
+        assert entry["dominant"] == max(c, key=c.get)
+        assert all(abs(entry["changes"][g]) == pytest.approx(v) for g, v in c.items())
+
+
+def test_figures_re_evaluated_on_the_unvaried_state_reproduce_the_readouts(small_mesa_result):
+    # the sensitivities difference exactly the readouts' own evaluation: at t = 0 it must
+    # give back every headline value (otherwise the band would belong to another number)
+    figs = [f for f in headline_figures(small_mesa_result) if not f.singular]
+    plan = evaluation_plan(small_mesa_result, figs, merged_summary(small_mesa_result))
+    vals = figure_values(small_mesa_result, figs, plan)
+    checked = 0
+    for f, v in zip(figs, vals):
+        if f.kind == "bow":
+            assert np.isnan(v)
+            continue
+        assert v == pytest.approx(f.value, rel=1e-9, abs=1e-9), f.name
+        checked += 1
+    assert checked >= 15
+
+
+def test_lattice_law_band_scales_the_whole_field(small_mesa_result, summary):
+    # The film's eigenstrain is e I (cubic film, isotropic misfit) and the solution is linear
+    # in it, so moving the SiGe lattice constant along the Dismukes -> Vegard spread changes
+    # every stress (and von Mises, homogeneous of degree 1) by sigma * de/e and leaves the
+    # relaxation length unchanged: e = (a - a_Si)/a, de/da = a_Si/a^2.
+    film, si = get_material("SiGe", 0.2), get_material("Si")
+    da = film.spread("lattice law").delta["a"]
+    e = (film.a - si.a) / film.a
+    ratio = si.a / film.a**2 * da / e
+    figs = summary["material_scatter"]["figures"]
+    n = 0
+    for row in summary["headline"]:
+        if row["singular"] or row["kind"] in ("band", "bow"):
+            continue
+        change = figs[row["name"]]["changes"]["SiGe lattice law"]
+        if row["kind"] == "relaxation":
+            assert abs(change) < 1e-4 * row["value"]
+        else:
+            assert change == pytest.approx(row["value"] * ratio, rel=1e-4), row["name"]
+            n += 1
+    assert n >= 10
+    centre = figs["layer 1 centre sxx"]
+    assert centre["dominant"] == "SiGe lattice law"
+    # about 10 % of the misfit at x = 0.2 (Dismukes 0.00754 vs Vegard 0.00836 relative to a_Si,
+    # REFERENCES.md 1c)
+    assert 0.08 < abs(ratio) < 0.12
+
+
+def test_report_section_and_terminal_table(small_mesa_result):
+    s = jsonable(summary_of(small_mesa_result))
+    html = section_headline_errors(s, None)
+    assert "<h2>Headline figures and error bars</h2>" in html
+    assert "SiGe lattice law" in html and "root-sum-square" in html
+    assert SINGULAR_TEXT in html
+    text = headline_table(s)
+    lines = text.splitlines()
+    assert lines[0].startswith("headline figure")
+    centre = next(ln for ln in lines if ln.startswith("layer 1 centre sxx"))
+    assert "MPa" in centre and "\u00b1" in centre and "(mostly SiGe lattice law)" in centre
+    assert any("interface" in ln and "singular" in ln for ln in lines)
+    row = next(r for r in s["headline"] if r["name"] == "layer 1 centre sxx")
+    t = figure_texts(row)
+    assert t["line"].startswith("layer 1 centre sxx -") and "mostly SiGe lattice law" in t["line"]
+    assert section_headline_errors({"headline": []}, None) is None
