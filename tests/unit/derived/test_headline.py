@@ -52,5 +52,7 @@ def test_contributions_are_attached_by_name(small_mesa_result):
     rows = headline.derive(res2).summary["headline"]
     assert rows[0]["discretisation_error"] == {"error": 1.5}
     assert "discretisation_error" not in rows[1]
-    assert "material_scatter" not in rows[0]
+    # the material-data scatter provider (derived.scatter) runs before headline.derive
+    scatter = merged_summary(res)["material_scatter"]["figures"]
+    assert rows[0]["material_scatter"] == scatter[name]
     assert set(Figure.__dataclass_fields__) <= set(rows[0])
