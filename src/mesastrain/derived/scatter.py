@@ -174,15 +174,17 @@ def _group_changes(res, figs, plan, group) -> np.ndarray:
     return d
 
 
-def _raman_changes(res, figs, plan) -> tuple[np.ndarray, list]:
+def _raman_changes(res, figs, base) -> tuple[np.ndarray, list]:
     """Largest change of the Raman figures over the other published PDP sets."""
     idx = [i for i, f in enumerate(figs) if f.kind == "raman"]
     best = np.zeros(len(figs))
     used = []
     if not idx:
         return best, used
+    sub = [figs[i] for i in idx]
+    plan = evaluation_plan(res, sub, base)
     chosen = dict(res.case.device.raman_pdp)
-    ref = figure_values(res, figs, plan)
+    ref = figure_values(res, sub, plan)
     for mat in ("Si", "Ge"):
         if not any(lm.material.name in (mat, "SiGe" if mat == "Si" else mat)
                    for lm in res.layers):
@@ -193,11 +195,11 @@ def _raman_changes(res, figs, plan) -> tuple[np.ndarray, list]:
                 continue
             dev = replace(res.case.device, raman_pdp=tuple({**chosen, mat: alt}.items()))
             other = replace(res, case=replace(res.case, device=dev))
-            change = figure_values(other, figs, plan) - ref
+            change = figure_values(other, sub, plan) - ref
             used.append(f"{mat} {alt}")
-            for i in idx:
-                if np.isfinite(change[i]) and abs(change[i]) > abs(best[i]):
-                    best[i] = change[i]
+            for k, i in enumerate(idx):
+                if np.isfinite(change[k]) and abs(change[k]) > abs(best[i]):
+                    best[i] = change[k]
     return best, used
 
 
@@ -234,7 +236,7 @@ def derive(res) -> Derived:
                           "spreads": [dict(s) for s in g.spreads]}
     warnings = []
     if "raman" in case.uncertainty.groups:
-        d, used = _raman_changes(res, live, plan)
+        d, used = _raman_changes(res, live, base)
         if used:
             changes["Raman PDP set"] = d
             groups["Raman PDP set"] = {"kind": "raman", "material": "", "quantity": "PDP set",

@@ -177,3 +177,36 @@ def test_uncertainty_off_and_groups(small_mesa_case):
     res = solve_and_derive(off)
     assert res.sensitivities == {} and "material_scatter" not in summary_of(res)
     assert all("material_scatter" not in row for row in summary_of(res)["headline"])
+
+
+def test_raman_pdp_set_band_of_a_biaxially_strained_si_film():
+    # (001) backscattering sees the LO mode: d omega = omega0 (p eps_zz + 2 q eps)/2 with
+    # eps_zz = -2 C12/C11 eps for a biaxially strained film, i.e. b eps with b = -831 (1990
+    # set, the default), -723 (1978), -697 cm^-1 (1970) (REFERENCES.md section 7, [D] from the
+    # published PDPs). The band is the largest change over the other sets: |b_1970 - b_1990|
+    # / |b_1990| of the shift, whatever the strain.
+    from mesastrain.physics.raman_data import pdp_sets, raman_parameters
+
+    c = SI.constants
+    ratio = -2 * c["C12"] / c["C11"]
+    b = {s: raman_parameters("Si", s) for s in pdp_sets("Si")}
+    b = {s: p.omega0 * (p.p * ratio + 2 * p.q) / 2 for s, p in b.items()}
+    default = pdp_sets("Si")[0]
+    want = max(abs(v - b[default]) for v in b.values()) / abs(b[default])
+    case = parse_case({
+        "title": "strained Si on relaxed SiGe",
+        "substrate": {"material": "SiGe", "x": 0.2, "thickness": "10 um",
+                      "normal": [0, 0, 1], "x_axis": [1, 1, 0]},
+        "layer": [{"material": "Si", "thickness": 20}],
+        "solver": {"method": "direct"},
+        "probe": [{"name": "film", "at": [0, 0, 10]}],
+        "uncertainty": {"groups": ["raman"]},
+    })
+    s = summary_of(solve_and_derive(case))
+    row = next(r for r in s["headline"] if r["name"] == "probe film Raman shift")
+    entry = row["material_scatter"]
+    assert entry["dominant"] == "Raman PDP set"
+    assert entry["error"] == pytest.approx(abs(row["value"]) * want, rel=1e-6)
+    assert 0.15 < want < 0.17
+    assert s["material_scatter"]["groups"]["Raman PDP set"]["alternatives"] == [
+        f"Si {k}" for k in pdp_sets("Si")[1:]]
