@@ -39,3 +39,16 @@ def test_time_to_accuracy_runs_tiny():
     out = run("time_to_accuracy.py", "--tiny")
     assert "reference" in out and "centre err" in out
     assert out.count("\n    1 ") == 1 and out.count("\n    2 ") == 1
+
+
+@pytest.mark.slow
+def test_uncertainty_cost_runs_tiny(tmp_path):
+    import json
+
+    out = run("uncertainty_cost.py", "--tiny", "--json", str(tmp_path / "rows.json"), timeout=300)
+    assert "ratio" in out and "mostly SiGe lattice law" in out
+    row = json.loads((tmp_path / "rows.json").read_text())["rows"][0]
+    assert row["plain"]["groups"] == []
+    assert row["default"]["groups"] == ["Si C_ij", "SiGe C_ij", "SiGe lattice law",
+                                        "Raman PDP set"]
+    assert row["ratio"] > 0 and row["default"]["solves_s"] > 0

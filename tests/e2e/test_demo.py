@@ -48,3 +48,20 @@ def test_demo_vtu_opens_and_renders(demo_result, tmp_path):
     # a diverging colour map on a strained film gives both strong reds and strong blues
     assert np.any((rgb[:, 0] > 150) & (rgb[:, 2] < 100))
     assert np.any((rgb[:, 2] > 120) & (rgb[:, 0] < 80))
+
+
+def test_demo_report_shows_every_headline_figure_with_its_error_bars(demo_result):
+    # issue 17: each headline figure with its error contributions; singular ones marked
+    s = json.loads((demo_result / "summary.json").read_text())
+    html = (demo_result / "report.html").read_text()
+    assert "Headline figures and error bars" in html
+    assert "discretisation error" in html and "material scatter" in html
+    for row in s["headline"]:
+        assert row["name"] in html
+        if row["singular"]:
+            assert row["material_scatter"]["singular"]
+        else:
+            assert row["material_scatter"]["error"] > 0
+    centre = next(r for r in s["headline"] if r["name"] == "layer 1 centre sxx")
+    assert centre["material_scatter"]["dominant"] == "SiGe lattice law"
+    assert 0.05 < centre["material_scatter"]["error"] / abs(centre["value"]) < 0.15
