@@ -466,6 +466,7 @@ def materials_table(width: int = 120) -> str:
             "-" if m.c_over_a is None else f"{m.c_over_a:.4f}", "/".join(f"{v:.2f}" for v in m.alpha)))
         for q, text in db["material"][name]["source"].items():
             lines += wrap(q, text)
+        lines += _spread_lines(m, wrap)
     lines += ["", "Alloys: x is the fraction of the second member; C_ij and alpha linear in x",
               "-" * min(width, 100)]
     for name, al in db["alloy"].items():
@@ -479,6 +480,10 @@ def materials_table(width: int = 120) -> str:
         members = f"{al['members'][0]} .. {al['members'][1]}"
         lines.append(f"{name:<8}{_formula(al):<16}x = {al['x_of']:<4}{members:<14}lattice: {law}")
         lines += wrap("source", al["source"])
+        law_spread = (al.get("spread") or {}).get("lattice_law")
+        if law_spread:
+            lines += wrap("spread lattice law", f"{law_spread['law']} instead: "
+                                                f"{law_spread['source']}")
     for group in GENERAL_GROUPS:
         if db.get(group):
             lines += _general_section(group, wrap, num, width)
@@ -514,4 +519,18 @@ def _general_section(group: str, wrap, num, width: int) -> list[str]:
                 num(m.a), num(m.c), alpha))
         for q, text in db[group][m.name]["source"].items():
             lines += wrap(q, text)
+        lines += _spread_lines(m, wrap)
     return lines
+
+
+def _spread_lines(m: Material, wrap) -> list[str]:
+    """Lines of :func:`materials_table` for a material's published spreads."""
+    out = []
+    for sp in m.spreads:
+        change = ", ".join(
+            f"{k} {'/'.join(f'{x:+.3g}' for x in v)}" if isinstance(v, tuple) else f"{k} {v:+.3g}"
+            for k, v in sp.delta.items())
+        what = "half range" if sp.kind == "range" else sp.kind
+        out += wrap(f"spread {sp.quantity}", f"{change} ({what}, up to "
+                                              f"{100 * sp.relative(m):.2g} %): {sp.source}")
+    return out
