@@ -230,11 +230,15 @@ def derive(res) -> Derived:
     plan = evaluation_plan(res, live, base)
     changes: dict = {}
     groups = {}
+    warnings = []
     for g in res.scatter_groups:
+        if g.name not in res.sensitivities:      # the solve had no load: nothing to follow up
+            warnings.append(f"uncertainty: no sensitivity of the displacement to {g.name} "
+                            f"(the model has no load); its contribution is left out")
+            continue
         changes[g.name] = _group_changes(res, live, plan, g)
         groups[g.name] = {"kind": g.kind, "material": g.material, "quantity": g.quantity,
                           "spreads": [dict(s) for s in g.spreads]}
-    warnings = []
     if "raman" in case.uncertainty.groups:
         d, used = _raman_changes(res, live, base)
         if used:
