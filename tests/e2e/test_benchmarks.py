@@ -50,5 +50,5 @@ def test_uncertainty_cost_runs_tiny(tmp_path):
     row = json.loads((tmp_path / "rows.json").read_text())["rows"][0]
     assert row["plain"]["groups"] == []
     assert row["default"]["groups"] == ["Si C_ij", "SiGe C_ij", "SiGe lattice law",
-                                        "Raman PDP set"]
+                                        "Raman PDP set", "deformation potentials"]
     assert row["ratio"] > 0 and row["default"]["solves_s"] > 0

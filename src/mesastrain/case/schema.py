@@ -427,8 +427,9 @@ READOUTS = Table("readouts", "readouts", "Settings of the engineering readouts."
 
 #: Constant groups the material-data scatter can vary (``[uncertainty] groups``): every
 #: material's stiffness constants, its lattice constant or lattice law, its thermal
-#: expansion (only with ``[thermal]``) and the Raman phonon deformation potential set.
-UNCERTAINTY_GROUPS = ("stiffness", "lattice", "alpha", "raman")
+#: expansion (only with ``[thermal]``), the Raman phonon deformation potential set and the
+#: band deformation potentials that have a second published value.
+UNCERTAINTY_GROUPS = ("stiffness", "lattice", "alpha", "raman", "bands")
 
 UNCERTAINTY = Table("uncertainty", "uncertainty", "Material-data scatter propagated to the "
                     "headline figures by first-order sensitivities.", (

@@ -361,7 +361,8 @@ class UncertaintySettings:
         figures (first-order sensitivities, one extra solve per constant group).
     groups : tuple of str
         Kinds of constants that vary: ``stiffness``, ``lattice``, ``alpha``
-        (only with ``[thermal]``), ``raman`` (the phonon deformation potential set).
+        (only with ``[thermal]``), ``raman`` (the phonon deformation potential set),
+        ``bands`` (band deformation potentials with a second published value).
     """
 
     enabled: bool = UNCERTAINTY.default("enabled")

@@ -24,10 +24,13 @@ group is |dF/dt| (one spread moves the figure by that much), the band the
 root-sum-square over groups (the groups taken as independent), and the dominant
 group the largest contribution.
 
-Two groups are not linearised this way: the Raman phonon deformation potential
+Three groups are not linearised this way: the Raman phonon deformation potential
 set (``raman``) is a choice between published sets, so its contribution is the
 largest change of the Raman figures over the other tabulated sets (no re-solve:
-the PDPs do not change the stress); and the wafer bow of the separate
+the PDPs do not change the stress); the band deformation potentials (``bands``)
+move the band-gap figures by the change to their second published values
+(``second`` entries of ``device_parameters.toml``, e.g. the theory values of Van
+de Walle 1989 against the adopted experimental b, d of Laude et al. 1971); and the wafer bow of the separate
 free-plate solve is scaled by the relative change of its closed-form laminate
 value (classical lamination theory, Timoshenko 1925), which the plate solve
 reproduces for a blanket stack.
@@ -51,6 +54,7 @@ from mesastrain.derived.headline import headline_figures, merged_summary
 from mesastrain.derived.relaxation import relaxation_length
 from mesastrain.derived.sampling import column_profile, recovered_stress, sample_inside
 from mesastrain.fem.fields import von_mises
+from mesastrain.physics.bands import band_parameters, has_second_source
 from mesastrain.physics.raman_data import pdp_sets
 from mesastrain.run.result import Derived
 from mesastrain.run.sensitivity import STEP, varied_result
@@ -62,7 +66,8 @@ METHOD = ("first-order sensitivities: one extra right-hand side per constant gro
           "u +- h du with the varied constants (central difference of the figure evaluation); "
           "contribution = |change of the figure for one published spread of the group|; "
           "band = root-sum-square over the groups (taken as independent); the Raman PDP set "
-          "as the largest change over the other published sets; the FE wafer bow scaled by "
+          "as the largest change over the other published sets, the band deformation potentials "
+          "as the change to their second published values; the FE wafer bow scaled by "
           "the laminate closed form")
 
 _COMPONENT = {"sxx": 0, "syy": 1, "szz": 2}
@@ -101,7 +106,7 @@ def evaluation_plan(res, figs, base) -> dict:
             "device": any(figs[i].kind in ("raman", "band") for i in point_idx)}
 
 
-def figure_values(res, figs, plan) -> np.ndarray:
+def figure_values(res, figs, plan, device_plan=None) -> np.ndarray:
     """The headline figures re-evaluated on a (varied) result, the way their readouts do.
 
     Parameters
@@ -112,6 +117,8 @@ def figure_values(res, figs, plan) -> np.ndarray:
         From :func:`headline_figures` of the unvaried result.
     plan : dict
         :func:`evaluation_plan` of the unvaried result.
+    device_plan : Plan, optional
+        The device readouts' parameters (default: :func:`plan_of` of ``res``).
 
     Returns
     -------
@@ -126,7 +133,7 @@ def figure_values(res, figs, plan) -> np.ndarray:
         strain, stress, _, region = sample_inside(res, pts)
         dev = None
         if plan["device"]:
-            dplan = plan_of(res.case, res.layers)
+            dplan = plan_of(res.case, res.layers) if device_plan is None else device_plan
             if dplan.any:
                 dev = device_evaluate(dplan, np.maximum(region, 0), strain, stress)
         for k, i in enumerate(point_idx):
@@ -203,6 +210,34 @@ def _raman_changes(res, figs, base) -> tuple[np.ndarray, list]:
     return best, used
 
 
+def _band_changes(res, figs, base) -> tuple[np.ndarray, list]:
+    """Change of the band figures with the second published deformation potentials."""
+    idx = [i for i, f in enumerate(figs) if f.kind == "band"]
+    out = np.zeros(len(figs))
+    mats = []
+    if not idx:
+        return out, mats
+    dplan = plan_of(res.case, res.layers)
+    regions = []
+    for rp in dplan.regions:
+        mat = res.layers[rp.index].material
+        if rp.bands is not None and has_second_source(mat.name):
+            regions.append(replace(rp, bands=band_parameters(mat.name, mat.x, second=True)))
+            mats.append(mat.label)
+        else:
+            regions.append(rp)
+    if not mats:
+        return out, mats
+    sub = [figs[i] for i in idx]
+    plan = evaluation_plan(res, sub, base)
+    change = (figure_values(res, sub, plan, replace(dplan, regions=tuple(regions)))
+              - figure_values(res, sub, plan, dplan))
+    for k, i in enumerate(idx):
+        if np.isfinite(change[k]):
+            out[i] = change[k]
+    return out, list(dict.fromkeys(mats))
+
+
 def derive(res) -> Derived:
     """``summary["material_scatter"]``: each headline figure's band from the material data.
 
@@ -245,6 +280,13 @@ def derive(res) -> Derived:
             changes["Raman PDP set"] = d
             groups["Raman PDP set"] = {"kind": "raman", "material": "", "quantity": "PDP set",
                                        "alternatives": used}
+    if "bands" in case.uncertainty.groups:
+        d, mats = _band_changes(res, live, base)
+        if mats:
+            changes["deformation potentials"] = d
+            groups["deformation potentials"] = {
+                "kind": "bands", "material": ", ".join(mats), "quantity": "band deformation "
+                "potentials with a second published value (device_parameters.toml)"}
     out_figs = {}
     for i, f in enumerate(live):
         contrib = {g: abs(float(v[i])) for g, v in changes.items() if np.isfinite(v[i])}

@@ -64,6 +64,7 @@ __all__ = [
     "band_parameters",
     "band_summary",
     "device_parameters",
+    "has_second_source",
     "parameter_entry",
     "valence_hamiltonian",
 ]
@@ -198,12 +199,15 @@ _NUMERIC = ("a_v", "b", "d", "delta_so", "a_c", "xi_u_delta", "hydro_delta", "xi
 
 
 @functools.cache
-def _tabulated(name: str) -> BandParameters:
+def _tabulated(name: str, second: bool = False) -> BandParameters:
     table = device_parameters()["bands"][name]
     values, cites = {}, []
     for key in _NUMERIC:
         if key in table:
-            values[key], line = parameter_entry(table[key], f"bands.{name}.{key}")
+            entry = table[key]
+            if second and isinstance(entry.get("second"), dict):
+                entry = entry["second"]
+            values[key], line = parameter_entry(entry, f"bands.{name}.{key}")
             cites.append(line)
     for key in ("a_v", "b", "d", "delta_so"):
         if key not in values:
@@ -212,7 +216,16 @@ def _tabulated(name: str) -> BandParameters:
                           scale=table.get("scale", "none"), sources=tuple(cites), **values)
 
 
-def band_parameters(material: str, x: float | None = None) -> BandParameters:
+def has_second_source(material: str) -> bool:
+    """True when some band entry of a material (SiGe: of Si or Ge) gives a ``second`` value."""
+    names = ("Si", "Ge") if material == "SiGe" else (material,)
+    bands = device_parameters()["bands"]
+    return any(isinstance(e, dict) and isinstance(e.get("second"), dict)
+               for n in names if n in bands for e in bands[n].values())
+
+
+def band_parameters(material: str, x: float | None = None,
+                    second: bool = False) -> BandParameters:
     """Band deformation potentials of a material, from ``device_parameters.toml``.
 
     Parameters
@@ -223,6 +236,9 @@ def band_parameters(material: str, x: float | None = None) -> BandParameters:
     x : float, optional
         Ge fraction of Si(1-x)Ge(x), 0 <= x <= 1; required for ``"SiGe"`` and
         not allowed otherwise.
+    second : bool, default: False
+        Take each entry's ``second`` published value where it gives one (the
+        material-data scatter of the deformation potentials).
 
     Returns
     -------
@@ -245,7 +261,7 @@ def band_parameters(material: str, x: float | None = None) -> BandParameters:
         if not 0.0 <= xf <= 1.0:
             raise MaterialError(f"SiGe needs the Ge fraction x with 0 <= x <= 1, got x = {x!r}")
         x = xf
-        si, ge = _tabulated("Si"), _tabulated("Ge")
+        si, ge = _tabulated("Si", second), _tabulated("Ge", second)
         mixed = {k: (1.0 - x) * getattr(si, k) + x * getattr(ge, k)
                  for k in _NUMERIC if getattr(si, k) is not None and getattr(ge, k) is not None}
         bowed = []
@@ -261,7 +277,7 @@ def band_parameters(material: str, x: float | None = None) -> BandParameters:
                             f"{', '.join(known + ['SiGe'])}")
     if x is not None:
         raise MaterialError(f"{material} is not an alloy: give no x (got x = {x!r})")
-    return _tabulated(material)
+    return _tabulated(material, second)
 
 
 # --------------------------------------------------------------------------
