@@ -370,6 +370,49 @@ def assemble_matrix(disc: Discretisation, region: np.ndarray, stiffness: np.ndar
     return K
 
 
+def apply_stiffness(disc: Discretisation, region: np.ndarray, stiffness: np.ndarray,
+                    u: np.ndarray) -> np.ndarray:
+    """K u without assembling K (element by element, in chunks), GPa nm^2 for u in nm.
+
+    The same element matrices as :func:`assemble_matrix`, applied to the element
+    displacements and summed: no matrix of the whole mesh is held (the sensitivity
+    right-hand sides of :mod:`mesastrain.run.sensitivity` need (dK/dt) u while the
+    main solve's matrix and preconditioner are alive).
+
+    Parameters
+    ----------
+    disc : Discretisation
+    region : ndarray of int (nelems,)
+    stiffness : ndarray (nregions, 6, 6)
+        Voigt stiffness per region, sample frame, GPa.
+    u : ndarray (ndofs,)
+        Node-major displacement, nm.
+
+    Returns
+    -------
+    ndarray (ndofs,)
+    """
+    region = np.asarray(region)
+    _, Cm = _stiffness_tensors(stiffness)
+    Qref = _brick_reference(disc.bricks)[0] if disc.bricks is not None else None
+    U = np.asarray(u, dtype=float).reshape(-1, 3)
+    out = np.zeros(disc.ndofs)
+    nel, nloc = disc.nelems, disc.nloc
+    step = _chunk(disc)
+    for start in range(0, nel, step):
+        sl = slice(start, min(start + step, nel))
+        nodes = disc.element_dofs[:, sl].T.astype(np.int64)              # (n, nloc)
+        ue = U[nodes]                                                    # (n, b, k)
+        Ke, pairs_first = _element_matrices(disc, sl, region[sl], Cm, Qref)
+        if pairs_first:                                                  # (ab, n, i, k)
+            fe = np.einsum("abnik,nbk->nai", Ke.reshape(nloc, nloc, -1, 3, 3), ue)
+        else:                                                            # (n, a, b, i, k)
+            fe = np.einsum("nabik,nbk->nai", Ke, ue)
+        vd = nodes[:, :, None] * 3 + np.arange(3)
+        np.add.at(out, vd.ravel(), fe.ravel())
+    return out
+
+
 def assemble_load(disc: Discretisation, region: np.ndarray, stiffness: np.ndarray,
                   eigenstrain: np.ndarray, cell_eigenstrain: np.ndarray | None = None
                   ) -> np.ndarray:

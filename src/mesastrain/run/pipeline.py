@@ -126,8 +126,7 @@ def run_case(case: Case, progress=None, max_memory_gb: float | None = None,
     if case.uncertainty.enabled:
         groups = groups_of(case, layers)
         if groups:
-            sens = Sensitivities(case, groups, disc, sm.region, stiff, eig, extra, cache,
-                                 progress=say)
+            sens = Sensitivities(case, groups, disc, sm.region, stiff, eig, extra, progress=say)
     u, rep = solve_model(K, f, disc, sm.boundary(), solver, progress=say,
                          spaces=cache.deferred_spaces(sm.region), follow_up=sens)
     timings["solve"] = time.perf_counter() - t

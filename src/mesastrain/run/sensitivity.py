@@ -15,7 +15,9 @@ region stiffnesses and F bilinear in stiffness and eigenstrain, so dK/dt and dF/
 come from the region arrays' central differences at t = +-h
 (:data:`STEP`): dK/dt is exact, dF/dt exact in the stiffness and second-order
 accurate in the eigenstrain (which depends on the lattice constants through a
-ratio).
+ratio). (dK/dt) u is applied element by element
+(:func:`mesastrain.fem.assembly.apply_stiffness`), so no second matrix is held
+beside the main solve's.
 
 :func:`varied_result` gives the :class:`Result` of the varied material data to
 first order, u + t du with the varied constants; the derived provider
@@ -30,7 +32,7 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from mesastrain.case.types import Case
-from mesastrain.fem.assembly import assemble_load, assemble_matrix
+from mesastrain.fem.assembly import apply_stiffness, assemble_load
 from mesastrain.mesh.unfold import unfold_model
 from mesastrain.model.regions import build_layers
 from mesastrain.physics.material_record import varied
@@ -150,16 +152,15 @@ class Sensitivities:
     stiffness, eigenstrain : ndarray
         The region arrays of the main solve.
     cell_eigenstrain : ndarray or None
-    cache : SymbolicCache
     tol, stress_tol : float
         Tolerances of the extra iterative solves (a band needs a few digits).
     """
 
     def __init__(self, case, groups, disc, region, stiffness, eigenstrain, cell_eigenstrain,
-                 cache, tol: float = 1e-6, stress_tol: float = 1e-3, progress=None):
+                 tol: float = 1e-6, stress_tol: float = 1e-3, progress=None):
         self.case, self.groups, self.disc, self.region = case, groups, disc, region
         self.stiffness, self.eigenstrain, self.extra = stiffness, eigenstrain, cell_eigenstrain
-        self.cache, self.tol, self.stress_tol = cache, tol, stress_tol
+        self.tol, self.stress_tol = tol, stress_tol
         self.say = progress or (lambda msg: None)
         self.du: dict = {}
         self.seconds: dict = {}
@@ -174,7 +175,7 @@ class Sensitivities:
         r = np.zeros(self.disc.ndofs)
         if np.any(dC):
             r += assemble_load(self.disc, self.region, dC, self.eigenstrain, self.extra)
-            r -= assemble_matrix(self.disc, self.region, dC, self.cache) @ u
+            r -= apply_stiffness(self.disc, self.region, dC, u)     # no second matrix held
         if np.any(de):
             r += assemble_load(self.disc, self.region, self.stiffness, de, None)
         return r
