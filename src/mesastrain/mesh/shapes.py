@@ -37,7 +37,7 @@ from mesastrain.case.outline import Outline, outline_of, taper_of
 from mesastrain.errors import MeshError
 from mesastrain.fem.cost import Estimate, estimate_from_counts
 from mesastrain.mesh.grid import GridSpacing, join_segments
-from mesastrain.mesh.planning import film_reaches_side, refinement_of
+from mesastrain.mesh.planning import film_reaches_side, liner_offsets, refinement_of
 from mesastrain.mesh.unstructured import UnstructuredMesh, box_boundary
 
 log = logging.getLogger(__name__)
@@ -84,6 +84,9 @@ class ShapeSpec:
     mirrors : tuple of int
     sizes : GridSpacing
         size = film element size, edge_size = at sidewalls, lateral_cap = largest.
+    liners : tuple of (top, side, floor)
+        Cumulative liner thicknesses per liner, bottom to top (side: horizontal
+        offset of the sidewall), nm (:func:`mesastrain.mesh.planning.liner_offsets`).
     """
 
     top_outline: Outline
@@ -95,10 +98,23 @@ class ShapeSpec:
     periodic: tuple
     mirrors: tuple
     sizes: GridSpacing
+    liners: tuple = ()
 
     @property
     def top(self) -> float:
         return float(self.interfaces[-1])
+
+    @property
+    def liner_top(self) -> float:
+        """z of the top of the last liner over the feature (the top when there is none)."""
+        return self.top + (self.liners[-1][0] if self.liners else 0.0)
+
+    def liner_outlines(self, k: int) -> tuple:
+        """(foot outline at the floor, outline at its top z) of liner k's outer sidewall."""
+        t_top, side, _ = self.liners[k - 1]
+        slope = self.taper / (self.top - self.floor)
+        return (self.top_outline.offset(self.taper + side),
+                self.top_outline.offset(side - slope * t_top))
 
     @property
     def foot_outline(self) -> Outline:
@@ -135,6 +151,10 @@ class SizeField:
                           np.hypot(np.maximum(lat_foot, 0.0), below))
         if s.floor > 0.0:       # unetched layers below the floor cover the whole cell
             d_feat = np.minimum(d_feat, np.maximum(-z, 0.0))
+        if s.liners:            # the floor liners cover the whole cell as well
+            f_top = s.floor + s.liners[-1][2]
+            d_feat = np.minimum(d_feat, np.abs(np.clip(z, s.floor, f_top) - z)
+                                + np.maximum(s.floor - z, 0.0))
         h_side = s.sizes.edge_size + self.g * d_side
         h_film = s.sizes.size + self.g * d_feat
         return np.minimum(np.minimum(h_side, h_film), s.sizes.lateral_cap)
@@ -148,6 +168,7 @@ def shape_spec(case, mirrors=()) -> ShapeSpec:
     floor = top - etch
     outline = outline_of(pat)
     taper = taper_of(pat)
+    liners = liner_offsets(case)
     foot = outline.offset(taper)
     hx = max(outline.half_extent()[0], foot.half_extent()[0])
     hy = max(outline.half_extent()[1], foot.half_extent()[1])
@@ -159,6 +180,8 @@ def shape_spec(case, mirrors=()) -> ShapeSpec:
         depth_default = max(1.5 * max(pitch), 4.0 * etch)
     else:
         margin = pat.margin if pat.margin is not None else max(0.5 * feature, 4.0 * etch)
+        if liners and pat.margin is None:       # room for the sidewall liners and a floor
+            margin = max(margin, 4.0 * liners[-1][1])
         box = (-(hx + margin), hx + margin, -(hy + margin), hy + margin)
         # a film layer on the cell faces: tie them so it can shear (planning.film_reaches_side)
         periodic = (tuple(a for a in (0, 1) if a not in mirrors)
@@ -173,6 +196,8 @@ def shape_spec(case, mirrors=()) -> ShapeSpec:
     thick = [lay.thickness for lay in case.layers]
     if etch > top:
         thick.append(etch - top)
+    for lin in case.liners:
+        thick += [lin.thickness, lin.side, lin.floor]
     t_min = min(thick)
     order = case.mesh.order
     refine = refinement_of(case)
@@ -187,7 +212,7 @@ def shape_spec(case, mirrors=()) -> ShapeSpec:
                         lateral_cap=float(cap), refine=refine)
     return ShapeSpec(top_outline=outline, taper=float(taper), interfaces=tuple(case.interfaces),
                      floor=float(floor), depth=float(depth), box=tuple(float(b) for b in box),
-                     periodic=periodic, mirrors=tuple(mirrors), sizes=sizes)
+                     periodic=periodic, mirrors=tuple(mirrors), sizes=sizes, liners=liners)
 
 
 # --------------------------------------------------------------------------
@@ -385,14 +410,36 @@ def _stadium_surface(occ, hx: float, hy: float, z: float) -> int:
 
 def _feature_solid(gmsh, spec: ShapeSpec) -> int:
     """The feature between the etch floor and the top; returns its volume tag."""
+    return _ruled_solid(gmsh, spec.foot_outline, spec.top_outline, spec.floor, spec.top,
+                        bool(spec.taper))
+
+
+def _liner_body(gmsh, spec: ShapeSpec, k: int) -> int:
+    """Feature plus liners 1..k: liner k's offset solid from the floor to its top, fused
+    with the cell slab up to its floor plane; returns the volume tag."""
     occ = gmsh.model.occ
-    h = spec.top - spec.floor
-    if not spec.taper:
-        s = _outline_surface(occ, spec.top_outline, spec.floor)
-        out = occ.extrude([(2, s)], 0, 0, h)
+    t_top, _, t_floor = spec.liners[k - 1]
+    foot, top = spec.liner_outlines(k)
+    solid = _ruled_solid(gmsh, foot, top, spec.floor, spec.top + t_top, bool(spec.taper))
+    x0, x1, y0, y1 = spec.box
+    slab = occ.addBox(x0, y0, spec.floor, x1 - x0, y1 - y0, t_floor)
+    out, _ = occ.fuse([(3, solid)], [(3, slab)])
+    vols = [t for d, t in out if d == 3]
+    if len(vols) != 1:
+        raise MeshError(f"gmsh: liner {k} is not one solid")
+    return vols[0]
+
+
+def _ruled_solid(gmsh, foot_ol: Outline, top_ol: Outline, z0: float, z1: float,
+                 tapered: bool) -> int:
+    """A prism (``tapered`` False: top_ol extruded) or the ruled solid between outlines."""
+    occ = gmsh.model.occ
+    if not tapered:
+        s = _outline_surface(occ, top_ol, z0)
+        out = occ.extrude([(2, s)], 0, 0, z1 - z0)
         return [t for d, t in out if d == 3][0]
     wires = []
-    for ol, z in ((spec.foot_outline, spec.floor), (spec.top_outline, spec.top)):
+    for ol, z in ((foot_ol, z0), (top_ol, z1)):
         s = _outline_surface(occ, ol, z)
         occ.synchronize()
         curves = [t for d, t in gmsh.model.getBoundary([(2, s)], oriented=False)]
@@ -400,6 +447,28 @@ def _feature_solid(gmsh, spec: ShapeSpec) -> int:
         occ.remove([(2, s)])
     vols = occ.addThruSections(wires, makeSolid=True, makeRuled=True)
     return [t for d, t in vols if d == 3][0]
+
+
+def _region_solids(gmsh, spec: ShapeSpec, nlayers: int, interfaces) -> list:
+    """The feature and each liner as disjoint solids: [(tag, region)], region -1 for the
+    feature (its slabs take the layer of their height), nlayers + k for liner k."""
+    occ = gmsh.model.occ
+    feature = _feature_solid(gmsh, spec)
+    out = [(feature, -1)]
+    below = feature
+    for k in range(1, len(spec.liners) + 1):
+        body = _liner_body(gmsh, spec, k)
+        cut, _ = occ.cut([(3, body)], [(3, below)], removeObject=False, removeTool=False)
+        tags = [t for d, t in cut if d == 3]
+        if len(tags) != 1:
+            raise MeshError(f"gmsh: liner {k} does not form one solid around the feature")
+        out.append((tags[0], nlayers + k))
+        if below != feature:
+            occ.remove([(3, below)], recursive=True)
+        below = body
+    if below != feature:
+        occ.remove([(3, below)], recursive=True)
+    return out
 
 
 def _set_periodic(gmsh, spec: ShapeSpec, zlo: float, zhi: float) -> None:
@@ -448,7 +517,8 @@ def _expected_tets(spec: ShapeSpec) -> float:
         return join_segments(brk, sizes, [cap] * (len(brk) - 1), g)
 
     xs, ys = axis(x0, x1, hx), axis(y0, y1, hy)
-    zb = sorted({-spec.depth, *spec.interfaces, spec.floor})
+    zb = sorted({-spec.depth, *spec.interfaces, spec.floor,
+                 *(z for t, _, f in spec.liners for z in (spec.top + t, spec.floor + f))})
     zs = join_segments(zb, [None] + [spec.sizes.size] * (len(zb) - 1),
                        [cap] * (len(zb) - 1), g)
     xm, ym, zm = (0.5 * (a[1:] + a[:-1]) for a in (xs, ys, zs))
@@ -458,11 +528,25 @@ def _expected_tets(spec: ShapeSpec) -> float:
     for k, z in enumerate(zm):
         h = field(X, Y, np.full_like(X, z))
         inside = np.ones_like(X, dtype=bool)
-        if z > spec.floor:
+        if spec.liners and z > spec.floor + spec.liners[-1][2]:
+            k = len(spec.liners)
+            foot, top = spec.liner_outlines(k)
+            rise = (z - spec.floor) / (spec.liner_top - spec.floor)
+            inside = (z <= spec.liner_top) & (
+                foot.contains(X, Y) if not spec.taper else
+                top_or_foot(foot, top, rise, X, Y))
+        elif z > spec.floor and not spec.liners:
             inside = spec.outline_at(z).contains(X, Y)
         dz = zs[k + 1] - zs[k]
         count += float(np.sum(vol[inside] / (TET_VOLUME_FACTOR * h[inside] ** 3))) * dz
     return count
+
+
+def top_or_foot(foot: Outline, top: Outline, rise: float, x, y) -> np.ndarray:
+    """Inside the outline interpolated between foot (rise 0) and top (rise 1), approximately
+    (signed distances interpolated); for the size estimate only."""
+    d = (1.0 - rise) * foot.signed_distance(x, y) + rise * top.signed_distance(x, y)
+    return d <= 0.0
 
 
 def _size_fields(gmsh, spec: ShapeSpec) -> None:
@@ -568,31 +652,51 @@ def mesh_shape(spec: ShapeSpec) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     region : ndarray (ntets,)
     """
     x0, x1, y0, y1 = spec.box
-    zb = sorted({-spec.depth, *spec.interfaces, spec.floor})
-    zb = [z for z in zb if -spec.depth - 1e-9 <= z <= spec.top + 1e-9]
-    tol = 1e-9 * (spec.top + spec.depth)
+    liner_z = [z for t_top, _, t_floor in spec.liners
+               for z in (spec.top + t_top, spec.floor + t_floor)]
+    zb = sorted({-spec.depth, *spec.interfaces, spec.floor, *liner_z})
+    zb = [z for z in zb if -spec.depth - 1e-9 <= z <= spec.liner_top + 1e-9]
+    tol = 1e-9 * (spec.liner_top + spec.depth)
     zb = [z for k, z in enumerate(zb) if k == 0 or z - zb[k - 1] > tol]
+    interfaces = np.asarray(spec.interfaces[:-1])
+    nlayers = len(spec.interfaces) - 1
     field = SizeField(spec)
     with _Gmsh() as gmsh:
         occ = gmsh.model.occ
-        vols = []
-        feature = None
+        vols, vol_region = [], []
+        pieces = None           # feature, then each liner alone: (tag, region)
         for za, zc in zip(zb[:-1], zb[1:]):
             box = occ.addBox(x0, y0, za, x1 - x0, y1 - y0, zc - za)
             if zc <= spec.floor + tol:
                 vols.append(box)
+                vol_region.append(int(np.searchsorted(interfaces, 0.5 * (za + zc),
+                                                      side="right")))
                 continue
-            if feature is None:
-                feature = _feature_solid(gmsh, spec)
-            copy = occ.copy([(3, feature)])
-            out, _ = occ.intersect(copy, [(3, box)], removeObject=True, removeTool=True)
-            vols += [t for d, t in out if d == 3]
-        if feature is not None:
-            occ.remove([(3, feature)], recursive=True)
-        out, _ = occ.fragment([(3, v) for v in vols], [])
+            if pieces is None:
+                pieces = _region_solids(gmsh, spec, nlayers, interfaces)
+            for tag, region in pieces:
+                if region <= nlayers and za >= spec.top - tol:
+                    continue
+                copy = occ.copy([(3, tag)])
+                out, _ = occ.intersect(copy, [(3, box)], removeObject=True, removeTool=False)
+                if region < 0:
+                    region = int(np.searchsorted(interfaces, 0.5 * (za + zc), side="right"))
+                for d, t in out:
+                    if d == 3:
+                        vols.append(t)
+                        vol_region.append(region)
+            occ.remove([(3, box)], recursive=True)
+        if pieces is not None:
+            occ.remove([(3, t) for t, _ in pieces], recursive=True)
+        out, children = occ.fragment([(3, v) for v in vols], [])
+        region_of = {}
+        for region, kids in zip(vol_region, children):
+            for d, t in kids:
+                if d == 3:
+                    region_of[t] = region
         occ.synchronize()
         if spec.periodic:
-            _set_periodic(gmsh, spec, -spec.depth, spec.top)
+            _set_periodic(gmsh, spec, -spec.depth, spec.liner_top)
         opt = gmsh.option
         opt.setNumber("Mesh.MeshSizeFromPoints", 0)
         opt.setNumber("Mesh.MeshSizeFromCurvature", 0)
@@ -619,7 +723,6 @@ def mesh_shape(spec: ShapeSpec) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         index = np.full(int(tags.max()) + 1, -1, dtype=np.int64)
         index[tags.astype(np.int64)] = np.arange(len(tags))
         ts, regs = [], []
-        interfaces = np.asarray(spec.interfaces[:-1])
         for _, vol in gmsh.model.getEntities(3):
             types, _, nodes = gmsh.model.mesh.getElements(3, vol)
             for et, nd in zip(types, nodes):
@@ -627,9 +730,12 @@ def mesh_shape(spec: ShapeSpec) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
                     raise MeshError(f"gmsh produced element type {et}, expected tetrahedra")
                 tt = index[nd.astype(np.int64)].reshape(-1, 4).T
                 ts.append(tt)
-                zc = gmsh.model.occ.getCenterOfMass(3, vol)[2]
-                regs.append(np.full(tt.shape[1], np.searchsorted(interfaces, zc, side="right"),
-                                    dtype=np.int32))
+                if vol in region_of:
+                    region = region_of[vol]
+                else:       # not traced through the fragment: a layer, found by its height
+                    zc = gmsh.model.occ.getCenterOfMass(3, vol)[2]
+                    region = int(np.searchsorted(interfaces, zc, side="right"))
+                regs.append(np.full(tt.shape[1], region, dtype=np.int32))
     if not ts:
         raise MeshError("gmsh produced no tetrahedra")
     t = np.concatenate(ts, axis=1)
