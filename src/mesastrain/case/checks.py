@@ -117,6 +117,8 @@ class CrossChecks:
                                            f"etch must stay partly open (give thinner floor "
                                            f"liners)")
             pitch = p.get("pitch")
+            if pitch is not None and pitch[1] is None and p["shape"] != "stripe":
+                pitch = (pitch[0], pitch[0])        # as pattern_fits fills it in
             for axis, name in ((0, "x"), (1, "y")):
                 period = None if pitch is None else pitch[axis]
                 if period is None or not math.isfinite(widest[axis]):
