@@ -119,12 +119,17 @@ class CrossChecks:
             pitch = p.get("pitch")
             if pitch is not None and pitch[1] is None and p["shape"] != "stripe":
                 pitch = (pitch[0], pitch[0])        # as pattern_fits fills it in
+            # the liner's outer outline at its foot and its top (a polygon's mitred corners
+            # reach further out than the sidewall offset)
+            reach = [max(a, b) for a, b in zip(
+                foot.offset(s_h).half_extent(),
+                top_ol.offset(s_h - taper * t_top / etch).half_extent())]
             for axis, name in ((0, "x"), (1, "y")):
                 period = None if pitch is None else pitch[axis]
                 if period is None or not math.isfinite(widest[axis]):
                     continue
                 gap = period - 2.0 * widest[axis]
-                if 2.0 * s_h >= gap:
+                if 2.0 * reach[axis] >= period:
                     raise CaseError(side_key, f"the sidewall liners, {s_h:.10g} nm thick "
                                               f"(horizontally) on each side, fill the "
                                               f"{gap:.10g} nm gap between the features along "
