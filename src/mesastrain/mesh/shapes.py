@@ -24,11 +24,8 @@ initialised and finalised around each mesh.
 
 from __future__ import annotations
 
-import ctypes
 import logging
 import os
-import signal
-import threading
 from dataclasses import dataclass
 
 import numpy as np
@@ -36,8 +33,10 @@ import numpy as np
 from mesastrain.case.outline import Outline, outline_of, taper_of
 from mesastrain.errors import MeshError
 from mesastrain.fem.cost import Estimate, estimate_from_counts
+from mesastrain.mesh.gmsh_session import _Gmsh
 from mesastrain.mesh.grid import GridSpacing, join_segments
 from mesastrain.mesh.planning import film_reaches_side, liner_offsets, refinement_of
+from mesastrain.mesh.shape_solids import region_solids, set_periodic
 from mesastrain.mesh.unstructured import UnstructuredMesh, box_boundary
 
 log = logging.getLogger(__name__)
@@ -215,292 +214,6 @@ def shape_spec(case, mirrors=()) -> ShapeSpec:
                      periodic=periodic, mirrors=tuple(mirrors), sizes=sizes, liners=liners)
 
 
-# --------------------------------------------------------------------------
-# gmsh
-# --------------------------------------------------------------------------
-#: gmsh options this module sets (restored afterwards when gmsh was already running).
-_OPTIONS = ("General.Terminal", "General.Verbosity", "Mesh.MeshSizeFromPoints",
-            "Mesh.MeshSizeFromCurvature", "Mesh.MeshSizeExtendFromBoundary", "Mesh.MeshSizeMax",
-            "Mesh.MeshSizeMin", "Mesh.ElementOrder", "Mesh.Optimize", "Mesh.Algorithm3D",
-            "General.NumThreads")
-
-
-_STOP_SIGNALS = tuple(getattr(signal, n) for n in ("SIGINT", "SIGTERM") if hasattr(signal, n))
-
-
-class _SignalState:
-    """The process's SIGINT/SIGTERM dispositions, saved so gmsh cannot keep them.
-
-    ``gmsh.initialize()`` resets SIGTERM (and, unless ``interruptible=False``,
-    SIGINT) to the default action at the C level, behind Python's back, so a later
-    SIGTERM would kill the run without clean-up. The C-level actions are saved as
-    opaque ``struct sigaction`` buffers (any thread may restore them); the Python
-    handlers are saved too, in the main thread.
-    """
-
-    def __init__(self):
-        self.python = {}
-        self.native = {}
-        if threading.current_thread() is threading.main_thread():
-            self.python = {s: signal.getsignal(s) for s in _STOP_SIGNALS}
-        libc = _libc()
-        if libc is not None:
-            for s in _STOP_SIGNALS:
-                buf = ctypes.create_string_buffer(512)     # larger than any struct sigaction
-                if libc.sigaction(int(s), None, buf) == 0:
-                    self.native[s] = buf
-
-    def restore(self) -> None:
-        for s, h in self.python.items():
-            if h is not None:
-                signal.signal(s, h)
-        libc = _libc()
-        for s, buf in self.native.items():
-            libc.sigaction(int(s), buf, None)
-
-
-class _Blocked:
-    """SIGINT and SIGTERM blocked in this thread while gmsh changes their actions: one
-    arriving then waits and goes to the restored handler, not to gmsh's default."""
-
-    def __enter__(self):
-        self.mask = None
-        if hasattr(signal, "pthread_sigmask"):
-            self.mask = signal.pthread_sigmask(signal.SIG_BLOCK, set(_STOP_SIGNALS))
-
-    def __exit__(self, *exc):
-        if self.mask is not None:
-            signal.pthread_sigmask(signal.SIG_SETMASK, self.mask)
-        return False
-
-
-def _libc():
-    try:
-        return ctypes.CDLL(None, use_errno=True) if os.name == "posix" else None
-    except OSError:
-        return None
-
-
-class _Gmsh:
-    """Context manager: a silent gmsh session with an empty model of its own.
-
-    When the caller already runs gmsh, its session, current model and the
-    options touched here are left as they were; otherwise gmsh is started and
-    finalised around the block.
-
-    Signals: gmsh is initialised without its own SIGINT handling
-    (``interruptible=False``) and the process's SIGINT/SIGTERM handlers are put
-    back after ``initialize`` and ``finalize``. Inside the block (main thread) a
-    SIGINT or SIGTERM is held back and delivered to the caller's handler when the
-    block ends, because a handler that raises inside gmsh's mesh-size callback
-    would only be printed and ignored by ctypes. So Ctrl-C while gmsh meshes takes
-    effect when the current gmsh call returns.
-    """
-
-    def __enter__(self):
-        import gmsh
-
-        self.gmsh = gmsh
-        self.signals = _SignalState()
-        self.pending = []
-        for s in self.signals.python:
-            if callable(self.signals.python[s]):
-                signal.signal(s, self._hold)
-        try:
-            self._start(gmsh)
-        except BaseException:
-            self._end_signals()
-            raise
-        return gmsh
-
-    def _hold(self, signum, frame):
-        self.pending.append(signum)
-
-    def _start(self, gmsh):
-        self.owner = not gmsh.isInitialized()
-        if self.owner:
-            with _Blocked():
-                held = _SignalState()
-                try:
-                    gmsh.initialize(readConfigFiles=False, interruptible=False)
-                except TypeError:      # a gmsh API without the keyword
-                    gmsh.initialize(readConfigFiles=False)
-                finally:
-                    held.restore()
-            self.saved, self.previous = {}, None
-        else:
-            self.saved = {k: gmsh.option.getNumber(k) for k in _OPTIONS}
-            try:
-                self.previous = gmsh.model.getCurrent()
-            except Exception:    # no current model
-                self.previous = None
-        gmsh.option.setNumber("General.Terminal", 0)
-        gmsh.option.setNumber("General.Verbosity", 1)
-        gmsh.model.add(f"mesastrain-{id(self)}")
-
-    def _end_signals(self):
-        self.signals.restore()
-        if self.pending:
-            signal.raise_signal(self.pending[0])   # now to the caller's handler
-
-    def __exit__(self, *exc):
-        gmsh = self.gmsh
-        try:
-            if self.owner:
-                with _Blocked():
-                    held = _SignalState()
-                    try:
-                        gmsh.finalize()
-                    finally:
-                        held.restore()
-                return False
-            gmsh.model.remove()
-            for k, v in self.saved.items():
-                gmsh.option.setNumber(k, v)
-            if self.previous:
-                gmsh.model.setCurrent(self.previous)
-            return False
-        finally:
-            self._end_signals()
-
-
-def _outline_surface(occ, outline: Outline, z: float) -> int:
-    """A plane surface of the outline at height z; returns its tag."""
-    if outline.kind == "rectangle":
-        if outline.radius > 0 and outline.radius >= min(outline.hx, outline.hy) * (1 - 1e-9):
-            return _stadium_surface(occ, outline.hx, outline.hy, z)
-        return occ.addRectangle(-outline.hx, -outline.hy, z, 2 * outline.hx, 2 * outline.hy,
-                                roundedRadius=outline.radius if outline.radius > 0 else 0.0)
-    if outline.kind == "disk":
-        return occ.addDisk(0.0, 0.0, z, outline.radius, outline.radius)
-    v = outline.points
-    pts = [occ.addPoint(float(a), float(b), z) for a, b in v]
-    lines = [occ.addLine(pts[k], pts[(k + 1) % len(pts)]) for k in range(len(pts))]
-    loop = occ.addCurveLoop(lines)
-    return occ.addPlaneSurface([loop])
-
-
-def _stadium_surface(occ, hx: float, hy: float, z: float) -> int:
-    """A rectangle rounded by half its shorter side: a stadium, or a disk when square.
-
-    OpenCASCADE's rounded rectangle fails when the radius is exactly half a side
-    (the straight edges between the arcs vanish), the largest radius the case
-    allows; the stadium is built from its two straight edges and four quarter
-    arcs (arcs of less than a half turn, as OpenCASCADE needs).
-    """
-    r = min(hx, hy)
-    if abs(hx - hy) <= 1e-9 * max(hx, hy):
-        return occ.addDisk(0.0, 0.0, z, r, r)
-    along_x = hx > hy
-    c = (hx if along_x else hy) - r          # centres of the end half-disks at +-c
-
-    def pt(u, v):       # (along the long side, across it) -> a point
-        return occ.addPoint(u, v, z) if along_x else occ.addPoint(-v, u, z)
-
-    centre_hi, centre_lo = pt(c, 0.0), pt(-c, 0.0)
-    p = [pt(-c, -r), pt(c, -r), pt(c + r, 0.0), pt(c, r), pt(-c, r), pt(-c - r, 0.0)]
-    curves = [occ.addLine(p[0], p[1]),
-              occ.addCircleArc(p[1], centre_hi, p[2]), occ.addCircleArc(p[2], centre_hi, p[3]),
-              occ.addLine(p[3], p[4]),
-              occ.addCircleArc(p[4], centre_lo, p[5]), occ.addCircleArc(p[5], centre_lo, p[0])]
-    surface = occ.addPlaneSurface([occ.addCurveLoop(curves)])
-    occ.remove([(0, centre_hi), (0, centre_lo)])
-    return surface
-
-
-def _feature_solid(gmsh, spec: ShapeSpec) -> int:
-    """The feature between the etch floor and the top; returns its volume tag."""
-    return _ruled_solid(gmsh, spec.foot_outline, spec.top_outline, spec.floor, spec.top,
-                        bool(spec.taper))
-
-
-def _liner_body(gmsh, spec: ShapeSpec, k: int) -> int:
-    """Feature plus liners 1..k: liner k's offset solid from the floor to its top, fused
-    with the cell slab up to its floor plane; returns the volume tag."""
-    occ = gmsh.model.occ
-    t_top, _, t_floor = spec.liners[k - 1]
-    foot, top = spec.liner_outlines(k)
-    solid = _ruled_solid(gmsh, foot, top, spec.floor, spec.top + t_top, bool(spec.taper))
-    x0, x1, y0, y1 = spec.box
-    slab = occ.addBox(x0, y0, spec.floor, x1 - x0, y1 - y0, t_floor)
-    out, _ = occ.fuse([(3, solid)], [(3, slab)])
-    vols = [t for d, t in out if d == 3]
-    if len(vols) != 1:
-        raise MeshError(f"gmsh: liner {k} is not one solid")
-    return vols[0]
-
-
-def _ruled_solid(gmsh, foot_ol: Outline, top_ol: Outline, z0: float, z1: float,
-                 tapered: bool) -> int:
-    """A prism (``tapered`` False: top_ol extruded) or the ruled solid between outlines."""
-    occ = gmsh.model.occ
-    if not tapered:
-        s = _outline_surface(occ, top_ol, z0)
-        out = occ.extrude([(2, s)], 0, 0, z1 - z0)
-        return [t for d, t in out if d == 3][0]
-    wires = []
-    for ol, z in ((foot_ol, z0), (top_ol, z1)):
-        s = _outline_surface(occ, ol, z)
-        occ.synchronize()
-        curves = [t for d, t in gmsh.model.getBoundary([(2, s)], oriented=False)]
-        wires.append(occ.addWire(curves))
-        occ.remove([(2, s)])
-    vols = occ.addThruSections(wires, makeSolid=True, makeRuled=True)
-    return [t for d, t in vols if d == 3][0]
-
-
-def _region_solids(gmsh, spec: ShapeSpec, nlayers: int, interfaces) -> list:
-    """The feature and each liner as disjoint solids: [(tag, region)], region -1 for the
-    feature (its slabs take the layer of their height), nlayers + k for liner k."""
-    occ = gmsh.model.occ
-    feature = _feature_solid(gmsh, spec)
-    out = [(feature, -1)]
-    below = feature
-    for k in range(1, len(spec.liners) + 1):
-        body = _liner_body(gmsh, spec, k)
-        cut, _ = occ.cut([(3, body)], [(3, below)], removeObject=False, removeTool=False)
-        tags = [t for d, t in cut if d == 3]
-        if len(tags) != 1:
-            raise MeshError(f"gmsh: liner {k} does not form one solid around the feature")
-        out.append((tags[0], nlayers + k))
-        if below != feature:
-            occ.remove([(3, below)], recursive=True)
-        below = body
-    if below != feature:
-        occ.remove([(3, below)], recursive=True)
-    return out
-
-
-def _set_periodic(gmsh, spec: ShapeSpec, zlo: float, zhi: float) -> None:
-    """Tie the cell faces of periodic axes (translation affine maps)."""
-    eps = 1e-6 * max(spec.box[1] - spec.box[0], spec.box[3] - spec.box[2], zhi - zlo)
-    x0, x1, y0, y1 = spec.box
-    for axis in spec.periodic:
-        lo, hi = (x0, x1) if axis == 0 else (y0, y1)
-        shift = [0.0, 0.0, 0.0]
-        shift[axis] = hi - lo
-
-        def faces(v, axis=axis):
-            b = [x0 - eps, y0 - eps, zlo - eps, x1 + eps, y1 + eps, zhi + eps]
-            b[axis], b[axis + 3] = v - eps, v + eps
-            return gmsh.model.getEntitiesInBoundingBox(*b, dim=2)
-
-        for _, slave in faces(hi):
-            sb = np.array(gmsh.model.getBoundingBox(2, slave))
-            target = sb - np.array(shift + shift)
-            match = None
-            for _, master in faces(lo):
-                mb = np.array(gmsh.model.getBoundingBox(2, master))
-                if np.max(np.abs(mb - target)) < 10 * eps:
-                    match = master
-                    break
-            if match is None:
-                raise MeshError(f"gmsh: no periodic partner for a cell face at "
-                                f"{'xy'[axis]} = {hi:g} nm")
-            affine = [1, 0, 0, shift[0], 0, 1, 0, shift[1], 0, 0, 1, shift[2], 0, 0, 0, 1]
-            gmsh.model.mesh.setPeriodic(2, [slave], [match], affine)
-
-
 def _expected_tets(spec: ShapeSpec) -> float:
     """Tetrahedra the size field asks for: the integral of 1 / (TET_VOLUME_FACTOR h^3).
 
@@ -673,7 +386,7 @@ def mesh_shape(spec: ShapeSpec) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
                                                       side="right")))
                 continue
             if pieces is None:
-                pieces = _region_solids(gmsh, spec, nlayers, interfaces)
+                pieces = region_solids(gmsh, spec, nlayers, interfaces)
             for tag, region in pieces:
                 if region <= nlayers and za >= spec.top - tol:
                     continue
@@ -696,7 +409,7 @@ def mesh_shape(spec: ShapeSpec) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
                     region_of[t] = region
         occ.synchronize()
         if spec.periodic:
-            _set_periodic(gmsh, spec, -spec.depth, spec.liner_top)
+            set_periodic(gmsh, spec, -spec.depth, spec.liner_top)
         opt = gmsh.option
         opt.setNumber("Mesh.MeshSizeFromPoints", 0)
         opt.setNumber("Mesh.MeshSizeFromCurvature", 0)
