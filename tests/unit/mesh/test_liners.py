@@ -123,8 +123,9 @@ def test_disk_liner_volume_is_the_offset_cylinder_minus_the_disk(angle):
     liner = (160.0 ** 2 * F
              + _simpson(lambda z: math.pi * (r_feature(z) + s) ** 2, floor + F, top + T)
              - _simpson(lambda z: math.pi * r_feature(z) ** 2, floor, top))
-    # the circle is meshed by flat facets: the mesh tolerance is the chord error
-    assert vol[region == 2].sum() == pytest.approx(liner, rel=0.02)
+    # the circles are meshed by flat facets: the mesh tolerance is the chord error (measured
+    # -0.3 % at this size for both angles)
+    assert vol[region == 2].sum() == pytest.approx(liner, rel=0.01)
 
 
 # --------------------------------------------------------------------------
