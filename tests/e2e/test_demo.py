@@ -48,3 +48,23 @@ def test_demo_vtu_opens_and_renders(demo_result, tmp_path):
     # a diverging colour map on a strained film gives both strong reds and strong blues
     assert np.any((rgb[:, 0] > 150) & (rgb[:, 2] < 100))
     assert np.any((rgb[:, 2] > 120) & (rgb[:, 0] < 80))
+
+
+LINER_DEMO = ROOT / "cases" / "sin_liner_fin.toml"
+
+
+def test_liner_fin_demo(tmp_path):
+    # A tensile SiN liner over a narrow Si fin (our own scenario). Statics: a horizontal cut
+    # through the fin and its sidewall liners carries no net vertical force, so the tensile
+    # sidewall liners (their in-plane stress acts along z on the sidewall) push the fin into
+    # vertical compression; along the fin (y) the liner keeps most of its 1.2 GPa.
+    out = tmp_path / "fin"
+    assert main(["run", str(LINER_DEMO), "--out", str(out), "-q"]) == 0
+    s = json.loads((out / "summary.json").read_text())
+    p = {q["name"]: np.array(q["stress"]) for q in s["probes"]}
+    assert p["fin_mid"][2, 2] < -100
+    assert p["liner_side"][2, 2] > 200
+    assert 0.6 * 1200 < p["liner_top"][1, 1] < 1200
+    assert [lay["name"] for lay in s["layers"]] == ["substrate", "layer 1", "SiN liner"]
+    assert s["layers"][2]["liner"] == 1
+    assert s["timings"]["solve"] < 60

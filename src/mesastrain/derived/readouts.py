@@ -117,7 +117,7 @@ def derive(res) -> Derived:
                 entry["centre_over_blanket"] = {
                     ax: (float(c[i, i] / b_sig[i, i]) if abs(b_sig[i, i]) > 1e-9 else None)
                     for ax, i in (("xx", 0), ("yy", 1))}
-                if floor is not None and lm.z_top > floor:
+                if floor is not None and lm.z_top > floor and not lm.liner:
                     rl, rows = edge_relaxation(res, lm, zmid, c)
                     entry["relaxation"] = rl
                     relax_rows.extend(rows)
@@ -232,7 +232,7 @@ def convergence_figures(res) -> dict:
                 out[f"interface z={z:g} {side}: peak shear"] = prof[side]["shear_peak"]
     floor = etch_floor(res)
     for lm in res.layers[1:]:
-        if lm.z_top <= floor:
+        if lm.z_top <= floor or lm.liner:
             continue
         zmid = 0.5 * (max(lm.z_bottom, floor) + lm.z_top)
         _, c_sig, _, c_reg = sample_inside(res, [[0.0, 0.0, zmid]])

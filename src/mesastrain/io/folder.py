@@ -43,6 +43,7 @@ def layer_summary(lm: LayerModel) -> dict:
         "stiffness_sample": lm.stiffness_sample,
         "sample_axes_in_crystal": lm.frame.R,
         "source": list(mat.sources),
+        "liner": getattr(lm, "liner", 0),
     }
 
 

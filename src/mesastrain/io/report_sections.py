@@ -65,7 +65,8 @@ def draw_stack(summary: dict, path: Path) -> Path:
     from matplotlib.patches import Rectangle
 
     case = summary["case"]
-    layers = [lay for lay in summary["layers"] if lay["index"] > 0]
+    layers = [lay for lay in summary["layers"] if lay["index"] > 0 and not lay.get("liner")]
+    liners = [lay for lay in summary["layers"] if lay.get("liner")]
     top = max(lay["z_top"] for lay in layers)
     pat = case.get("pattern", {"shape": "none"})
     patterned = pat.get("shape", "none") != "none"
@@ -104,13 +105,15 @@ def draw_stack(summary: dict, path: Path) -> Path:
         ax.annotate(f"{lay['name']}: {lay['label']}, {zt - zb:g} nm{strain}{relaxed}",
                     (xo + 0.05, 0.5 * (zb + zt)), fontsize=8, va="center",
                     annotation_clip=False)
+    draw_liners(ax, liners, case.get("liner", []), top, floor, xf, xo, len(layers))
+    stack_top, top = top, max([top] + [lay["z_top"] for lay in liners])
     if patterned:
         what = feature_text(pat)
         ax.annotate("", (-xf, top + 0.12 * top), (xf, top + 0.12 * top),
                     arrowprops={"arrowstyle": "<->", "lw": 0.8})
         ax.text(0, top + 0.16 * top, f"{what} (width not to scale)", ha="center", fontsize=8,
                 va="bottom")
-        ax.annotate("", (xf + 0.12, top), (xf + 0.12, floor),
+        ax.annotate("", (xf + 0.12, stack_top), (xf + 0.12, floor),
                     arrowprops={"arrowstyle": "<->", "lw": 0.8, "color": "0.3"})
         ax.text(xf + 0.16, floor + 0.5 * etch, f"etch {etch:g} nm", fontsize=7, color="0.3",
                 va="center", rotation=90)
@@ -125,6 +128,28 @@ def draw_stack(summary: dict, path: Path) -> Path:
     fig.savefig(path)
     plt.close(fig)
     return path
+
+
+def draw_liners(ax, liners: list, tables: list, top: float, floor: float, xf: float,
+                xo: float, first_colour: int) -> None:
+    """Liners over the schematic feature: top and floor to scale in z, sidewalls schematic."""
+    from matplotlib.patches import Polygon
+
+    t = f = s = 0.0
+    for k, (lay, tab) in enumerate(zip(liners, tables)):
+        t2 = t + tab["thickness"]
+        f2 = f + tab.get("floor_thickness", tab["thickness"])
+        s2 = s + 0.06
+        outer = [(-xo, floor + f2), (-xf - s2, floor + f2), (-xf - s2, top + t2),
+                 (xf + s2, top + t2), (xf + s2, floor + f2), (xo, floor + f2)]
+        inner = [(xo, floor + f), (xf + s, floor + f), (xf + s, top + t), (-xf - s, top + t),
+                 (-xf - s, floor + f), (-xo, floor + f)]
+        ax.add_patch(Polygon(outer + inner, closed=True, facecolor=f"C{first_colour + k}",
+                             alpha=0.55, edgecolor="k", lw=0.8))
+        ax.annotate(f"{lay['name']}: {lay['label']}, {t2 - t:g} nm (liner)",
+                    (xo + 0.05, 0.5 * (top + t + top + t2)), fontsize=8, va="center",
+                    annotation_clip=False)
+        t, f, s = t2, f2, s2
 
 
 # --------------------------------------------------------------------------
