@@ -27,6 +27,7 @@ __all__ = [
     "edge_relaxation",
     "overshoot",
     "plot_relaxation",
+    "relaxation_figure",
     "relaxation_length",
 ]
 

@@ -11,6 +11,7 @@ import logging
 from pathlib import Path
 
 from mesastrain.io.markup import esc, image, mpa, num, table
+from mesastrain.physics.quantities import describe
 
 log = logging.getLogger(__name__)
 
@@ -199,6 +200,13 @@ def section_headline(summary: dict, folder: Path) -> str | None:
             vals = [v["length"] for k, v in rl.items() if k.endswith(ax) and v]
             return num(max(vals), 3, "nm") if vals else "-"
 
+        overs = [v["overshoot"] for v in rl.values() if v and v.get("overshoot")]
+        if overs:
+            ov = max(overs, key=lambda o: o["peak_over_centre"])
+            over = (f'<span class="sing">{num(ov["peak_over_centre"], 2)} &times;</span> at '
+                    f'{num(ov["at"], 3, "nm")}')
+        else:
+            over = "none" if rl else "-"
         en = e.get("energy_per_area", {})
         ct = e.get("critical_thickness") or {}
         mb = ct.get("matthews_blakeslee")
@@ -212,8 +220,9 @@ def section_headline(summary: dict, folder: Path) -> str | None:
             _stress_pair(e.get("blanket_stress")),
             _stress_pair(e.get("centre_stress")),
             num((e.get("centre_over_blanket") or {}).get("xx"), 3),
-            length("x"), length("y"),
-            num(vm.get("value"), 4),
+            length("x"), length("y"), over,
+            num(vm.get("value"), 4) + (' <span class="sing">singular</span>'
+                                       if vm.get("singular") else ""),
             f"{num(en.get('blanket'), 3)} / {num(en.get('patterned'), 3)}",
             (num(mb, 3, "nm") if mb is not None else "-") + flag,
             num(pb, 3, "nm") if pb is not None else "-"])
@@ -221,6 +230,7 @@ def section_headline(summary: dict, folder: Path) -> str | None:
            table(["layer", "blanket &sigma;<sub>xx</sub> / &sigma;<sub>yy</sub> (MPa)",
                   "centre &sigma;<sub>xx</sub> / &sigma;<sub>yy</sub> (MPa)", "centre / blanket",
                   "relaxation length x", "relaxation length y",
+                  "overshoot near the sidewall (peak / centre, distance)",
                   "peak von Mises (MPa, mesh-dependent)",
                   "energy blanket / patterned (J/m&sup2;)", "critical thickness MB",
                   "critical thickness PB"], rows),
@@ -290,7 +300,7 @@ def _edge_table(feats: list) -> str:
                              esc(region), num(v["von_mises"], 4), num(v["principal_max"], 4),
                              num(v["principal_min"], 4), num(v["peel"], 4),
                              num(v["element_size"], 3, "nm")])
-    return table(["place", "side", "kind", "", "evaluated in", "von Mises (MPa)",
+    return table(["place", "side", "kind", "stress there", "evaluated in", "von Mises (MPa)",
                   "max principal (MPa)", "min principal (MPa)", "&sigma;<sub>zz</sub> (MPa)",
                   "element size"], rows, 5)
 
@@ -337,27 +347,35 @@ def section_probes(summary: dict, folder: Path) -> str | None:
         + '<p class="note">MPa, sample frame, exact finite-element values at the point.</p>')
 
 
+def _map_caption(summary: dict, kind: str, quantity: str) -> str:
+    """Caption of a ``map_<view>_<quantity>.png``: what, where, and how the colours are set."""
+    layers = summary.get("layers") or []
+    first = layers[1]["name"] if len(layers) > 1 else "the first layer"
+    where = {"section": "on the cross-section y = 0",
+             "edge": "close to the +x sidewall, on the cross-section y = 0",
+             "plan": f"seen from above at mid-height of {first}"}[kind]
+    q = describe(quantity)
+    return (f"{esc(q.words[:1].upper() + q.words[1:])} ({esc(q.unit or 'no unit')}) {where}. "
+            f"Colour limits are rounded up from the 99th percentile in the layers; the "
+            f"peaks at sharp corners lie beyond them and are singular.")
+
+
 def section_pictures(summary: dict, folder: Path) -> str | None:
     """Maps, edge relaxation and traction plots, line cuts."""
     folder = Path(folder)
     parts = []
-    views = {"section": "cross-section y = 0", "edge": "close-up of the +x sidewall",
-             "plan": "plan view at mid-height of layer 1"}
     for kind in ("section", "edge", "plan"):
-        figs = []
         for png in sorted(folder.glob(f"map_{kind}_*.png")):
-            name = png.stem.split("_", 2)[2].replace("_", " ")
-            figs.append(image(png, f"{esc(name)}: {views[kind]}. Colour scale clipped at the "
-                                   f"99th percentile (corner peaks are singular)."))
-        if figs:
-            parts.append('<div class="gallery">' + "".join(figs) + "</div>"
-                         if kind == "plan" else "".join(figs))
+            parts.append(image(png, _map_caption(summary, kind, png.stem.split("_", 2)[2])))
     parts.append(image(folder / "edge_relaxation.png",
-                       "Stress normal to each sidewall over its centre value, at mid-height of "
-                       "each layer (edge_relaxation.csv)."))
+                       "Stress normal to each sidewall (blue) and along it (green), in MPa, "
+                       "against the distance from the sidewall, at mid-height of each layer; "
+                       "dotted: the value at the feature centre, dash-dotted: the blanket film. "
+                       "Red line: relaxation length; red triangle: the largest overshoot over "
+                       "the centre value (edge_relaxation.csv)."))
     parts.append(image(folder / "interface_tractions.png",
-                       "Peel and shear traction along each interface toward the sidewall "
-                       "(interface_tractions.csv)."))
+                       "Peel and shear traction along each interface toward the sidewall, in "
+                       "MPa (interface_tractions.csv)."))
     for c in summary.get("cuts") or []:
         parts.append(image(folder / c["plot"], f"Line cut {esc(c['name'])} "
                                                f"({esc(c['csv'])})."))

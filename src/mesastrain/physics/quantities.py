@@ -16,7 +16,8 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-__all__ = ["DEVICE_PARAMETERS", "Quantity", "describe", "parameter_words", "valley_words"]
+__all__ = ["DEVICE_PARAMETERS", "PDP_SETS", "Quantity", "describe", "parameter_words",
+           "pdp_words", "valley_words"]
 
 
 @dataclass(frozen=True)
@@ -71,7 +72,20 @@ _VALLEYS = {"delta_x": "Δ[100]", "delta_y": "Δ[010]", "delta_z": "Δ[001]",
             "L_111": "L[111]", "L_-111": "L[-111]", "L_1-11": "L[1-11]", "L_11-1": "L[11-1]",
             "L_m111": "L[-111]", "L_1m11": "L[1-11]", "L_11m1": "L[11-1]",
             "hh": "heavy hole", "lh": "light hole", "so": "split-off band",
-            "gamma": "Γ"}
+            "gamma": "Γ", "gamma_c": "Γ"}
+
+#: Phonon deformation-potential sets in words (``physics/data/device_parameters.toml``).
+PDP_SETS = {"acc1990": "Anastassakis, Cantarero & Cardona 1990",
+            "apbpc1970": "Anastassakis, Pinczuk, Burstein, Pollak & Cardona 1970",
+            "crc1978": "Chandrasekhar, Renucci & Cardona 1978",
+            "cbpc1972": "Cerdeira, Buchenauer, Pollak & Cardona 1972"}
+
+
+def pdp_words(name: str) -> str:
+    """A phonon deformation-potential set in words (``acc1990 scaled to b_SiSi`` included)."""
+    base, _, rest = str(name).partition(" scaled to ")
+    words = PDP_SETS.get(base, base)
+    return words + (", scaled to the alloy's biaxial coefficient" if rest else "")
 
 
 def valley_words(names) -> str:
