@@ -259,7 +259,7 @@ def tractions_figure(rows: list, layers, standoff: float):
         ax.grid(alpha=0.3)
     handles, labels = axes[0].get_legend_handles_labels()
     fig.legend(handles, labels, fontsize=9, loc="outside lower center", ncol=2)
-    fig.suptitle("Interface tractions near the sidewall (points at element centres); singular "
+    fig.suptitle("Interface tractions near the sidewall (points at element centres)\nsingular "
                  "at a sharp edge: values next to the sidewall grow as the mesh is refined",
                  fontsize=10.5)
     return fig

@@ -61,8 +61,9 @@ def draw_stack(summary: dict, path: Path) -> Path:
         PNG to write.
     """
     import matplotlib
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
+    matplotlib.use("Agg", force=False)
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.figure import Figure
     from matplotlib.patches import Rectangle
 
     case = summary["case"]
@@ -73,7 +74,9 @@ def draw_stack(summary: dict, path: Path) -> Path:
     etch = float(pat.get("etch_depth") or 0.0) if patterned else 0.0
     floor = top - etch
     sub_show = max(0.6 * top, -min(floor, 0.0) + 0.5 * top)
-    fig, ax = plt.subplots(figsize=(8.0, 3.6), dpi=110)
+    fig = Figure(figsize=(9.0, 3.8), dpi=110)
+    FigureCanvasAgg(fig)
+    ax = fig.subplots()
     # feature drawn over x in [-1, 1] (schematic width), field around it in [-1.6, 1.6]
     xf, xo = 1.0, 1.6
     ax.add_patch(Rectangle((-xo, -sub_show), 2 * xo, sub_show + min(floor, 0.0) if patterned
@@ -82,9 +85,10 @@ def draw_stack(summary: dict, path: Path) -> Path:
         ax.add_patch(Rectangle((-xf, floor), 2 * xf, -floor, facecolor="#c9ced3",
                                edgecolor="k", lw=0.8))
     sub = summary["layers"][0]
-    ax.text(-xo + 0.05, -0.55 * sub_show, f"substrate {sub['label']} "
-            f"{sub['normal']}, x = {sub['x_axis']}\n"
-            f"{case['substrate']['thickness'] / 1e3:g} um (cut)", fontsize=8, va="center")
+    ax.annotate(f"{sub['name']}: {sub['label']} {sub['normal']}, x = {sub['x_axis']}, "
+                f"{case['substrate']['thickness'] / 1e3:g} µm (cut)",
+                (xo + 0.05, 0.5 * (min(floor, 0.0) - sub_show)), fontsize=9, va="center",
+                annotation_clip=False)
     for i, lay in enumerate(layers):
         zb, zt = lay["z_bottom"], lay["z_top"]
         colour = f"C{i}"
@@ -103,28 +107,27 @@ def draw_stack(summary: dict, path: Path) -> Path:
             strain = f", lattice strain {100 * lay['misfit']:+.3g} %"
         relaxed = f", relaxed {lay['relaxed']:g}" if lay.get("relaxed") else ""
         ax.annotate(f"{lay['name']}: {lay['label']}, {zt - zb:g} nm{strain}{relaxed}",
-                    (xo + 0.05, 0.5 * (zb + zt)), fontsize=8, va="center",
+                    (xo + 0.05, 0.5 * (zb + zt)), fontsize=9, va="center",
                     annotation_clip=False)
     if patterned:
         what = feature_text(pat)
         ax.annotate("", (-xf, top + 0.12 * top), (xf, top + 0.12 * top),
                     arrowprops={"arrowstyle": "<->", "lw": 0.8})
-        ax.text(0, top + 0.16 * top, f"{what} (width not to scale)", ha="center", fontsize=8,
+        ax.text(0, top + 0.16 * top, f"{what} (width not to scale)", ha="center", fontsize=9,
                 va="bottom")
         ax.annotate("", (xf + 0.12, top), (xf + 0.12, floor),
                     arrowprops={"arrowstyle": "<->", "lw": 0.8, "color": "0.3"})
-        ax.text(xf + 0.16, floor + 0.5 * etch, f"etch {etch:g} nm", fontsize=7, color="0.3",
+        ax.text(xf + 0.16, floor + 0.5 * etch, f"etch {etch:g} nm", fontsize=8.5, color="0.3",
                 va="center", rotation=90)
     ax.axhline(0.0, color="0.25", lw=0.6, ls=":")
-    ax.set_xlim(-xo - 0.05, xo + 2.4)
+    ax.set_xlim(-xo - 0.05, xo + 3.0)
     ax.set_ylim(-sub_show, top * 1.45)
     ax.set_xticks([])
     ax.set_ylabel("z (nm), to scale")
     ax.spines[["top", "right", "bottom"]].set_visible(False)
-    ax.set_title("Stack and pattern (cross-section)", fontsize=10)
+    ax.set_title("Stack and pattern (cross-section)", fontsize=11)
     fig.tight_layout()
     fig.savefig(path)
-    plt.close(fig)
     return path
 
 
