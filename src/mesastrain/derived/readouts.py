@@ -167,7 +167,7 @@ def derive(res) -> Derived:
                                 "sides of the interface, recovered by superconvergent patch "
                                 "recovery in each region (Zienkiewicz & Zhu 1992), at "
                                 "element-boundary points along the interface; the largest "
-                                "difference between the two sides (traction_jump_max) is zero "
+                                "difference between the two sides is zero "
                                 "for the exact solution"),
         "recovery": ("stand-off and interface values: superconvergent patch recovery "
                      "(Zienkiewicz & Zhu, Int. J. Numer. Meth. Eng. 33, 1331 (1992)) per "

@@ -182,7 +182,7 @@ def parameter_words(key: str) -> tuple[str, str, str]:
     last = parts[-1]
     words, unit = DEVICE_PARAMETERS.get(last, (last.replace("_", " "), ""))
     table = _TABLE_WORDS.get(parts[0], parts[0])
-    rest = [p for p in parts[1:-1] if p != "pdp"]
+    rest = [f"set of {PDP_SETS[p]}" if p in PDP_SETS else p for p in parts[1:-1] if p != "pdp"]
     if parts[0] == "raman_alloy" and last == "b":
         words, unit = "biaxial strain coefficient of the Si-Si mode b", "cm⁻¹"
     if parts[0] == "bands_bowing":
