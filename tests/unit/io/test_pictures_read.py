@@ -58,9 +58,20 @@ def text_boxes(fig) -> list:
     return out
 
 
-def assert_readable(fig, what: str):
+def assert_readable(fig, what: str, solid=()):
+    """No text leaves the figure or overlaps another text or one of the ``solid`` axes."""
     boxes = text_boxes(fig)
     assert boxes, what
+    r = fig.canvas.get_renderer()
+    for ax in solid:        # e.g. the colour bar: no tick label of the map hides under it
+        b = ax.get_window_extent(r)
+        own = [t.get_window_extent(r).bounds for t in ax.get_yticklabels() + ax.get_xticklabels()]
+        for text, tb in boxes:
+            if tb.bounds in own:          # the colour bar's own tick labels
+                continue
+            ox = min(b.x1, tb.x1) - max(b.x0, tb.x0)
+            oy = min(b.y1, tb.y1) - max(b.y0, tb.y0)
+            assert not (ox > 1 and oy > 1), f"{what}: {text!r} lies under the colour bar"
     W, H = fig.bbox.width, fig.bbox.height
     for text, b in boxes:       # nothing cut off at the figure's edge
         assert b.x0 >= -1 and b.y0 >= -1 and b.x1 <= W + 1 and b.y1 <= H + 1, \
@@ -147,7 +158,7 @@ def test_maps_of_a_mesa_read_right(small_mesa_result, view, name):
     src = _map_source(small_mesa_result)
     fig = build_map(src, name, view)
     what = f"{name} {view}"
-    assert_readable(fig, what)
+    assert_readable(fig, what, solid=[fig.axes[1]])
     ax, cax = fig.axes[0], fig.axes[1]
     assert_round_colour_bar(cax, describe(name).signed, what)
     # the caption is the quantity in words with its unit, never the field name
@@ -160,7 +171,7 @@ def test_maps_of_a_mesa_read_right(small_mesa_result, view, name):
 def test_maps_of_a_tetrahedral_body_read_right(view):
     src = _tet_source()
     fig = build_map(src, "stress_xx", view, position=20.0 if view == "plan" else None)
-    assert_readable(fig, f"tet {view}")
+    assert_readable(fig, f"tet {view}", solid=[fig.axes[1]])
     assert_round_colour_bar(fig.axes[1], True, f"tet {view}")
 
 
@@ -208,6 +219,23 @@ def test_plots_of_the_readouts_read_right(small_mesa_result, tmp_path, monkeypat
         words = " ".join(t for t, _ in text_boxes(fig))
         assert "sigma_" not in words and "_" not in words.replace(
             summary["layers"][1]["name"], ""), f"{name}: raw identifier in {words!r}"
+
+
+def test_line_cut_plot_reads_right():
+    from mesastrain.case.schema import FIELD_COMPONENTS
+    from mesastrain.derived.cuts import cut_figure
+
+    dist = np.linspace(0.0, 120.0, 61)
+    region = np.where(dist < 30, 2, np.where(dist < 60, 1, 0))
+    labels = {0: "substrate: Si", 1: "layer 1: Si0.7Ge0.3", 2: "layer 2: Si"}
+    comps = {n: np.sin(dist / 20.0 + i) * (1e-3 if n.startswith("strain") else 500.0)
+             for i, n in enumerate(FIELD_COMPONENTS)}
+    chosen = ["stress_xx", "stress_zz", "von_mises", "strain_xx", "displacement_z"]
+    fig = cut_figure("cut c: (0, 0, 40) to (0, 0, -80) nm", dist, region, labels, comps, chosen)
+    assert_readable(fig, "line cut")
+    legend = [t.get_text() for ax in fig.axes for t in ax.get_legend().get_texts()]
+    assert "stress σxx" in legend and "von Mises stress" in legend
+    assert not any("_" in t for t in legend)
 
 
 # --------------------------------------------------------------------------
