@@ -122,7 +122,9 @@ def section_maps(case, plan: Plan) -> dict:
     etch = case.pattern.etch_depth or 0.0
     depth = max(3.0 * case.stack_thickness, 1.5 * etch - case.stack_thickness)
     return {f"device_map_{q}.png": {"quantity": q, "component": None, "note": note,
-                                    "depth": depth, "words": map_words(plan).get(q)}
+                                    "depth": depth, "words": map_words(plan).get(q),
+                                    "valid": (PIEZO_LINEAR_LIMIT if q.startswith("piezo_")
+                                              else None)}
             for q, note in map_fields(plan).items()}
 
 

@@ -266,7 +266,8 @@ def draw_pictures(res: Result, folder: Path) -> list[str]:
             comp = kw.get("component")
             name = f"{q}_{comp.lower()}" if comp else q
             draw_map(src, folder / png, name, "section", position=kw.get("y"),
-                     depth=kw.get("depth"), note=kw.get("note"), words=kw.get("words"))
+                     depth=kw.get("depth"), note=kw.get("note"), words=kw.get("words"),
+                     valid=kw.get("valid"))
             written.append(png)
     return written
 

@@ -232,7 +232,8 @@ def _inside(sec: Section, xl, yl) -> np.ndarray:
 def build_map(src: FieldSource, name: str, view: str = "section",
               position: float | None = None, depth: float | None = None,
               percentile: float = 99.0, note: str | None = None,
-              title: str | None = None, words: str | None = None):
+              title: str | None = None, words: str | None = None,
+              valid: float | None = None):
     """The figure of one quantity on a standard view (not saved): see :func:`draw_map`.
 
     Returns
@@ -261,6 +262,8 @@ def build_map(src: FieldSource, name: str, view: str = "section",
     sel = sel[np.isfinite(sel)]
     if signed:
         vmax = nice_limit(float(np.percentile(np.abs(sel), percentile)) if sel.size else 1.0)
+        if valid is not None:       # the model holds up to ±valid: the colours stop there
+            vmax = min(vmax, nice_limit(valid))
         clim = (-vmax, vmax)
     else:
         hi = nice_limit(float(np.percentile(sel, percentile)) if sel.size else 1.0)
@@ -277,8 +280,11 @@ def build_map(src: FieldSource, name: str, view: str = "section",
     clip = ("Colour scale centred on zero, limits rounded up from the "
             f"{percentile:g}th percentile of |value| in the layers" if signed else
             f"Colour limits rounded up from the {percentile:g}th percentile in the layers")
+    if valid is not None and clim[1] <= nice_limit(valid):
+        clip = (f"Colour scale centred on zero, limited to ±{clim[1]:g} {describe(name).unit}, "
+                f"the range where the model holds; arrow ends: values beyond it, out of range")
     clip += "; arrow ends: values beyond them exist (singular corners). Black lines: " \
-            "region boundaries."
+            "region boundaries." if valid is None else ". Black lines: region boundaries."
     left, right, top = 0.95, 1.3, 0.25
     fw = left + axw + right
     foot = _wrap(clip + (f"\n{note}" if note else ""), int((fw - 0.3) * 12.5))
@@ -333,7 +339,8 @@ def build_map(src: FieldSource, name: str, view: str = "section",
 def draw_map(src: FieldSource, png: Path, name: str, view: str = "section",
              position: float | None = None, depth: float | None = None,
              percentile: float = 99.0, note: str | None = None,
-             title: str | None = None, words: str | None = None) -> Path:
+             title: str | None = None, words: str | None = None,
+             valid: float | None = None) -> Path:
     """Draw one quantity on a standard view into a PNG.
 
     Parameters
@@ -355,12 +362,15 @@ def draw_map(src: FieldSource, png: Path, name: str, view: str = "section",
     words : str, optional
         Replaces the quantity's words in the caption (its unit is kept), e.g.
         a channel described by carrier and direction.
+    valid : float, optional
+        The magnitude up to which the quantity's model holds (display unit):
+        the colour scale stops there, and the arrows mark values beyond it.
 
     Returns
     -------
     Path
     """
-    fig = build_map(src, name, view, position, depth, percentile, note, title, words)
+    fig = build_map(src, name, view, position, depth, percentile, note, title, words, valid)
     png = Path(png)
     fig.savefig(png, dpi=DPI, facecolor="white")
     return png

@@ -124,18 +124,24 @@ def _stat(f: dict, key: str, scale: float = 1.0, digits: str = ".3g",
     """``mean [min, max]`` of a layer figure as HTML, '-' when absent.
 
     With ``limit``, an entry beyond ±limit is not shown as a number: it reads
-    "beyond ±limit" (marked), since the model does not give it.
+    ``<−limit`` or ``>+limit`` and the cell is marked with a dagger, since the
+    model does not give it.
     """
     if key not in f:
         return "-"
     r = f[key]
 
+    beyond = False
+
     def one(k):
+        nonlocal beyond
         v = scale * r[k] + 0
         if limit is not None and abs(v) > limit:
-            return f'<span class="oor">beyond {"+" if v > 0 else "&minus;"}{limit:g}&dagger;</span>'
+            beyond = True
+            return f"&lt;&minus;{limit:g}" if v < 0 else f"&gt;+{limit:g}"
         return esc(f"{v:{digits}}")
-    return f"{one('mean')} [{one('min')}, {one('max')}]"
+    text = f"{one('mean')} [{one('min')}, {one('max')}]"
+    return f'<span class="oor">{text}&nbsp;&dagger;</span>' if beyond else text
 
 
 def parameter_rows(sources: list[str]) -> list[tuple[str, str, str, str, str]]:
@@ -261,7 +267,8 @@ def section_device(summary: dict, folder) -> str | None:
         parts.append('<p class="note">100 &Delta;&rho;/&rho; for current along the channel '
                      'and across it in the wafer plane, from the full stress tensor and '
                      "Smith's (1954) coefficients rotated into the sample frame. "
-                     f'&dagger; Out of range: {esc(reason)}.</p>')
+                     f'&dagger; Out of range: &lt;&minus;{lim:g} or &gt;+{lim:g} stands for a '
+                     f'value {esc(reason)}.</p>')
     probe_rows = []
     for p in summary.get("probes") or []:
         if not any(k in p for k in ("raman_shift", "band_edges", "piezoresistance")):
@@ -271,8 +278,9 @@ def section_device(summary: dict, folder) -> str | None:
         for name, item in (p.get("piezoresistance") or {}).items():
             if item and item.get("longitudinal") is not None:
                 oor = item.get("out_of_range", ())
-                vals = [f'<span class="oor">beyond &plusmn;{lim:g}&dagger;</span>' if w in oor
-                        else esc(f"{item[w]:+.1f}") for w in ("longitudinal", "transverse")]
+                vals = [(f'<span class="oor">{"&lt;&minus;" if item[w] < 0 else "&gt;+"}{lim:g}'
+                         f'&nbsp;&dagger;</span>') if w in oor else esc(f"{item[w]:+.1f}")
+                        for w in ("longitudinal", "transverse")]
                 along.append(f"{esc(name)} {vals[0]} / {vals[1]}")
         probe_rows.append([esc(p["name"]), esc(p.get("material", "")),
                            num(p.get("raman_shift"), 4),

@@ -183,13 +183,14 @@ def test_device_maps_read_right_and_say_what_they_show(small_mesa_result):
     assert "device_map_raman_shift.png" in maps
     for png, kw in maps.items():
         fig = build_map(src, kw["quantity"], "section", depth=kw.get("depth"),
-                        note=kw.get("note"), words=kw.get("words"))
+                        note=kw.get("note"), words=kw.get("words"), valid=kw.get("valid"))
         assert_readable(fig, png)
         assert_round_colour_bar(fig.axes[1], True, png)
         caption = fig.texts[0].get_text().replace("\n", " ")
         assert "piezo_" not in caption and "_long" not in caption, caption
         if kw["quantity"].startswith("piezo_"):
             assert "Δρ/ρ" in caption and "-type" in caption and "(%)" in caption
+            assert fig.axes[1].get_ylim()[1] <= 20.0        # colours stop at the valid range
 
 
 def test_plots_of_the_readouts_read_right(small_mesa_result, tmp_path, monkeypatch):
