@@ -14,6 +14,7 @@ import numpy as np
 from mesastrain.derived.device_physics import Plan, direction_label, evaluate, field_names
 from mesastrain.derived.sampling import sample_inside
 from mesastrain.physics.piezo import LINEAR_LIMIT_PERCENT
+from mesastrain.physics.quantities import pdp_words
 
 __all__ = ["PIEZO_LINEAR_LIMIT", "cut_writer", "map_fields", "map_words", "section_maps"]
 
@@ -80,9 +81,11 @@ def map_fields(plan: Plan) -> dict[str, str]:
     maps = {}
     with_raman = [rp for rp in plan.regions if rp.raman is not None]
     if plan.raman and with_raman:
-        sets = ", ".join(sorted({f"{rp.label} {rp.raman.pdp_set}" for rp in with_raman}))
+        sets = "; ".join(sorted({f"{rp.label}: {pdp_words(rp.raman.pdp_set)}"
+                                 for rp in with_raman}))
         maps["raman_shift"] = (f"optical-phonon line shift seen in backscattering (Raman-allowed "
-                               f"modes, intensity-weighted; {sets}); grey: no Raman data")
+                               f"modes, intensity-weighted; phonon deformation potentials of "
+                               f"{sets}); grey: no Raman data")
     if plan.bands and any(rp.bands is not None for rp in plan.regions):
         maps["band_gap_shift"] = ("strained minus unstrained gap (lowest modelled conduction "
                                   "valley to top valence band); grey: no deformation potentials")

@@ -270,6 +270,11 @@ def build_map(src: FieldSource, name: str, view: str = "section",
         lo = float(np.percentile(sel, 100 - percentile)) if sel.size else 0.0
         clim = (0.0 if lo >= 0 else -nice_limit(-lo), hi)
     finite = np.all(np.isfinite(vals[tri]), axis=1)
+    data = vals[np.unique(tri[finite])]
+    above = bool(data.size and np.nanmax(data) > clim[1])
+    below = bool(data.size and np.nanmin(data) < clim[0])
+    extend = {(True, True): "both", (True, False): "max", (False, True): "min",
+              (False, False): "neither"}[(above, below)]
     aspect = (yl[1] - yl[0]) / max(xl[1] - xl[0], 1e-12)
     axw = 6.2 if aspect < 0.8 else 5.0
     axh = min(axw * aspect, 5.5)
@@ -282,9 +287,11 @@ def build_map(src: FieldSource, name: str, view: str = "section",
             f"Colour limits rounded up from the {percentile:g}th percentile in the layers")
     if valid is not None and clim[1] <= nice_limit(valid):
         clip = (f"Colour scale centred on zero, limited to ±{clim[1]:g} {describe(name).unit}, "
-                f"the range where the model holds; arrow ends: values beyond it, out of range")
-    clip += "; arrow ends: values beyond them exist (singular corners). Black lines: " \
-            "region boundaries." if valid is None else ". Black lines: region boundaries."
+                f"the range where the model holds"
+                + ("; arrow ends: values beyond it, out of range" if extend != "neither" else ""))
+    elif extend != "neither":
+        clip += "; arrow ends: values beyond them exist (singular corners)"
+    clip += ". Black lines: region boundaries."
     left, right, top = 0.95, 1.3, 0.25
     fw = left + axw + right
     foot = _wrap(clip + (f"\n{note}" if note else ""), int((fw - 0.3) * 12.5))
@@ -320,10 +327,6 @@ def build_map(src: FieldSource, name: str, view: str = "section",
                                            steps=[1, 2, 2.5, 5, 10]))
     ax.tick_params(labelsize=10)
     if im is not None:
-        data = vals[np.unique(tri[finite])]
-        extend = ("both" if signed or clim[0] < 0 else "max")
-        if data.size and np.nanmax(data) <= clim[1] and np.nanmin(data) >= clim[0]:
-            extend = "neither"
         cb = fig.colorbar(im, cax=cax, extend=extend)
         cb.locator = MaxNLocator(nbins=max(3, min(6, int(axh / 0.35))),
                                  steps=[1, 2, 2.5, 5, 10], symmetric=signed)

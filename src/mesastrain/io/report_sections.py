@@ -358,9 +358,9 @@ def _map_caption(summary: dict, kind: str, quantity: str) -> str:
              "edge": "close to the +x sidewall, on the cross-section y = 0",
              "plan": f"seen from above at mid-height of {first}"}[kind]
     q = describe(quantity)
-    return (f"{esc(q.words[:1].upper() + q.words[1:])} ({esc(q.unit or 'no unit')}) {where}. "
-            f"Colour limits are rounded up from the 99th percentile in the layers; the "
-            f"peaks at sharp corners lie beyond them and are singular.")
+    return (f"{esc(q.words[:1].upper() + q.words[1:])}"
+            f"{f' ({esc(q.unit)})' if q.unit else ''} {where}; the note in the picture says "
+            f"how its colour limits are set.")
 
 
 def section_pictures(summary: dict, folder: Path) -> str | None:
