@@ -258,8 +258,10 @@ def build_map(src: FieldSource, name: str, view: str = "section",
     tri = sec.triangles[_inside(sec, xl, yl)]
     # colour limits from the grown layers' points in the window
     pts = np.unique(tri)
-    sel = vals[pts][sec.region[pts] > 0] if np.any(sec.region[pts] > 0) else vals[pts]
+    sel = vals[pts][sec.region[pts] > 0]
     sel = sel[np.isfinite(sel)]
+    if sel.size == 0:       # nothing (or nothing defined) in the layers: the whole window
+        sel = vals[pts][np.isfinite(vals[pts])]
     if signed:
         vmax = nice_limit(float(np.percentile(np.abs(sel), percentile)) if sel.size else 1.0)
         if valid is not None:       # the model holds up to ±valid: the colours stop there
@@ -282,9 +284,11 @@ def build_map(src: FieldSource, name: str, view: str = "section",
     to_scale = axh >= 1.2       # a thin slab seen from above: stretched, and said so
     axh = max(axh, 1.2)
     caption = title or f"{label}, {where_text}" + ("" if to_scale else " (not to scale)")
+    where = "in the layers" if np.any(np.isfinite(vals[pts][sec.region[pts] > 0])) else \
+        "in the picture"
     clip = ("Colour scale centred on zero, limits rounded up from the "
-            f"{percentile:g}th percentile of |value| in the layers" if signed else
-            f"Colour limits rounded up from the {percentile:g}th percentile in the layers")
+            f"{percentile:g}th percentile of |value| {where}" if signed else
+            f"Colour limits rounded up from the {percentile:g}th percentile {where}")
     if valid is not None and clim[1] <= nice_limit(valid):
         clip = (f"Colour scale centred on zero, limited to ±{clim[1]:g} {describe(name).unit}, "
                 f"the range where the model holds"

@@ -175,6 +175,18 @@ def test_maps_of_a_tetrahedral_body_read_right(view):
     assert_round_colour_bar(fig.axes[1], True, f"tet {view}")
 
 
+def test_a_field_defined_only_in_the_substrate_gets_its_own_colour_limits():
+    # band-gap change of an InGaAs layer without deformation potentials: grey in the layer,
+    # and the substrate's values (here up to 17 meV) set the scale, not a default of 1
+    src = _tet_source()
+    gap = np.where(src.region == 1, np.nan, -0.017)
+    src.cell_data["band_gap_shift"] = gap
+    fig = build_map(src, "band_gap_shift", "section")
+    assert_readable(fig, "substrate-only field", solid=[fig.axes[1]])
+    assert fig.axes[1].get_ylim()[1] == pytest.approx(20.0)
+    assert "in the picture" in fig.texts[1].get_text().replace("\n", " ")
+
+
 def test_device_maps_read_right_and_say_what_they_show(small_mesa_result):
     from mesastrain.io.folder import _map_source
 
