@@ -298,6 +298,7 @@ def build_map(src: FieldSource, name: str, view: str = "section",
     clip += ". Black lines: region boundaries."
     left, right, top = 0.95, 1.3, 0.25
     fw = left + axw + right
+    note = note[:1].upper() + note[1:] if note else note
     foot = _wrap(clip + (f"\n{note}" if note else ""), int((fw - 0.3) * 12.5))
     head = _wrap(caption, int((fw - 0.4) * 10.0))
     nfoot, nhead = foot.count("\n") + 1, head.count("\n") + 1

@@ -1,9 +1,10 @@
 """A short, self-contained HTML report of a run (``report.html``, images embedded).
 
 :func:`write_report` reads ``summary.json`` of a result folder, draws the
-stack, renders the standard maps from ``fields.vtu`` (:mod:`mesastrain.io.render`)
-and assembles one HTML file whose pictures are embedded as data URIs, so the
-file can be mailed or archived on its own.
+stack, draws the standard maps the folder lacks from ``fields.vtu``
+(:mod:`mesastrain.io.maps`; a run has drawn them already, and nothing is drawn
+twice) and assembles one HTML file whose pictures are embedded as data URIs,
+so the file can be mailed or archived on its own.
 
 The body is built from :data:`SECTIONS`: functions
 ``section(summary: dict, folder: Path) -> str | None`` returning an HTML
