@@ -267,3 +267,22 @@ def test_quantity_words_and_units():
     assert valley_words("delta_x+delta_y") == "Δ[100], Δ[010]"
     assert parameter_words("piezo.n-Si.pi11") == ("piezoresistance, n-Si",
                                                   "piezoresistance coefficient π11", "10⁻¹¹/Pa")
+
+
+def test_report_draws_missing_maps_once(small_mesa_run, tmp_path):
+    """A folder without maps (run --quick) gets them from fields.vtu; existing ones are
+    embedded, never drawn again."""
+    import json
+    import shutil
+
+    from mesastrain.io.report import write_report
+
+    for name in ("summary.json", "fields.vtu"):
+        shutil.copy(small_mesa_run.out / name, tmp_path / name)
+    maps = json.loads((tmp_path / "summary.json").read_text())["case"]["output"]["maps"]
+    write_report(tmp_path)
+    drawn = {p.name: p.stat().st_mtime_ns for p in tmp_path.glob("map_*.png")}
+    assert {f"map_section_{m}.png" for m in maps} <= set(drawn)
+    write_report(tmp_path)
+    assert {p.name: p.stat().st_mtime_ns for p in tmp_path.glob("map_*.png")} == drawn
+    assert (tmp_path / "report.html").read_text().count("<img ") >= len(drawn)
