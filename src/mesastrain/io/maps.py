@@ -20,7 +20,7 @@ import numpy as np
 
 from mesastrain.fem.fields import VTK_TENSOR_ORDER, from_vtk6, hydrostatic, to_vtk6, von_mises
 from mesastrain.io.slices import Section, cut
-from mesastrain.physics.quantities import describe
+from mesastrain.physics.quantities import describe, nice_limit
 
 __all__ = ["FieldSource", "build_map", "draw_map", "nice_limit", "quantity_label", "standard_maps"]
 
@@ -32,17 +32,6 @@ def quantity_label(name: str, words: str | None = None) -> str:
     if words:
         return f"{words} ({q.unit})" if q.unit else words
     return q.title
-
-
-def nice_limit(v: float) -> float:
-    """The smallest round number (1, 1.5, 2, 2.5, 3, 4, 5, 6, 8 x 10^k) not below ``v`` > 0."""
-    if not np.isfinite(v) or v <= 0:
-        return 1.0
-    mag = 10.0 ** np.floor(np.log10(v))
-    for m in (1.0, 1.5, 2.0, 2.5, 3.0, 4.0, 5.0, 6.0, 8.0, 10.0):
-        if m * mag >= v * (1 - 1e-9):
-            return float(m * mag)
-    return float(10 * mag)
 
 
 class FieldSource:

@@ -16,8 +16,10 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-__all__ = ["DEVICE_PARAMETERS", "PDP_SETS", "Quantity", "describe", "parameter_words",
-           "pdp_words", "valley_words"]
+import numpy as np
+
+__all__ = ["DEVICE_PARAMETERS", "PDP_SETS", "Quantity", "describe", "nice_limit",
+           "parameter_words", "pdp_words", "valley_words"]
 
 
 @dataclass(frozen=True)
@@ -86,6 +88,20 @@ def pdp_words(name: str) -> str:
     base, _, rest = str(name).partition(" scaled to ")
     words = PDP_SETS.get(base, base)
     return words + (", scaled to the alloy's biaxial coefficient" if rest else "")
+
+
+def nice_limit(v: float) -> float:
+    """The smallest round number (1, 1.5, 2, 2.5, 3, 4, 5, 6, 8 x 10^k) not below ``v`` > 0.
+
+    Colour-scale limits of every picture (1.0 for a value that is not positive and finite).
+    """
+    if not np.isfinite(v) or v <= 0:
+        return 1.0
+    mag = 10.0 ** np.floor(np.log10(v))
+    for m in (1.0, 1.5, 2.0, 2.5, 3.0, 4.0, 5.0, 6.0, 8.0, 10.0):
+        if m * mag >= v * (1 - 1e-9):
+            return float(m * mag)
+    return float(10 * mag)
 
 
 def valley_words(names) -> str:
