@@ -275,10 +275,12 @@ def wafer_bow(res, fe: bool | None = None) -> dict:
         out["finite_element"]["film_force"] = r["film_force"]
         out["finite_element"]["unknowns"] = r["unknowns"]
         out["stoney_with_fe_film_force"] = _entry(stoney(r["film_force"]), diameter)
-    out["notes"] = ("curvature positive when the film side is concave (tensile film); Stoney "
-                    "uses the blanket film stress on a rigid substrate (Stoney 1909), "
-                    "stoney_with_fe_film_force the film force of the bent wafer; laminate = "
-                    "classical lamination theory (Timoshenko 1925 for one layer)")
+    out["notes"] = ("curvature positive when the film side is concave (tensile film); Stoney's "
+                    "formula (Stoney 1909) with the blanket film stress on a rigid substrate, "
+                    "and again with the film force of the bent wafer from the finite-element "
+                    "solution; laminate: classical lamination theory (Timoshenko 1925 for one "
+                    "layer); film force: in-plane stress times thickness summed over the films, "
+                    "per unit length of a cut through the wafer (MPa nm = 0.001 N/m)")
     if not iso:
         out["notes"] += ("; the substrate is not in-plane isotropic for biaxial loading, so "
                          "Stoney uses the mean biaxial modulus and the curvature is "
