@@ -53,11 +53,101 @@ class CrossChecks:
         The read ``[mesh]`` (possibly empty).
     """
 
-    def __init__(self, substrate: dict, layers: list, pattern: dict, mesh: dict):
+    def __init__(self, substrate: dict, layers: list, pattern: dict, mesh: dict,
+                 liners: list = ()):
         self.substrate = substrate
         self.layers = layers
         self.pattern = pattern
         self.mesh = mesh
+        self.liners = list(liners)
+
+    def liner_offsets(self) -> tuple:
+        """Total liner thickness (top, horizontal sidewall offset, floor), nm; zeros if none.
+
+        The sidewall thickness is measured normal to the sidewall; a wall at angle a
+        from the substrate plane moves horizontally by thickness / sin(a).
+        """
+        angle = self.pattern.get("sidewall_angle") or 90.0
+        sin_a = math.sin(math.radians(angle))
+        top = math.fsum(t["thickness"] for t in self.liners)
+        side = math.fsum(t.get("sidewall_thickness", t["thickness"]) for t in self.liners)
+        floor = math.fsum(t.get("floor_thickness", t["thickness"]) for t in self.liners)
+        return top, side / sin_a, floor
+
+    def liners_fit(self, liners: list) -> None:
+        """Liners need an etched feature, must leave the etch partly open and fit the gaps.
+
+        Checked per liner, bottom to top, with the total thickness up to it: the floor
+        liners stay below the feature's top edge (the floor thickness is less than the
+        etch depth), the sidewall liners of neighbouring features of an array do not
+        meet (twice the horizontal sidewall offset is less than the narrowest gap,
+        pitch minus the feature width at its widest), the liners fit within a given
+        ``margin``, and a sloped sidewall leaves a top outline of positive size.
+        """
+        p = self.pattern
+        if not liners:
+            return
+        if p["shape"] == "none":
+            raise CaseError("liner[0]", 'needs an etched feature to cover ([pattern] shape = '
+                                        '"rectangle", "stripe", "disk" or "polygon"); a film '
+                                        'over a blanket stack is a [[layer]]')
+        if p["shape"] == "mesh":
+            raise CaseError("liner[0]", "is not built on an imported mesh; draw the liner as "
+                                        "a physical group of the mesh file instead")
+        view = PatternView(p)
+        top_ol = outline_of(view)
+        taper = taper_of(view)
+        foot = top_ol.offset(taper)
+        widest = [max(a, b) for a, b in zip(top_ol.half_extent(), foot.half_extent())]
+        angle = p.get("sidewall_angle") or 90.0
+        sin_a = math.sin(math.radians(angle))
+        etch = p["etch_depth"]
+        t_top = s_h = f_tot = 0.0
+        for i, t in enumerate(liners):
+            key = f"liner[{i}]"
+            side_key = (f"{key}.sidewall_thickness" if "sidewall_thickness" in t
+                        else f"{key}.thickness")
+            floor_key = f"{key}.floor_thickness" if "floor_thickness" in t else f"{key}.thickness"
+            t_top += t["thickness"]
+            s_h += t.get("sidewall_thickness", t["thickness"]) / sin_a
+            f_tot += t.get("floor_thickness", t["thickness"])
+            if f_tot >= etch:
+                raise CaseError(floor_key, f"the floor liners reach {f_tot:.10g} nm up, as high "
+                                           f"as the etch depth ({etch:.10g} nm) or more; the "
+                                           f"etch must stay partly open (give thinner floor "
+                                           f"liners)")
+            pitch = p.get("pitch")
+            if pitch is not None and pitch[1] is None and p["shape"] != "stripe":
+                pitch = (pitch[0], pitch[0])        # as pattern_fits fills it in
+            # the liner's outer outline at its foot and its top (a polygon's mitred corners
+            # reach further out than the sidewall offset)
+            reach = [max(a, b) for a, b in zip(
+                foot.offset(s_h).half_extent(),
+                top_ol.offset(s_h - taper * t_top / etch).half_extent())]
+            for axis, name in ((0, "x"), (1, "y")):
+                period = None if pitch is None else pitch[axis]
+                if period is None or not math.isfinite(widest[axis]):
+                    continue
+                gap = period - 2.0 * widest[axis]
+                if 2.0 * reach[axis] >= period:
+                    raise CaseError(side_key, f"the sidewall liners, {s_h:.10g} nm thick "
+                                              f"(horizontally) on each side, fill the "
+                                              f"{gap:.10g} nm gap between the features along "
+                                              f"{name} (pitch {period:.10g} nm); give less "
+                                              f"than {gap / 2.0:.10g} nm in total")
+            if p.get("margin") is not None and s_h >= p["margin"]:
+                raise CaseError(side_key, f"the sidewall liners, {s_h:.10g} nm thick "
+                                          f"(horizontally), do not fit in pattern.margin = "
+                                          f"{p['margin']:.10g} nm; give a wider margin")
+            if taper:
+                above = top_ol.offset(s_h - taper * t_top / etch)
+                inner = top_ol.offset(-taper * t_top / etch)
+                problem = above.problem() or inner.problem()
+                if problem:
+                    raise CaseError(f"{key}.thickness",
+                                    f"with the sidewall slope, the liner's sidewall does not "
+                                    f"reach {t_top:.10g} nm above the feature top ({problem}); "
+                                    f"give a thinner liner or a steeper sidewall")
 
     def dislocations(self, sets: list) -> None:
         """Interface index in range, line in the interface, a pattern the lines fit.
@@ -231,6 +321,9 @@ class CrossChecks:
         that bound (of the layer stack for the etch floor).
         """
         x, y, z = point
+        if self.liners and self.pattern["shape"] not in ("none", "mesh") \
+                and self._in_liner(x, y, z):
+            return
         rel = 1.0 + INSIDE_RTOL
         top = self.stack()
         depth = self.mesh.get("substrate_depth") or self.substrate["thickness"]
@@ -275,6 +368,37 @@ class CrossChecks:
             if abs(x) > mx * rel or abs(y) > my * rel:
                 raise CaseError(key, f"{where} is outside the modelled region (|x| <= "
                                      f"{mx:.10g}, |y| <= {my:.10g} nm: feature plus margin)")
+
+    def _in_liner(self, x: float, y: float, z: float) -> bool:
+        """True when (x, y, z) lies in the liners (square offsets of the feature, as meshed)."""
+        p = self.pattern
+        t_top, s_h, f_tot = self.liner_offsets()
+        top = self.stack()
+        floor = top - p["etch_depth"]
+        span = max(top, p["etch_depth"]) * INSIDE_RTOL
+        if z > top + t_top + span or z < floor - span:
+            return False
+        if z <= floor + f_tot + span:
+            return self._in_cell(x, y)
+        view = PatternView(p)
+        taper = taper_of(view)
+        rise = (top - z) / p["etch_depth"]          # 1 at the floor, negative above the top
+        ol = outline_of(view).offset(taper * rise + s_h)
+        hx, hy = ol.half_extent()
+        tol = INSIDE_RTOL * max(hx, hy if math.isfinite(hy) else hx)
+        return bool(ol.contains(x, y, tol))
+
+    def _in_cell(self, x: float, y: float) -> bool:
+        p = self.pattern
+        rel = 1.0 + INSIDE_RTOL
+        if p.get("pitch") is not None:
+            px, py = p["pitch"]
+            return abs(x) <= px / 2 * rel and (py is None or abs(y) <= py / 2 * rel)
+        if p.get("margin") is not None:
+            foot = outline_at(PatternView(p), self.stack(), self.stack() - p["etch_depth"])
+            hx, hy = foot.half_extent()
+            return abs(x) <= (hx + p["margin"]) * rel and abs(y) <= (hy + p["margin"]) * rel
+        return True
 
     def probes_inside(self, probes: list) -> None:
         """Every probe point inside the modelled body."""

@@ -294,7 +294,7 @@ class _Parser:
         check_nesting(data)
         special = {TITLE.name: TITLE.kind.read, "substrate": self._substrate,
                    "layer": self._layers, "pattern": self._pattern, "cut": self._cuts,
-                   "dislocations": self._dislocations}
+                   "dislocations": self._dislocations, "liner": self._liners}
         for name in data:
             if name not in TOP_KEYS:
                 raise rd.unknown_key(name, name, TOP_KEYS)
@@ -323,7 +323,7 @@ class _Parser:
         # ---- phase 2: checks across tables, in file order of the table ---
         pattern = got.setdefault("pattern", {"shape": "none"})
         mesh = got.setdefault("mesh", {})
-        checks = CrossChecks(got["substrate"], got["layer"], pattern, mesh)
+        checks = CrossChecks(got["substrate"], got["layer"], pattern, mesh, got.get("liner", []))
         if pattern["shape"] == "rectangle":
             pattern.setdefault("length", pattern["width"])
         if pattern["shape"] not in ("none", "mesh"):
@@ -335,7 +335,8 @@ class _Parser:
                  "thermal": lambda: checks.temperatures(got["thermal"]),
                  "probe": lambda: checks.probes_inside(got["probe"]),
                  "cut": lambda: checks.cuts_inside(got["cut"]),
-                 "dislocations": lambda: checks.dislocations(got["dislocations"])}
+                 "dislocations": lambda: checks.dislocations(got["dislocations"]),
+                 "liner": lambda: checks.liners_fit(got["liner"])}
         for name in data:
             if name in cross:
                 cross[name]()
@@ -395,17 +396,18 @@ class _Parser:
     def _thermal_history(self, got: dict) -> None:
         """Per-layer deposition temperatures against [thermal]; growth_temperature when needed."""
         thermal = got.get("thermal")
-        layers = got["layer"]
-        for i, t in enumerate(layers):
+        films = ([(f"layer[{i}]", t) for i, t in enumerate(got["layer"])]
+                 + [(f"liner[{i}]", t) for i, t in enumerate(got.get("liner", ()))])
+        for key, t in films:
             if "deposition_temperature" in t and thermal is None:
-                raise CaseError(f"layer[{i}].deposition_temperature",
+                raise CaseError(f"{key}.deposition_temperature",
                                 'needs a [thermal] table with final_temperature, e.g. '
                                 'final_temperature = "20 C"')
         if thermal is not None and "growth_temperature" not in thermal:
-            lacking = [i for i, t in enumerate(layers) if "deposition_temperature" not in t]
+            lacking = [key for key, t in films if "deposition_temperature" not in t]
             if lacking:
                 raise rd.missing("thermal.growth_temperature",
-                                 f'the growth temperature (layer[{lacking[0]}] has no '
+                                 f'the growth temperature ({lacking[0]} has no '
                                  f'deposition_temperature of its own), e.g. '
                                  f'growth_temperature = "700 C"')
 
@@ -524,13 +526,13 @@ class _Parser:
             del t["corner_radius"]
         return t
 
-    def _named_items(self, value, key: str) -> list:
+    def _named_items(self, value, key: str, sep: str = "") -> list:
         """An array of named tables: names default to key1, key2, ... and must be unique."""
         out, seen = [], {}
         for i, item in enumerate(rd.array_of_tables(value, key)):
             ik = f"{key}[{i}]"
             t = read_table(table(key), item, ik)
-            t.setdefault("name", f"{key}{i + 1}")
+            t.setdefault("name", f"{key}{sep}{i + 1}")
             if t["name"] in seen:
                 raise CaseError(f"{ik}.name", f"{show_value(t['name'])} is already used by "
                                               f"{seen[t['name']]}; give each {key} its own name")
@@ -548,6 +550,13 @@ class _Parser:
                                 f"ignored); give names that differ in letters or digits")
             files[stem] = i
         return out
+
+    def _liners(self, value, key: str) -> list:
+        """``[[liner]]``: named ("liner 1", ...), materials resolved (no alloy fraction)."""
+        items = self._named_items(value, key, sep=" ")
+        for i, t in enumerate(items):
+            t["material"] = self._resolve_material(t, f"{key}[{i}]")["material"]
+        return items
 
     def _cuts(self, value, key: str) -> list:
         items = self._named_items(value, key)

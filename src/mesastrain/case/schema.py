@@ -38,7 +38,7 @@ from mesastrain.units import LENGTH_UNITS, MAX_LENGTH_NM, MAX_TEMPERATURE_K, TEM
 
 __all__ = [
     "CARRIERS", "DEFAULT_CUT_COMPONENTS", "DEFAULT_MAPS", "DEFAULT_VTU_FIELDS",
-    "FEATURE_SHAPES", "FIELD_COMPONENTS", "INSIDE_RTOL", "MATERIAL", "MATERIAL_KEYS",
+    "FEATURE_SHAPES", "FIELD_COMPONENTS", "INSIDE_RTOL", "LINER", "MATERIAL", "MATERIAL_KEYS",
     "MAX_CUT_POINTS", "MAX_SOLVER_ITERATIONS", "VTU_FIELDS",
     "PATTERN_SHAPES", "SCHEMA_FILE", "SCHEMA_VERSION", "SHAPE_KEYS",
     "SHAPE_REQUIRES", "SIDEWALL_ANGLE_RANGE", "SOLVER_METHODS", "SOLVER_PRECISIONS",
@@ -249,6 +249,28 @@ LAYER = Table("layer", "layers", "The grown layers, bottom to top; at least one.
     Key("deposition_temperature", TEMPERATURE, "Temperature at which this layer was grown or "
                                                "deposited (needs [thermal] final_temperature).",
         computed="[thermal] growth_temperature"),
+), array=True)
+
+LINER = Table("liner", "liners", "Conformal films deposited over the etched feature after the "
+              "etch, bottom to top: each covers the feature's top, its sidewalls and the etch "
+              "floor (only with an etched feature).", (
+    Key("material", MATERIAL, "Material name (usually a dielectric such as SiN or SiO2).",
+        required='the liner material, e.g. "SiN-PECVD"'),
+    Key("thickness", POSITIVE_LENGTH, "Thickness on the top of the feature.",
+        required='the liner thickness on the feature top, e.g. "20 nm"'),
+    Key("sidewall_thickness", POSITIVE_LENGTH, "Thickness on the sidewalls, measured normal "
+                                               "to the sidewall.", computed="thickness"),
+    Key("floor_thickness", POSITIVE_LENGTH, "Thickness on the etch floor.",
+        computed="thickness"),
+    Key("stress", STRESS, "Built-in (intrinsic) stress: the equi-biaxial stress the liner has "
+                          "as a blanket film on the wafer, tensile positive, with its unit; "
+                          "on the sidewalls it acts in the sidewall plane."),
+    Key("deposition_temperature", TEMPERATURE, "Temperature at which the liner was deposited "
+                                               "(needs [thermal] final_temperature).",
+        computed="[thermal] growth_temperature"),
+    Key("name", Kind(rd.name, {"type": "string", "minLength": 1, "maxLength": rd.MAX_NAME}),
+        f"Name of the liner's region in the results; 1 to {rd.MAX_NAME} characters.",
+        computed='"liner N"'),
 ), array=True)
 
 PATTERN = Table("pattern", "pattern", "The etched feature, centred on x = y = 0.", (
@@ -505,7 +527,7 @@ MATERIAL = Table("material", "materials", "Materials of one's own, [material.NAM
                  "layers and substrate by NAME.", MATERIAL_KEYS)
 
 #: Every table, in the order the unknown-key error lists them (after ``title``).
-TABLES = (SUBSTRATE, LAYER, PATTERN, THERMAL, MESH, SOLVER, PROBE, CUT, OUTPUT, CHANNEL,
+TABLES = (SUBSTRATE, LAYER, LINER, PATTERN, THERMAL, MESH, SOLVER, PROBE, CUT, OUTPUT, CHANNEL,
           DEVICE, READOUTS, DISLOCATIONS, UNCERTAINTY)
 #: The allowed top-level keys.
 TOP_KEYS = (TITLE.name, MATERIAL.name) + tuple(t.name for t in TABLES)

@@ -16,6 +16,7 @@ from mesastrain.case.schema import (
     CUT,
     DEVICE,
     DISLOCATIONS,
+    LINER,
     MATERIAL,
     MESH,
     OUTPUT,
@@ -29,6 +30,7 @@ from mesastrain.physics.materials import get_material, material_from_table
 
 __all__ = [
     "TABLE_TYPES", "Case", "Channel", "DeviceSettings", "DislocationSet", "Layer", "LineCut",
+    "Liner",
     "MeshSettings", "OutputSettings", "Pattern", "Probe", "ReadoutSettings", "SolverSettings",
     "Substrate", "Thermal", "UncertaintySettings", "UserMaterial",
 ]
@@ -151,6 +153,51 @@ class Layer:
     epitaxial: bool | None = None
     stress: float | None = None
     deposition_temperature: float | None = None
+
+
+@dataclass(frozen=True)
+class Liner:
+    """A conformal film deposited over the etched feature (``[[liner]]``).
+
+    Attributes
+    ----------
+    material : str
+    thickness : float
+        On the feature top, nm.
+    sidewall_thickness : float or None
+        On the sidewalls, normal to them, nm; None = ``thickness``.
+    floor_thickness : float or None
+        On the etch floor, nm; None = ``thickness``.
+    stress : float or None
+        Built-in blanket-film stress, MPa, tensile positive.
+    deposition_temperature : float or None
+        K; None = ``[thermal] growth_temperature``.
+    name : str or None
+        Region name; None = ``"liner N"``.
+    """
+
+    material: str
+    thickness: float
+    sidewall_thickness: float | None = LINER.default("sidewall_thickness")
+    floor_thickness: float | None = LINER.default("floor_thickness")
+    stress: float | None = LINER.default("stress")
+    deposition_temperature: float | None = LINER.default("deposition_temperature")
+    name: str | None = LINER.default("name")
+
+    @property
+    def side(self) -> float:
+        """Sidewall thickness, nm (normal to the sidewall)."""
+        return self.thickness if self.sidewall_thickness is None else self.sidewall_thickness
+
+    @property
+    def floor(self) -> float:
+        """Floor thickness, nm."""
+        return self.thickness if self.floor_thickness is None else self.floor_thickness
+
+    # a liner is never an alloy, never epitaxial: the attributes regions.py reads of a layer
+    x = None
+    relaxed = 1.0
+    epitaxial = False
 
 
 @dataclass(frozen=True)
@@ -487,6 +534,8 @@ class Case:
         Misfit dislocations (``[[dislocations]]``), possibly empty.
     materials : tuple of UserMaterial
         The case's own materials (``[material.NAME]``), possibly empty.
+    liners : tuple of Liner
+        Conformal films over the etched feature (``[[liner]]``), bottom to top.
     readouts : ReadoutSettings
         Stand-off distance, wafer diameter and bow switch (``[readouts]``).
     uncertainty : UncertaintySettings
@@ -510,6 +559,7 @@ class Case:
     uncertainty: UncertaintySettings = UncertaintySettings()
     dislocations: tuple = ()
     materials: tuple = ()
+    liners: tuple = ()
 
     def material(self, name: str, x: float | None = None):
         """Resolve a material name: the case's own ``[material.NAME]`` first, then built-ins.
@@ -572,4 +622,4 @@ TABLE_TYPES = {"substrate": Substrate, "layer": Layer, "pattern": Pattern, "ther
                "mesh": MeshSettings, "solver": SolverSettings, "probe": Probe, "cut": LineCut,
                "output": OutputSettings, "channel": Channel, "device": DeviceSettings,
                "readouts": ReadoutSettings, "dislocations": DislocationSet,
-               "uncertainty": UncertaintySettings}
+               "liner": Liner, "uncertainty": UncertaintySettings}

@@ -36,10 +36,14 @@ def _fmt(v: float) -> str:
 def results_table(summary: dict) -> str:
     """Short plain-text table of the headline results of a run (MPa)."""
     lines = ["region          material        mean sxx   mean syy   mean szz  max v.Mises"]
+    singular = False
     for lf in summary["layer_figures"]:
         s = lf["mean_stress"]
+        mark = ""
+        if lf.get("max_von_mises_singular"):
+            mark, singular = " (singular corner)", True
         lines.append(f"{lf['name']:<15} {lf['label']:<14}{_fmt(s[0][0])} {_fmt(s[1][1])} "
-                     f"{_fmt(s[2][2])} {_fmt(lf['max_von_mises'])}")
+                     f"{_fmt(s[2][2])} {_fmt(lf['max_von_mises'])}{mark}")
     if summary["probes"]:
         lines.append("")
         lines.append("probe           at (nm)                       sxx        syy        szz")
@@ -50,6 +54,10 @@ def results_table(summary: dict) -> str:
                          f"{_fmt(s[0][0])} {_fmt(s[1][1])} {_fmt(s[2][2])}")
     lines.append("stress in MPa, sample frame, positive in tension; element averages for "
                  "regions, exact values at probes")
+    if singular:
+        lines.append("singular corner: the peak sits at a sharp corner or edge, where linear "
+                     "elasticity has no finite stress; it grows as the mesh is refined (read "
+                     "the stand-off values in the report)")
     return "\n".join(lines)
 
 

@@ -24,7 +24,7 @@ import numpy as np
 
 from mesastrain.cli.common import EXIT_FAILED
 from mesastrain.cli.verify_row import Check, _case  # noqa: F401 (Check re-exported)
-from mesastrain.cli.verify_stack import check_le11, check_stack
+from mesastrain.cli.verify_stack import check_le11, check_liner, check_stack
 
 
 def _blanket_film_stress(case) -> tuple[np.ndarray, np.ndarray, object]:
@@ -364,7 +364,7 @@ def check_raman() -> list[Check]:
 #: Check groups, in the order of the table: functions returning a list of :class:`Check`.
 CHECKS: list[Callable[[], list[Check]]] = [
     check_rotation, check_blanket, check_low_symmetry, check_thermal, check_critical_thickness, check_bow,
-    check_eshelby, check_dislocations, check_raman, check_stack, check_le11]
+    check_eshelby, check_dislocations, check_raman, check_stack, check_le11, check_liner]
 
 
 # --------------------------------------------------------------------------

@@ -16,7 +16,7 @@ import numpy as np
 
 from mesastrain.cli.verify_row import Check, _case
 
-__all__ = ["LE11", "check_stack", "check_le11", "le11_mesh", "le11_sigma_zz"]
+__all__ = ["LE11", "check_le11", "check_liner", "check_stack", "le11_mesh", "le11_sigma_zz"]
 
 #: NAFEMS LE11 (The Standard NAFEMS Benchmarks, TNSB Rev. 3, 1990): section in (r, z), m.
 #: Inner surface: sphere of radius 1 about the origin from A = (1, 0) to E at 45 degrees, then
@@ -155,3 +155,21 @@ def check_le11() -> list[Check]:
                   LE11["target"], "NAFEMS, The Standard NAFEMS Benchmarks, TNSB Rev. 3 (1990) "
                                   "[M]; geometry as in the LE11 notes of this module",
                   le11_sigma_zz(), 2e-2)]
+
+
+def check_liner() -> list[Check]:
+    """A tensile liner over a wide mesa keeps its blanket stress at the centre of the top."""
+    from mesastrain.derived.sampling import sample_inside
+    from mesastrain.run.pipeline import run_case
+
+    case = _case("Si", {"material": "Si", "thickness": 40},
+                 liner=[{"material": "SiN-PECVD", "thickness": 10, "stress": "1.2 GPa"}],
+                 pattern={"shape": "rectangle", "width": 3000, "margin": 300, "etch_depth": 60},
+                 mesh={"order": 1, "size": 150, "edge_size": 5})
+    res = run_case(case)
+    _, sig, _, _ = sample_inside(res, [[0.0, 0.0, 45.0]])
+    return [Check("10 nm SiN liner, stress = \"1.2 GPa\", over a 3 um Si mesa: sigma_xx at the "
+                  "centre of the top (MPa)", 1200.0,
+                  "the blanket film stress: a thin film far from edges on a thick substrate "
+                  "(Stoney, Proc. R. Soc. Lond. A 82, 172, 1909); implementation check",
+                  float(sig[0, 0, 0]), 2e-2, kind="implementation")]

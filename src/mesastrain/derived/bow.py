@@ -39,6 +39,7 @@ from mesastrain.fem.assembly import assemble
 from mesastrain.fem.discretisation import discretise
 from mesastrain.fem.fields import evaluate_at_points
 from mesastrain.fem.solve import solve_condensed
+from mesastrain.model.regions import stack_of
 from mesastrain.physics.thinfilm import (
     bow_height,
     radius_of_curvature,
@@ -221,7 +222,7 @@ def free_plate_curvature(stiffness, eigenstrain, z_bottom, z_top, *, order: int 
 # --------------------------------------------------------------------------
 def blanket_stack(res):
     """(stiffness, eigenstrain, z_bottom, z_top) of the blanket stack on the full wafer."""
-    layers = res.layers
+    layers = stack_of(res.layers)       # the liners cover a feature, not the blanket wafer
     h_s = res.case.substrate.thickness
     stiff = [lm.stiffness_sample for lm in layers]
     eig = [lm.eigenstrain_sample for lm in layers]
@@ -240,10 +241,10 @@ def wafer_bow(res, fe: bool | None = None) -> dict:
     iso = np.allclose(Q_s[0, 0], Q_s[1, 1], rtol=1e-9) and abs(Q_s[0, 2]) < 1e-9 * Q_s[0, 0]
     M_s = biaxial_modulus(stiff[0])
     forces = []
-    for lm in res.layers[1:]:
+    for lm in stack_of(res.layers)[1:]:
         s, _ = blanket_state(lm)
         forces.append(0.5 * (s[0, 0] + s[1, 1]) * (lm.z_top - lm.z_bottom))
-    h_f = sum(lm.z_top - lm.z_bottom for lm in res.layers[1:])
+    h_f = sum(lm.z_top - lm.z_bottom for lm in stack_of(res.layers)[1:])
     F = float(sum(forces))
 
     def stoney(force):
@@ -261,7 +262,7 @@ def wafer_bow(res, fe: bool | None = None) -> dict:
         "stoney": _entry(stoney(F), diameter),
         "laminate": _entry(lam["mean"], diameter, lam["curvature"]),
     }
-    if len(res.layers) == 2:
+    if len(stack_of(res.layers)) == 2:
         lm = res.layers[1]
         eps = -0.5 * (lm.eigenstrain_sample[0, 0] + lm.eigenstrain_sample[1, 1])
         out["timoshenko"] = _entry(float(timoshenko_curvature(
@@ -274,10 +275,12 @@ def wafer_bow(res, fe: bool | None = None) -> dict:
         out["finite_element"]["film_force"] = r["film_force"]
         out["finite_element"]["unknowns"] = r["unknowns"]
         out["stoney_with_fe_film_force"] = _entry(stoney(r["film_force"]), diameter)
-    out["notes"] = ("curvature positive when the film side is concave (tensile film); Stoney "
-                    "uses the blanket film stress on a rigid substrate (Stoney 1909), "
-                    "stoney_with_fe_film_force the film force of the bent wafer; laminate = "
-                    "classical lamination theory (Timoshenko 1925 for one layer)")
+    out["notes"] = ("curvature positive when the film side is concave (tensile film); Stoney's "
+                    "formula (Stoney 1909) with the blanket film stress on a rigid substrate, "
+                    "and again with the film force of the bent wafer from the finite-element "
+                    "solution; laminate: classical lamination theory (Timoshenko 1925 for one "
+                    "layer); film force: in-plane stress times thickness summed over the films, "
+                    "per unit length of a cut through the wafer (MPa nm = 0.001 N/m)")
     if not iso:
         out["notes"] += ("; the substrate is not in-plane isotropic for biaxial loading, so "
                          "Stoney uses the mean biaxial modulus and the curvature is "

@@ -22,6 +22,7 @@ import numpy as np
 from mesastrain.case.schema import FIELD_COMPONENTS
 from mesastrain.derived.sampling import sample_inside
 from mesastrain.fem.fields import hydrostatic, principal, von_mises
+from mesastrain.physics.quantities import describe
 from mesastrain.run.result import Derived
 from mesastrain.units import safe_name
 
@@ -119,30 +120,33 @@ def write_cut_csv(path: Path, dist, pts, region, labels, comps: dict) -> None:
             w.writerow(row)
 
 
-def plot_cut(path: Path, title: str, dist, region, labels, comps: dict, chosen) -> None:
-    """Plot the chosen components along the cut, one panel per unit, layer boundaries marked."""
+def cut_figure(title: str, dist, region, labels, comps: dict, chosen):
+    """The figure of :func:`plot_cut` (not saved; an Agg canvas for measuring text)."""
     import matplotlib
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
+    matplotlib.use("Agg", force=False)
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.figure import Figure
 
     groups = []
     for fam in ("stress", "strain", "displacement"):
         names = [n for n in chosen if family(n) == fam]
         if names:
             groups.append((fam, names))
-    fig, axes = plt.subplots(len(groups), 1, figsize=(7.5, 2.9 * len(groups) + 0.6), dpi=110,
-                             sharex=True, squeeze=False)
+    fig = Figure(figsize=(8.0, 3.0 * len(groups) + 1.0), dpi=110, layout="constrained")
+    FigureCanvasAgg(fig)
+    axes = fig.subplots(len(groups), 1, sharex=True, squeeze=False)
     changes = np.flatnonzero(np.diff(region) != 0)
     for ax, (fam, names) in zip(axes[:, 0], groups):
         scale, unit = (100.0, "%") if fam == "strain" else (1.0, UNITS[fam])
         for n in names:
-            ax.plot(dist, comps[n] * scale, label=n.replace("_", " "))
+            ax.plot(dist, comps[n] * scale, label=describe(n).words)
         ax.axhline(0.0, color="0.3", lw=0.7)
         for k in changes:
             ax.axvline(0.5 * (dist[k] + dist[k + 1]), color="0.5", lw=0.8, ls="--")
-        ax.set_ylabel(f"{fam} ({unit})")
+        ax.set_ylabel(f"{fam} ({unit})", fontsize=10.5)
+        ax.tick_params(labelsize=10)
         ax.grid(alpha=0.3)
-        ax.legend(fontsize=8, ncol=min(len(names), 4))
+        ax.legend(fontsize=8.5, ncol=min(len(names), 3))
     top = axes[0, 0]
     # region names above the top panel
     edges = np.concatenate([[0], changes + 1, [len(dist)]])
@@ -151,13 +155,16 @@ def plot_cut(path: Path, title: str, dist, region, labels, comps: dict, chosen) 
         mid = 0.5 * (dist[i0] + dist[i1 - 1])
         text = labels[r].split(": ", 1)[-1] if r >= 0 else "outside"
         top.annotate(text, (mid, 1.01 + 0.07 * (j % 2)), xycoords=("data", "axes fraction"),
-                     ha="center", va="bottom", fontsize=7, color="0.3")
-    axes[-1, 0].set_xlabel("distance along the cut (nm)")
+                     ha="center", va="bottom", fontsize=8.5, color="0.3")
+    axes[-1, 0].set_xlabel("distance along the cut (nm)", fontsize=10.5)
     fig.suptitle(title + "\nregions along the cut above the first panel; dashed lines: "
-                 "boundaries", fontsize=9)
-    fig.tight_layout()
-    fig.savefig(path)
-    plt.close(fig)
+                 "boundaries", fontsize=10.5)
+    return fig
+
+
+def plot_cut(path: Path, title: str, dist, region, labels, comps: dict, chosen) -> None:
+    """Plot the chosen components along the cut, one panel per unit, layer boundaries marked."""
+    cut_figure(title, dist, region, labels, comps, chosen).savefig(path)
 
 
 def derive(res) -> Derived:

@@ -87,7 +87,12 @@ from mesastrain.derived.device_physics import (
 )
 from mesastrain.errors import MesastrainError
 from mesastrain.physics.crystal import format_indices
-from mesastrain.physics.piezo import pi_longitudinal, pi_transverse
+from mesastrain.physics.piezo import (
+    LINEAR_LIMIT_PERCENT,
+    LINEAR_LIMIT_REASON,
+    pi_longitudinal,
+    pi_transverse,
+)
 from mesastrain.physics.raman import BiaxialLine, stress_factor
 from mesastrain.run.result import Derived
 from mesastrain.units import safe_name
@@ -109,10 +114,9 @@ _UNITS = {"band": "eV", "raman_shift": "cm^-1", "piezo": "percent (100 d rho/rho
           "pi": "1e-11/Pa", "stress": "MPa", "stress_per_shift": "MPa per cm^-1"}
 
 
-#: |d rho / rho| (percent) above which the linear piezoresistance model is flagged: the
-#: coefficients are small-stress slopes (Smith 1954 measured at tens of MPa); at a few hundred
-#: MPa the response of Si becomes visibly non-linear (common practice).
-PIEZO_WARN_PERCENT = 20.0
+#: |100 d rho/rho| (%) beyond which the linear piezoresistance model is flagged
+#: (:data:`mesastrain.physics.piezo.LINEAR_LIMIT_PERCENT`, with its sources).
+PIEZO_WARN_PERCENT = LINEAR_LIMIT_PERCENT
 
 
 # --------------------------------------------------------------------------
@@ -138,7 +142,8 @@ def _factor(kind: str, params, stiffness, R, geometry: dict) -> float | None:
 
 
 def _region_entry(rp: RegionPlan, plan: Plan, layer_model) -> dict:
-    entry = {"index": rp.index, "label": rp.label, "not_computed": dict(rp.missing)}
+    entry = {"index": rp.index, "name": layer_model.name, "label": rp.label,
+             "not_computed": dict(rp.missing)}
     if rp.bands is not None:
         entry["bands"] = {"parameters": rp.bands.name, "x": rp.bands.x,
                           "structure": rp.bands.structure, "scale": rp.bands.scale,
@@ -190,7 +195,7 @@ def _sources(plan: Plan) -> list[str]:
     return seen
 
 
-def _layer_figures(values: dict, region, volume, plan: Plan) -> list[dict]:
+def _layer_figures(values: dict, region, volume, plan: Plan, names: dict) -> list[dict]:
     """Volume means and ranges of each device field per region (element averages)."""
     out = []
     for rp in plan.regions:
@@ -207,13 +212,18 @@ def _layer_figures(values: dict, region, volume, plan: Plan) -> list[dict]:
                 continue
             figs[name] = {"mean": float(np.dot(vol, x) / vol.sum()),
                           "min": float(x.min()), "max": float(x.max())}
+            if name.startswith("piezo_"):
+                beyond = [k for k in ("mean", "min", "max")
+                          if abs(figs[name][k]) > PIEZO_WARN_PERCENT]
+                if beyond:      # these entries are outside the model: said so, not shown
+                    figs[name]["out_of_range"] = beyond
         if "band_conduction_valleys" in values:
             masks = values["band_conduction_valleys"][m]
             if np.any(masks > 0):       # the valley set holding the largest volume
                 kinds, where = np.unique(masks, return_inverse=True)
                 share = np.bincount(where, weights=vol)
                 figs["conduction_valleys"] = valley_names(int(kinds[np.argmax(share)]))
-        out.append({"index": rp.index, "label": rp.label, **figs})
+        out.append({"index": rp.index, "name": names.get(rp.index), "label": rp.label, **figs})
     return out
 
 
@@ -264,6 +274,10 @@ def _probe_entries(plan: Plan, values: dict, probes: list) -> dict:
                                 transverse=float(values[f"piezo_{ch.field}_trans"][k]),
                                 stress_along=float(ch.direction @ stress @ ch.direction),
                                 stress_across=float(ch.across @ stress @ ch.across))
+                    big = [w for w in ("longitudinal", "transverse")
+                           if abs(item[w]) > PIEZO_WARN_PERCENT]
+                    if big:
+                        item["out_of_range"] = big
                 per[ch.name] = item
             piezo[k] = per
     out = {}
@@ -277,7 +291,7 @@ def _probe_entries(plan: Plan, values: dict, probes: list) -> dict:
     return out
 
 
-def _warnings(plan: Plan, values: dict, region) -> list[str]:
+def _warnings(plan: Plan, values: dict, region, names: dict) -> list[str]:
     """One line per channel whose change leaves the small-stress range of the coefficients.
 
     The 99th percentile of |d rho/rho| over each region's elements is used, so that a
@@ -299,9 +313,9 @@ def _warnings(plan: Plan, values: dict, region) -> list[str]:
                                        values[f"piezo_{ch.field}_trans"][m]]))
             level = float(np.percentile(v, 99.0))
             if level > PIEZO_WARN_PERCENT:
-                big.append(f"{level:.0f} % in region {rp.index} ({rp.label})")
+                big.append(f"{level:.0f} % in {names.get(rp.index, rp.index)} ({rp.label})")
         if big:
-            out.append(f"channel {ch.name}: |d rho/rho| reaches {', '.join(big)} (99th "
+            out.append(f"channel {ch.name}: |Δρ/ρ| reaches {', '.join(big)} (99th "
                        f"percentile of the elements); the linear piezoresistance coefficients "
                        f"are small-stress values and overstate changes this large")
     return out
@@ -327,6 +341,7 @@ def derive(res):
     if not plan.any:
         return Derived()
     region = res.mesh.layer
+    names = {lm.index: lm.name for lm in res.layers}
     values = evaluate_cells(plan, region, res.fields.cell_strain, res.fields.cell_stress)
     cell_data = {k: v for k, v in values.items() if not k.startswith("_")}
     summary = {"device": {
@@ -357,8 +372,9 @@ def derive(res):
                       "direction_sample": ch.direction, "default": ch.default}
                      for ch in plan.channels],
         "regions": [_region_entry(rp, plan, lm) for rp, lm in zip(plan.regions, res.layers)],
-        "layer_figures": _layer_figures(values, region, res.fields.cell_volume, plan),
+        "layer_figures": _layer_figures(values, region, res.fields.cell_volume, plan, names),
         "fields": list(cell_data),
+        "piezo_linear_limit": {"percent": PIEZO_WARN_PERCENT, "reason": LINEAR_LIMIT_REASON},
         "sources": _sources(plan),
     }}
     probe_entries = {}
@@ -370,5 +386,5 @@ def derive(res):
     files = {f"cut_{safe_name(cut.name)}_device.csv": cut_writer(res, plan, cut)
              for cut in getattr(case, "cuts", ())}
     return Derived(summary=summary, probe_entries=probe_entries, cell_data=cell_data,
-                   warnings=_warnings(plan, values, region), files=files,
+                   warnings=_warnings(plan, values, region, names), files=files,
                    section_maps=section_maps(case, plan))

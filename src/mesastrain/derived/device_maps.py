@@ -13,8 +13,13 @@ import numpy as np
 
 from mesastrain.derived.device_physics import Plan, direction_label, evaluate, field_names
 from mesastrain.derived.sampling import sample_inside
+from mesastrain.physics.piezo import LINEAR_LIMIT_PERCENT
+from mesastrain.physics.quantities import pdp_words
 
-__all__ = ["cut_writer", "map_fields", "section_maps"]
+__all__ = ["PIEZO_LINEAR_LIMIT", "cut_writer", "map_fields", "map_words", "section_maps"]
+
+
+PIEZO_LINEAR_LIMIT = LINEAR_LIMIT_PERCENT
 
 
 # --------------------------------------------------------------------------
@@ -76,9 +81,11 @@ def map_fields(plan: Plan) -> dict[str, str]:
     maps = {}
     with_raman = [rp for rp in plan.regions if rp.raman is not None]
     if plan.raman and with_raman:
-        sets = ", ".join(sorted({f"{rp.label} {rp.raman.pdp_set}" for rp in with_raman}))
+        sets = "; ".join(sorted({f"{rp.label}: {pdp_words(rp.raman.pdp_set)}"
+                                 for rp in with_raman}))
         maps["raman_shift"] = (f"optical-phonon line shift seen in backscattering (Raman-allowed "
-                               f"modes, intensity-weighted; {sets}); grey: no Raman data")
+                               f"modes, intensity-weighted; phonon deformation potentials of "
+                               f"{sets}); grey: no Raman data")
     if plan.bands and any(rp.bands is not None for rp in plan.regions):
         maps["band_gap_shift"] = ("strained minus unstrained gap (lowest modelled conduction "
                                   "valley to top valence band); grey: no deformation potentials")
@@ -91,8 +98,8 @@ def map_fields(plan: Plan) -> dict[str, str]:
             maps[f"piezo_{ch.field}_long"] = (
                 f"channel {ch.name}: {ch.carrier}-type, current along sample x, y = "
                 f"{ch.direction[0]:.3g}, {ch.direction[1]:.3g}, crystal direction {crystal} in "
-                f"{rp.label}; 100 d rho/rho, Smith's (1954) linear coefficients; grey: no "
-                f"coefficients")
+                f"{rp.label}; linear coefficients of Smith (1954), valid for |Δρ/ρ| up to about "
+                f"{PIEZO_LINEAR_LIMIT:g} %; grey: no coefficients")
     return maps
 
 
@@ -118,6 +125,21 @@ def section_maps(case, plan: Plan) -> dict:
     etch = case.pattern.etch_depth or 0.0
     depth = max(3.0 * case.stack_thickness, 1.5 * etch - case.stack_thickness)
     return {f"device_map_{q}.png": {"quantity": q, "component": None, "note": note,
-                                    "depth": depth}
+                                    "depth": depth, "words": map_words(plan).get(q),
+                                    "valid": (PIEZO_LINEAR_LIMIT if q.startswith("piezo_")
+                                              else None)}
             for q, note in map_fields(plan).items()}
+
+
+def map_words(plan: Plan) -> dict[str, str]:
+    """Caption words of the channel maps: carrier and crystal direction, not the field name."""
+    out = {}
+    for ch in plan.channels:
+        have = [rp for rp in plan.regions if rp.piezo.get(ch.field) is not None]
+        if have:
+            crystal = direction_label(have[0].R.T @ ch.direction)
+            out[f"piezo_{ch.field}_long"] = (f"resistivity change Δρ/ρ along the current, "
+                                             f"{ch.carrier}-type channel {ch.name} along "
+                                             f"{crystal}")
+    return out
 

@@ -28,6 +28,7 @@ from mesastrain.fem.solve import solve_model
 from mesastrain.model.dislocation_plan import case_families, families_of
 from mesastrain.model.volterra import lines_eigenstrain
 from mesastrain.physics.dislocations import anisotropic_fields, array_fields
+from mesastrain.physics.quantities import nice_limit
 from mesastrain.run.result import Derived
 from mesastrain.units import safe_name
 
@@ -292,12 +293,14 @@ def _cut_file(res, cut, fams, fe_cells) -> dict:
 def _plot_cut(path, title, dist, total, fe, inf, chosen, marks) -> None:
     """Total stress, FE dislocation contribution and closed-form overlay along a cut."""
     import matplotlib
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
+    matplotlib.use("Agg", force=False)
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.figure import Figure
 
     idx = {n: (i, j) for n, i, j in _PAIRS}
-    fig, axes = plt.subplots(len(chosen), 1, figsize=(7.5, 2.5 * len(chosen) + 0.8), dpi=110,
-                             sharex=True, squeeze=False)
+    fig = Figure(figsize=(8.0, 2.6 * len(chosen) + 1.0), dpi=110)
+    FigureCanvasAgg(fig)
+    axes = fig.subplots(len(chosen), 1, sharex=True, squeeze=False)
     for ax, name in zip(axes[:, 0], chosen):
         i, j = idx[name]
         ax.plot(dist, total[:, i, j], color="0.1", lw=1.4, label="total (finite elements)")
@@ -308,16 +311,17 @@ def _plot_cut(path, title, dist, total, fe, inf, chosen, marks) -> None:
         for m in marks:
             ax.axvline(m, color="0.6", lw=0.8, ls=":")
         ax.axhline(0.0, color="0.3", lw=0.6)
-        ax.set_ylabel(f"stress {name} (MPa)")
+        ax.set_ylabel(f"stress σ{name} (MPa)", fontsize=10.5)
+        ax.tick_params(labelsize=10)
         ax.grid(alpha=0.3)
     handles, labels = axes[0, 0].get_legend_handles_labels()
-    axes[-1, 0].set_xlabel("distance along the cut (nm); dotted: above/below a dislocation line")
-    fig.suptitle(title + "; sample frame, element averages", fontsize=9)
-    fig.tight_layout(rect=(0, 0, 1, 1 - 0.6 / fig.get_figheight()))
-    fig.legend(handles, labels, loc="upper center", ncol=2, fontsize=7, frameon=False,
+    axes[-1, 0].set_xlabel("distance along the cut (nm); dotted: above/below a dislocation line",
+                           fontsize=10.5)
+    fig.suptitle(title + "; sample frame, element averages", fontsize=10.5)
+    fig.tight_layout(rect=(0, 0, 1, 1 - 0.62 / fig.get_figheight()))
+    fig.legend(handles, labels, loc="upper center", ncol=2, fontsize=8.5, frameon=False,
                bbox_to_anchor=(0.5, 1 - 0.3 / fig.get_figheight()))
     fig.savefig(path)
-    plt.close(fig)
 
 
 def _section_map(path, res, fams, lo, hi, fe_cells, over_cells) -> None:
@@ -329,9 +333,11 @@ def _section_map(path, res, fams, lo, hi, fe_cells, over_cells) -> None:
     percentile of the FE values so that the line cores do not set it).
     """
     import matplotlib
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
+    matplotlib.use("Agg", force=False)
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
     from matplotlib.collections import PolyCollection
+    from matplotlib.figure import Figure
+    from matplotlib.ticker import MaxNLocator
 
     fam = fams[0]
     e = fam.across
@@ -360,16 +366,18 @@ def _section_map(path, res, fams, lo, hi, fe_cells, over_cells) -> None:
     span = (x_lo[at].min(), x_hi[at].max()) if np.any(at) else (x_lo.min(), x_hi.max())
     pad = 0.2 * (span[1] - span[0])
     xlim = (max(x_lo.min(), span[0] - pad), min(x_hi.max(), span[1] + pad))
-    comps = [(f"{'xyz'[a_across] * 2} (across the lines)",
+    comps = [(f"σ{'xyz'[a_across] * 2} (across the lines)",
               lambda t: np.einsum("i,nij,j->n", e, t, e)),
-             ("zz", lambda t: t[:, 2, 2])]
-    fig, axes = plt.subplots(2, 2, figsize=(11, 6.2), dpi=110, sharex=True, sharey=True)
+             ("σzz", lambda t: t[:, 2, 2])]
+    fig = Figure(figsize=(11, 6.6), dpi=110, layout="constrained")
+    FigureCanvasAgg(fig)
+    axes = fig.subplots(2, 2, sharex=True, sharey=True)
     for row, (name, pick) in enumerate(comps):
         v_fe = pick(fe_cells[cut])
         v_ov = pick(over_cells[cut])
-        lim = float(np.nanpercentile(np.abs(v_fe), 98)) or 1.0
-        panels = ((v_fe, "dislocations, finite elements (free surfaces, layers)"),
-                  (v_ov, "dislocations, infinite medium (closed form)"))
+        lim = nice_limit(float(np.nanpercentile(np.abs(v_fe), 98)))
+        panels = ((v_fe, "finite elements (free surfaces, layers)"),
+                  (v_ov, "infinite medium (closed form)"))
         for col, (vals, what) in enumerate(panels):
             ax = axes[row, col]
             pc = PolyCollection(polys, array=np.ma.masked_invalid(vals), cmap="RdBu_r",
@@ -384,17 +392,20 @@ def _section_map(path, res, fams, lo, hi, fe_cells, over_cells) -> None:
                             ls="none", marker="^", color="k", ms=4)
             ax.set_xlim(*xlim)
             ax.set_ylim(zmin, z_top)
-            ax.set_title(f"stress {name}: {what}", fontsize=8)
+            ax.set_title(f"stress {name}, {what}", fontsize=10)
+            ax.tick_params(labelsize=9.5)
             if col == 0:
-                ax.set_ylabel("z (nm)")
+                ax.set_ylabel("z (nm)", fontsize=10.5)
             if row == 1:
-                ax.set_xlabel("position across the lines (nm)")
-            cb = fig.colorbar(pc, ax=ax, shrink=0.9)
-            cb.set_label("MPa", fontsize=8)
+                ax.set_xlabel("position across the lines (nm)", fontsize=10.5)
+            cb = fig.colorbar(pc, ax=ax, shrink=0.9, extend="both")
+            cb.locator = MaxNLocator(nbins=6, steps=[1, 2, 2.5, 5, 10], symmetric=True)
+            cb.update_ticks()
+            cb.ax.tick_params(labelsize=9.5)
+            cb.set_label("MPa", fontsize=10)
     axis_name = "xyz"[a_line]
-    fig.suptitle(f"All dislocations: section {axis_name} = {x0:.4g} nm, normal to the lines "
-                 f"of {fam.name}; triangles: lines; dashed: interfaces; colour scale clipped at "
-                 "the 98th percentile", fontsize=9)
-    fig.tight_layout()
+    fig.suptitle(f"Stress of all dislocations on the section {axis_name} = {x0:.4g} nm, normal "
+                 f"to the lines of {fam.name}\ntriangles: lines; dashed: interfaces; colour "
+                 "limits rounded up from the 98th percentile of the finite-element values",
+                 fontsize=10.5)
     fig.savefig(path)
-    plt.close(fig)

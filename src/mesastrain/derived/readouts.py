@@ -117,7 +117,7 @@ def derive(res) -> Derived:
                 entry["centre_over_blanket"] = {
                     ax: (float(c[i, i] / b_sig[i, i]) if abs(b_sig[i, i]) > 1e-9 else None)
                     for ax, i in (("xx", 0), ("yy", 1))}
-                if floor is not None and lm.z_top > floor:
+                if floor is not None and lm.z_top > floor and not lm.liner:
                     rl, rows = edge_relaxation(res, lm, zmid, c)
                     entry["relaxation"] = rl
                     relax_rows.extend(rows)
@@ -155,16 +155,20 @@ def derive(res) -> Derived:
         "standoff": standoff,
         "standoff_rule": ("[readouts] standoff" if case.readouts.standoff
                           else "half the thinnest layer (default)"),
-        "relaxation_definition": (f"distance from the sidewall inside which the stress normal "
-                                  f"to that sidewall is below {RECOVERY:.0%} of its value at the "
-                                  f"feature centre, at mid-height of the layer"),
-        "traction_definition": ("peel = sigma_zz on the interface plane (positive opens it); "
-                                "shear = traction component pointing toward the sidewall; "
-                                "the mean of the two one-sided tractions sigma . e_z "
-                                "recovered by superconvergent patch recovery in each region "
-                                "(Zienkiewicz & Zhu 1992), at element-boundary points along "
-                                "the interface; traction_jump_max = largest |t_above - "
-                                "t_below| along the profile (zero for the exact solution)"),
+        "relaxation_definition": (f"distance from the sidewall beyond which the stress normal "
+                                  f"to that sidewall stays within {1 - RECOVERY:.0%} of its "
+                                  f"value at the feature centre (above or below), at mid-height "
+                                  f"of the layer; overshoot: the largest stress over the centre "
+                                  f"value where it exceeds {2 - RECOVERY:.0%}, and its distance "
+                                  f"from the sidewall"),
+        "traction_definition": ("peel: the normal stress σzz on the interface plane "
+                                "(positive opens it); shear: the traction component pointing "
+                                "toward the sidewall; both the mean of the tractions on the two "
+                                "sides of the interface, recovered by superconvergent patch "
+                                "recovery in each region (Zienkiewicz & Zhu 1992), at "
+                                "element-boundary points along the interface; the largest "
+                                "difference between the two sides is zero "
+                                "for the exact solution"),
         "recovery": ("stand-off and interface values: superconvergent patch recovery "
                      "(Zienkiewicz & Zhu, Int. J. Numer. Meth. Eng. 33, 1331 (1992)) per "
                      "region, patch polynomials blended with the vertex shape functions; "
@@ -232,7 +236,7 @@ def convergence_figures(res) -> dict:
                 out[f"interface z={z:g} {side}: peak shear"] = prof[side]["shear_peak"]
     floor = etch_floor(res)
     for lm in res.layers[1:]:
-        if lm.z_top <= floor:
+        if lm.z_top <= floor or lm.liner:
             continue
         zmid = 0.5 * (max(lm.z_bottom, floor) + lm.z_top)
         _, c_sig, _, c_reg = sample_inside(res, [[0.0, 0.0, zmid]])

@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from mesastrain.model.regions import stack_of
 from mesastrain.physics.crystal import plane_normal
 from mesastrain.physics.tilt import (
     ARCSEC_PER_RAD,
@@ -51,7 +52,7 @@ def layer_tilts(res: Result) -> list[dict]:
     blanket = not case.pattern.patterned
     fl = res.fields
     out = []
-    for lm in res.layers[1:]:
+    for lm in stack_of(res.layers)[1:]:
         same = lm.material.system == sub.material.system
         nominal = nominal_sub if same else None
         H, _ = blanket_gradient(lm.stiffness_sample, lm.eigenstrain_sample)

@@ -1,6 +1,6 @@
 """Tractions on the interfaces that reach the sidewall: peel and shear profiles, force balance.
 
-Peel is sigma_zz on the interface plane (positive opens it); shear is the
+Peel is σzz on the interface plane (positive opens it); shear is the
 traction component pointing toward the sidewall. A free feature carries no
 net force across an interface plane, so the balance measures the
 discretisation error. Plotted to ``interface_tractions.png``.
@@ -28,6 +28,7 @@ __all__ = [
     "interface_balance",
     "interface_stress",
     "plot_tractions",
+    "tractions_figure",
     "traction_profiles",
 ]
 
@@ -224,15 +225,18 @@ def interface_balance(res, z: float) -> dict:
 # --------------------------------------------------------------------------
 # plot (matplotlib, Agg)
 # --------------------------------------------------------------------------
-def plot_tractions(path: Path, rows: list, layers, standoff: float) -> None:
-    """Peel and shear traction along each interface near the sidewall (MPa)."""
+def tractions_figure(rows: list, layers, standoff: float):
+    """The figure of :func:`plot_tractions` (not saved; an Agg canvas for measuring text)."""
     import matplotlib
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
+    matplotlib.use("Agg", force=False)
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.figure import Figure
 
     ks = sorted({r[0] for r in rows})
     stack = layers[-1].z_top
-    fig, axes = plt.subplots(1, 2, figsize=(10, 4.0), dpi=110, sharex=True)
+    fig = Figure(figsize=(10, 4.6), dpi=110, layout="constrained")
+    FigureCanvasAgg(fig)
+    axes = fig.subplots(1, 2, sharex=True)
     smax = max(r[3] for r in rows)
     xmax = min(smax, 6.0 * stack)
     for i, k in enumerate(ks):
@@ -241,23 +245,26 @@ def plot_tractions(path: Path, rows: list, layers, standoff: float) -> None:
             if not sel:
                 continue
             a = np.array([r[3:6] for r in sel])
-            lab = f"{layers[k + 1].name}/{layers[k].name} (z = {sel[0][1]:g} nm), {side}"
+            lab = f"{layers[k + 1].name} on {layers[k].name} (z = {sel[0][1]:g} nm), {side}"
             axes[0].plot(a[:, 0], a[:, 1], style, color=f"C{i}", marker=".", ms=3, label=lab)
             axes[1].plot(a[:, 0], a[:, 2], style, color=f"C{i}", marker=".", ms=3, label=lab)
-    for ax, what in zip(axes, ("peel traction sigma_zz (MPa)",
+    for ax, what in zip(axes, ("peel traction σzz (MPa)",
                                "shear traction toward the sidewall (MPa)")):
         ax.axhline(0.0, color="0.3", lw=0.8)
-        ax.axvline(standoff, color="0.5", lw=0.8, ls="--")
+        ax.axvline(standoff, color="0.5", lw=0.8, ls="--", label="stand-off distance")
         ax.set_xlim(0, xmax)
-        ax.set_xlabel("distance from the sidewall (nm)")
-        ax.set_ylabel(what)
+        ax.set_xlabel("distance from the sidewall (nm)", fontsize=10.5)
+        ax.set_ylabel(what, fontsize=10.5)
+        ax.tick_params(labelsize=10)
         ax.grid(alpha=0.3)
-    axes[0].legend(fontsize=7)
-    axes[0].text(standoff, axes[0].get_ylim()[1], " stand-off", fontsize=7, va="top",
-                 color="0.4")
-    fig.suptitle("Interface tractions near the sidewall; points at element centres. The traction "
-                 "of a sharp edge is singular: values next to the sidewall grow as the mesh is "
-                 "refined", fontsize=8.5)
-    fig.tight_layout()
-    fig.savefig(path)
-    plt.close(fig)
+    handles, labels = axes[0].get_legend_handles_labels()
+    fig.legend(handles, labels, fontsize=9, loc="outside lower center", ncol=2)
+    fig.suptitle("Interface tractions near the sidewall (points at element centres)\nsingular "
+                 "at a sharp edge: values next to the sidewall grow as the mesh is refined",
+                 fontsize=10.5)
+    return fig
+
+
+def plot_tractions(path: Path, rows: list, layers, standoff: float) -> None:
+    """Peel and shear traction along each interface near the sidewall (MPa)."""
+    tractions_figure(rows, layers, standoff).savefig(path)

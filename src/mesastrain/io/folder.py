@@ -43,6 +43,7 @@ def layer_summary(lm: LayerModel) -> dict:
         "stiffness_sample": lm.stiffness_sample,
         "sample_axes_in_crystal": lm.frame.R,
         "source": list(mat.sources),
+        "liner": getattr(lm, "liner", 0),
     }
 
 
@@ -86,7 +87,7 @@ def summary_of(res: Result) -> dict:
     """The content of ``summary.json``."""
     case = res.case
     nn = res.mesh.nnodes
-    return {
+    return _mark_singular({
         "program": {"name": "mesastrain", "version": __version__},
         "title": case.title,
         "units": {"length": "nm", "stress": "MPa", "strain": "1", "stiffness": "GPa",
@@ -118,7 +119,7 @@ def summary_of(res: Result) -> dict:
         "warnings": list(res.warnings),
         "caution": CAUTION,
         **_derived_summary(res),
-    }
+    })
 
 
 def _derived_summary(res: Result) -> dict:
@@ -126,6 +127,25 @@ def _derived_summary(res: Result) -> dict:
     for d in res.derived:
         out.update(d.summary)
     return out
+
+
+def _mark_singular(summary: dict) -> dict:
+    """Flag each region's largest von Mises stress when it sits at a singular corner or edge.
+
+    The readouts (:mod:`mesastrain.derived.readouts`) find the same element peak and say
+    whether it lies within two elements of a singular place; the flag follows it to
+    ``layer_figures`` (``max_von_mises_singular``) for the terminal table and the report.
+    """
+    peaks = {e["index"]: (e.get("peaks") or {}).get("von_mises") or {}
+             for e in (summary.get("readouts") or {}).get("layers", [])}
+    for lf in summary.get("layer_figures", []):
+        pk = peaks.get(lf["index"], {})
+        if pk and abs(pk.get("value", float("nan")) - lf["max_von_mises"]) <= (
+                1e-6 * max(1.0, abs(lf["max_von_mises"]))):
+            lf["max_von_mises_singular"] = bool(pk.get("singular"))
+            if pk.get("nearest_feature"):
+                lf["max_von_mises_near"] = pk["nearest_feature"]
+    return summary
 
 
 def _probes_with_derived(res: Result) -> list:
@@ -247,7 +267,8 @@ def draw_pictures(res: Result, folder: Path) -> list[str]:
             comp = kw.get("component")
             name = f"{q}_{comp.lower()}" if comp else q
             draw_map(src, folder / png, name, "section", position=kw.get("y"),
-                     depth=kw.get("depth"), note=kw.get("note"))
+                     depth=kw.get("depth"), note=kw.get("note"), words=kw.get("words"),
+                     valid=kw.get("valid"))
             written.append(png)
     return written
 

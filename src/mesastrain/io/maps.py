@@ -20,47 +20,18 @@ import numpy as np
 
 from mesastrain.fem.fields import VTK_TENSOR_ORDER, from_vtk6, hydrostatic, to_vtk6, von_mises
 from mesastrain.io.slices import Section, cut
+from mesastrain.physics.quantities import describe, nice_limit
 
-__all__ = ["FieldSource", "draw_map", "nice_limit", "quantity_label", "standard_maps"]
-
-_GREEK = {"stress": "σ", "strain": "ε"}
-#: Quantities whose colour scale is centred on zero.
-SIGNED = ("stress", "strain", "total_strain", "stress_crystal", "strain_crystal", "hydrostatic",
-          "displacement", "raman_shift", "band_gap_shift")
-SIGNED_PREFIXES = ("band_shift_", "piezo_")
-_NAMED = {"von_mises": ("von Mises stress", "MPa"), "hydrostatic": ("hydrostatic stress", "MPa"),
-          "principal_max": ("largest principal stress", "MPa"),
-          "principal_min": ("smallest principal stress", "MPa"),
-          "raman_shift": ("Raman shift", "cm⁻¹"), "band_gap_shift": ("band-gap change", "eV")}
+__all__ = ["FieldSource", "build_map", "draw_map", "nice_limit", "quantity_label", "standard_maps"]
 
 
-def quantity_label(name: str) -> str:
-    """Words and unit of a map quantity, e.g. ``stress σxx (MPa)``."""
-    parts = name.split("_")
-    if parts[0] in _GREEK and len(parts) == 2 and len(parts[1]) == 2:
-        unit = " (MPa)" if parts[0] == "stress" else ""
-        return f"{parts[0]} {_GREEK[parts[0]]}{parts[1]}{unit}"
-    if name.startswith("displacement_"):
-        return f"displacement u{name[-1]} (nm)"
-    if name in _NAMED:
-        words, unit = _NAMED[name]
-        return f"{words} ({unit})"
-    if name.startswith("piezo_") and name.endswith("_long"):
-        return f"resistivity change, channel {name[6:-5]} (%)"
-    if name.startswith("band_shift_"):
-        return f"band-edge shift {name[11:].replace('_', ' ')} (eV)"
-    return name.replace("_", " ")
 
-
-def nice_limit(v: float) -> float:
-    """The smallest round number (1, 1.5, 2, 2.5, 3, 4, 5, 6, 8 x 10^k) not below ``v`` > 0."""
-    if not np.isfinite(v) or v <= 0:
-        return 1.0
-    mag = 10.0 ** np.floor(np.log10(v))
-    for m in (1.0, 1.5, 2.0, 2.5, 3.0, 4.0, 5.0, 6.0, 8.0, 10.0):
-        if m * mag >= v * (1 - 1e-9):
-            return float(m * mag)
-    return float(10 * mag)
+def quantity_label(name: str, words: str | None = None) -> str:
+    """Words and unit of a map quantity, e.g. ``stress σxx (MPa)`` (:mod:`mesastrain.physics.quantities`)."""
+    q = describe(name)
+    if words:
+        return f"{words} ({q.unit})" if q.unit else words
+    return q.title
 
 
 class FieldSource:
@@ -156,7 +127,7 @@ class FieldSource:
         return sec._cache[ck]
 
     def values(self, sec: Section, name: str) -> tuple[np.ndarray, str, bool]:
-        """Values of a quantity at a section's points, its label and whether it is signed.
+        """Values of a quantity at a section's points (display unit), its title and sign.
 
         Parameters
         ----------
@@ -165,26 +136,36 @@ class FieldSource:
             ``stress_xx`` ... ``strain_xy``, ``displacement_x|y|z``,
             ``von_mises``, ``hydrostatic``, ``principal_max|min`` or the name
             of any element quantity in ``cell_data``.
+
+        Returns
+        -------
+        values : ndarray (npts,)
+            In the unit of :func:`mesastrain.physics.quantities.describe`
+            (band energies in meV ...).
+        title : str
+            Words and unit.
+        signed : bool
         """
+        q = describe(name)
+        return q.scale * self._raw(sec, name), q.title, q.signed
+
+    def _raw(self, sec: Section, name: str) -> np.ndarray:
         parts = name.split("_")
-        label = quantity_label(name)
         if parts[0] in ("stress", "strain") and len(parts) == 2 and len(parts[1]) == 2:
             k = VTK_TENSOR_ORDER.index(parts[1].upper())
-            return to_vtk6(self._cell(sec, parts[0]))[:, k], label, True
+            return to_vtk6(self._cell(sec, parts[0]))[:, k]
         if name.startswith("displacement_"):
             u = sec.point_values(np.asarray(self.point_data["displacement"]))
-            return u[:, "xyz".index(name[-1])], label, True
+            return u[:, "xyz".index(name[-1])]
         if name in ("von_mises", "hydrostatic", "principal_max", "principal_min"):
             sig = self._cell(sec, "stress")
             if name == "von_mises":
-                return von_mises(sig), label, False
+                return von_mises(sig)
             if name == "hydrostatic":
-                return hydrostatic(sig), label, True
+                return hydrostatic(sig)
             ev = np.linalg.eigvalsh(sig)
-            return (ev[:, -1] if name == "principal_max" else ev[:, 0]), label, True
-        v = self._cell(sec, name)
-        signed = name in SIGNED or name.startswith(SIGNED_PREFIXES)
-        return v, label, signed
+            return ev[:, -1] if name == "principal_max" else ev[:, 0]
+        return self._cell(sec, name)
 
     def view(self, view: str, position: float | None = None,
              depth: float | None = None) -> tuple[Section, tuple, tuple, str, tuple]:
@@ -237,10 +218,126 @@ def _inside(sec: Section, xl, yl) -> np.ndarray:
             & (hi[:, 1] >= yl[0] - my) & (lo[:, 1] <= yl[1] + my))
 
 
+def build_map(src: FieldSource, name: str, view: str = "section",
+              position: float | None = None, depth: float | None = None,
+              percentile: float = 99.0, note: str | None = None,
+              title: str | None = None, words: str | None = None,
+              valid: float | None = None):
+    """The figure of one quantity on a standard view (not saved): see :func:`draw_map`.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        With an Agg canvas, so that text extents can be measured before saving.
+    """
+    import matplotlib
+
+    matplotlib.use("Agg", force=False)
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.collections import LineCollection, PolyCollection
+    from matplotlib.figure import Figure
+    from matplotlib.ticker import MaxNLocator
+
+    sec, xl, yl, where_text, (xlab, ylab) = src.view(view, position, depth)
+    if len(sec.triangles) == 0:
+        raise ValueError(f"nothing of the body lies on the {where_text}")
+    vals, label, signed = src.values(sec, name)
+    if words:
+        label = quantity_label(name, words)
+    tri = sec.triangles[_inside(sec, xl, yl)]
+    # colour limits from the grown layers' points in the window
+    pts = np.unique(tri)
+    sel = vals[pts][sec.region[pts] > 0]
+    sel = sel[np.isfinite(sel)]
+    if sel.size == 0:       # nothing (or nothing defined) in the layers: the whole window
+        sel = vals[pts][np.isfinite(vals[pts])]
+    if signed:
+        vmax = nice_limit(float(np.percentile(np.abs(sel), percentile)) if sel.size else 1.0)
+        if valid is not None:       # the model holds up to ±valid: the colours stop there
+            vmax = min(vmax, nice_limit(valid))
+        clim = (-vmax, vmax)
+    else:
+        hi = nice_limit(float(np.percentile(sel, percentile)) if sel.size else 1.0)
+        lo = float(np.percentile(sel, 100 - percentile)) if sel.size else 0.0
+        clim = (0.0 if lo >= 0 else -nice_limit(-lo), hi)
+    finite = np.all(np.isfinite(vals[tri]), axis=1)
+    data = vals[np.unique(tri[finite])]
+    above = bool(data.size and np.nanmax(data) > clim[1])
+    below = bool(data.size and np.nanmin(data) < clim[0])
+    extend = {(True, True): "both", (True, False): "max", (False, True): "min",
+              (False, False): "neither"}[(above, below)]
+    aspect = (yl[1] - yl[0]) / max(xl[1] - xl[0], 1e-12)
+    axw = 6.2 if aspect < 0.8 else 5.0
+    axh = min(axw * aspect, 5.5)
+    axw = axh / aspect if axw * aspect > axh else axw
+    to_scale = axh >= 1.2       # a thin slab seen from above: stretched, and said so
+    axh = max(axh, 1.2)
+    caption = title or f"{label}, {where_text}" + ("" if to_scale else " (not to scale)")
+    where = "in the layers" if np.any(np.isfinite(vals[pts][sec.region[pts] > 0])) else \
+        "in the picture"
+    clip = ("Colour scale centred on zero, limits rounded up from the "
+            f"{percentile:g}th percentile of |value| {where}" if signed else
+            f"Colour limits rounded up from the {percentile:g}th percentile {where}")
+    if valid is not None and clim[1] <= nice_limit(valid):
+        clip = (f"Colour scale centred on zero, limited to ±{clim[1]:g} {describe(name).unit}, "
+                f"the range where the model holds"
+                + ("; arrow ends: values beyond it, out of range" if extend != "neither" else ""))
+    elif extend != "neither":
+        clip += "; arrow ends: values beyond them exist (singular corners)"
+    clip += ". Black lines: region boundaries."
+    left, right, top = 0.95, 1.3, 0.25
+    fw = left + axw + right
+    note = note[:1].upper() + note[1:] if note else note
+    foot = _wrap(clip + (f"\n{note}" if note else ""), int((fw - 0.3) * 12.5))
+    head = _wrap(caption, int((fw - 0.4) * 10.0))
+    nfoot, nhead = foot.count("\n") + 1, head.count("\n") + 1
+    top += 0.24 * nhead
+    bottom = 0.7 + 0.19 * nfoot
+    fh = bottom + axh + top
+    fig = Figure(figsize=(fw, fh), dpi=DPI)
+    FigureCanvasAgg(fig)
+    ax = fig.add_axes((left / fw, bottom / fh, axw / fw, axh / fh))
+    cax = fig.add_axes(((left + axw + 0.32) / fw, bottom / fh, 0.16 / fw, axh / fh))
+    cmap = "RdBu_r" if signed else "viridis"
+    if np.any(finite):
+        im = ax.tripcolor(sec.xy[:, 0], sec.xy[:, 1], tri[finite], np.nan_to_num(vals),
+                          shading="gouraud", cmap=cmap, vmin=clim[0], vmax=clim[1],
+                          rasterized=True)
+    else:
+        im = None
+    if not np.all(finite):
+        ax.add_collection(PolyCollection(sec.xy[tri[~finite]], facecolors="0.78",
+                                         edgecolors="face", linewidths=0.2))
+    seg = sec.boundary_segments()
+    ax.add_collection(LineCollection(seg, colors="k", linewidths=0.9))
+    ax.set_xlim(*xl)
+    ax.set_ylim(*yl)
+    ax.set_aspect("equal" if to_scale else "auto")
+    ax.set_xlabel(xlab, fontsize=11)
+    ax.set_ylabel(ylab, fontsize=11, labelpad=2)
+    ax.xaxis.set_major_locator(MaxNLocator(nbins=6 if axw > 5.5 else 5,
+                                           steps=[1, 2, 2.5, 5, 10]))
+    ax.yaxis.set_major_locator(MaxNLocator(nbins=max(2, min(5, int(axh / 0.45))),
+                                           steps=[1, 2, 2.5, 5, 10]))
+    ax.tick_params(labelsize=10)
+    if im is not None:
+        cb = fig.colorbar(im, cax=cax, extend=extend)
+        cb.locator = MaxNLocator(nbins=max(3, min(6, int(axh / 0.35))),
+                                 steps=[1, 2, 2.5, 5, 10], symmetric=signed)
+        cb.update_ticks()
+        cb.ax.tick_params(labelsize=10)
+    else:
+        cax.set_visible(False)
+    fig.text(0.1 / fw, 1 - 0.1 / fh, head, fontsize=12, va="top", ha="left")
+    fig.text(0.1 / fw, (bottom - 0.62) / fh, foot, va="top", fontsize=9, color="0.2")
+    return fig
+
+
 def draw_map(src: FieldSource, png: Path, name: str, view: str = "section",
              position: float | None = None, depth: float | None = None,
              percentile: float = 99.0, note: str | None = None,
-             title: str | None = None) -> Path:
+             title: str | None = None, words: str | None = None,
+             valid: float | None = None) -> Path:
     """Draw one quantity on a standard view into a PNG.
 
     Parameters
@@ -258,91 +355,19 @@ def draw_map(src: FieldSource, png: Path, name: str, view: str = "section",
     note : str, optional
         A line under the caption (e.g. what grey means).
     title : str, optional
-        Replaces the default caption.
+        Replaces the default caption (quantity, unit and plane).
+    words : str, optional
+        Replaces the quantity's words in the caption (its unit is kept), e.g.
+        a channel described by carrier and direction.
+    valid : float, optional
+        The magnitude up to which the quantity's model holds (display unit):
+        the colour scale stops there, and the arrows mark values beyond it.
 
     Returns
     -------
     Path
     """
-    import matplotlib
-
-    matplotlib.use("Agg", force=False)
-    from matplotlib.backends.backend_agg import FigureCanvasAgg
-    from matplotlib.collections import LineCollection, PolyCollection
-    from matplotlib.figure import Figure
-    from matplotlib.ticker import MaxNLocator
-
-    sec, xl, yl, where_text, (xlab, ylab) = src.view(view, position, depth)
-    if len(sec.triangles) == 0:
-        raise ValueError(f"nothing of the body lies on the {where_text}")
-    vals, label, signed = src.values(sec, name)
-    tri = sec.triangles[_inside(sec, xl, yl)]
-    # colour limits from the grown layers' points in the window
-    pts = np.unique(tri)
-    sel = vals[pts][sec.region[pts] > 0] if np.any(sec.region[pts] > 0) else vals[pts]
-    sel = sel[np.isfinite(sel)]
-    if signed:
-        vmax = nice_limit(float(np.percentile(np.abs(sel), percentile)) if sel.size else 1.0)
-        clim = (-vmax, vmax)
-    else:
-        hi = nice_limit(float(np.percentile(sel, percentile)) if sel.size else 1.0)
-        lo = float(np.percentile(sel, 100 - percentile)) if sel.size else 0.0
-        clim = (0.0 if lo >= 0 else -nice_limit(-lo), hi)
-    finite = np.all(np.isfinite(vals[tri]), axis=1)
-    aspect = (yl[1] - yl[0]) / max(xl[1] - xl[0], 1e-12)
-    axw = 6.2 if aspect < 0.8 else 5.0
-    axh = min(axw * aspect, 5.5)
-    axw = axh / aspect if axw * aspect > axh else axw
-    to_scale = axh >= 1.2       # a thin slab seen from above: stretched, and said so
-    axh = max(axh, 1.2)
-    caption = title or f"{label}, {where_text}" + ("" if to_scale else " (not to scale)")
-    clip = (f"colour scale centred on zero; limits: {percentile:g}th percentile of the "
-            f"magnitude in the layers, rounded up (corner peaks beyond it)" if signed else
-            f"colour limits: {percentile:g}th percentile in the layers, rounded up "
-            f"(corner peaks beyond it)")
-    foot = _wrap(clip + "; black lines: region boundaries" + (f"\n{note}" if note else ""),
-                 int((axw + 1.9) * 14.5))
-    nfoot = foot.count("\n") + 1
-    left, right, top, bottom = 0.85, 1.05, 0.4, 0.55 + 0.16 * nfoot
-    fw, fh = left + axw + right, bottom + axh + top
-    fig = Figure(figsize=(fw, fh), dpi=DPI)
-    FigureCanvasAgg(fig)
-    ax = fig.add_axes((left / fw, bottom / fh, axw / fw, axh / fh))
-    cax = fig.add_axes(((left + axw + 0.12) / fw, bottom / fh, 0.14 / fw, axh / fh))
-    cmap = "RdBu_r" if signed else "viridis"
-    if np.any(finite):
-        im = ax.tripcolor(sec.xy[:, 0], sec.xy[:, 1], tri[finite], np.nan_to_num(vals),
-                          shading="gouraud", cmap=cmap, vmin=clim[0], vmax=clim[1],
-                          rasterized=True)
-    else:
-        im = None
-    if not np.all(finite):
-        ax.add_collection(PolyCollection(sec.xy[tri[~finite]], facecolors="0.78",
-                                         edgecolors="face", linewidths=0.2))
-    seg = sec.boundary_segments()
-    ax.add_collection(LineCollection(seg, colors="k", linewidths=0.9))
-    ax.set_xlim(*xl)
-    ax.set_ylim(*yl)
-    ax.set_aspect("equal" if to_scale else "auto")
-    ax.set_xlabel(xlab)
-    ax.set_ylabel(ylab)
-    ax.xaxis.set_major_locator(MaxNLocator(nbins=7, steps=[1, 2, 2.5, 5, 10]))
-    ax.yaxis.set_major_locator(MaxNLocator(nbins=5, steps=[1, 2, 2.5, 5, 10]))
-    ax.tick_params(labelsize=9)
-    if im is not None:
-        data = vals[np.unique(tri[finite])]
-        extend = ("both" if signed or clim[0] < 0 else "max")
-        if data.size and np.nanmax(data) <= clim[1] and np.nanmin(data) >= clim[0]:
-            extend = "neither"
-        cb = fig.colorbar(im, cax=cax, extend=extend)
-        cb.locator = MaxNLocator(nbins=6, steps=[1, 2, 2.5, 5, 10], symmetric=signed)
-        cb.update_ticks()
-        cb.ax.tick_params(labelsize=9)
-    else:
-        cax.set_visible(False)
-    ax.set_title(caption, fontsize=11, loc="left")
-    fig.text(0.12 / fw, (bottom - 0.5) / fh, foot, va="top", fontsize=8,
-             color="0.25")
+    fig = build_map(src, name, view, position, depth, percentile, note, title, words, valid)
     png = Path(png)
     fig.savefig(png, dpi=DPI, facecolor="white")
     return png

@@ -13,18 +13,13 @@ from pathlib import Path
 import numpy as np
 
 from mesastrain.io.export import VTK_TENSOR_ORDER, from_vtk6
+from mesastrain.physics.quantities import describe
 
 #: Quantities whose colour scale is centred on zero.
 SIGNED = ("stress", "strain", "total_strain", "stress_crystal", "strain_crystal", "hydrostatic",
           "displacement", "raman_shift", "band_gap_shift")
 #: Name prefixes of signed quantities named per band or per channel (mesastrain.derived.device).
 SIGNED_PREFIXES = ("band_shift_", "piezo_")
-
-UNITS = {"stress": "MPa", "stress_crystal": "MPa", "von_mises": "MPa", "hydrostatic": "MPa",
-         "strain": "", "strain_crystal": "", "total_strain": "", "displacement": "nm",
-         "raman_shift": "cm^-1"}
-#: Units of the quantities named per band or per channel, by name prefix.
-UNIT_PREFIXES = {"band_": "eV", "piezo_": "%"}
 
 
 def _component(mesh, name: str, component: str | None, where: str):
@@ -76,9 +71,9 @@ def render_section(vtu: Path, png: Path, quantity: str = "stress", component: st
     pv.OFF_SCREEN = True
     mesh = pv.read(str(vtu))
     values, comp = _component(mesh, quantity, component, "cell")
-    label = quantity + (f" {comp}" if comp else "")
-    unit = UNITS.get(quantity, next((u for p, u in UNIT_PREFIXES.items()
-                                     if quantity.startswith(p)), ""))
+    q = describe(f"{quantity}_{comp.lower()}" if comp and len(comp) == 2 else quantity)
+    values = values * (q.scale if not comp else 1.0)
+    label, unit = q.words, q.unit
     mesh.cell_data["_shown"] = values
     layer = np.asarray(mesh.cell_data["layer"])
     grown = mesh.extract_cells(np.flatnonzero(layer > 0)) if np.any(layer > 0) else mesh
@@ -167,18 +162,17 @@ def map_values(mesh, name: str):
         q, c = name.split("_")
         where = "cell" if q in mesh.cell_data.keys() else "point"
         values, _ = _component(mesh, q, c.upper(), where)
-        unit = "MPa" if q == "stress" else "dimensionless"
-        return values, where, f"{q} {c.upper()} ({unit})", True
+        return values, where, describe(f"{q}_{c.lower()}").title, True
     if name.startswith("displacement_"):
         values, c = _component(mesh, "displacement", name[-1].upper(), "point")
-        return values, "point", f"displacement {c} (nm)", True
+        return values, "point", describe(name).title, True
     if name in _PRINCIPAL:
         sig = from_vtk6(np.asarray(mesh.cell_data["stress"]))
         ev = np.linalg.eigvalsh(sig)
         values = ev[:, -1] if name == "principal_max" else ev[:, 0]
-        return values, "cell", f"{name.replace('_', ' ')} stress (MPa)", True
+        return values, "cell", describe(name).title, True
     if name in ("von_mises", "hydrostatic"):
-        label = "von Mises stress (MPa)" if name == "von_mises" else "hydrostatic stress (MPa)"
+        label = describe(name).title
         if name in mesh.cell_data.keys():
             return _component(mesh, name, None, "cell")[0], "cell", label, name == "hydrostatic"
         if name in mesh.point_data.keys():
@@ -190,10 +184,11 @@ def map_values(mesh, name: str):
         dev = sig - tr[:, None, None] * np.eye(3)
         return np.sqrt(1.5 * np.einsum("nij,nij->n", dev, dev)), "cell", label, False
     values, comp = _component(mesh, name, None, "cell")
-    unit = UNITS.get(name, next((u for p, u in UNIT_PREFIXES.items() if name.startswith(p)), ""))
-    label = name.replace("_", " ") + (f" {comp}" if comp else "") + (f" ({unit})" if unit else "")
+    q = describe(f"{name}_{comp.lower()}" if comp and len(comp) == 2 else name)
+    if not comp:
+        values = values * q.scale
     signed = name in SIGNED or name.startswith(SIGNED_PREFIXES)
-    return values, "cell", label, signed
+    return values, "cell", q.title, signed
 
 
 def _layout(mesh):

@@ -1,9 +1,10 @@
 """A short, self-contained HTML report of a run (``report.html``, images embedded).
 
 :func:`write_report` reads ``summary.json`` of a result folder, draws the
-stack, renders the standard maps from ``fields.vtu`` (:mod:`mesastrain.io.render`)
-and assembles one HTML file whose pictures are embedded as data URIs, so the
-file can be mailed or archived on its own.
+stack, draws the standard maps the folder lacks from ``fields.vtu``
+(:mod:`mesastrain.io.maps`; a run has drawn them already, and nothing is drawn
+twice) and assembles one HTML file whose pictures are embedded as data URIs,
+so the file can be mailed or archived on its own.
 
 The body is built from :data:`SECTIONS`: functions
 ``section(summary: dict, folder: Path) -> str | None`` returning an HTML
@@ -22,7 +23,6 @@ from collections.abc import Callable
 from pathlib import Path
 
 from mesastrain.io.markup import esc, image, mpa, num, table
-from mesastrain.io.render import standard_pictures
 from mesastrain.io.report_device import section_device
 from mesastrain.io.report_headline import section_headline_errors
 from mesastrain.io.report_misfit import section_misfit
@@ -63,9 +63,12 @@ td.l, th.l { text-align: left; }
 .note { color: #4d5a66; font-size: 0.86em; }
 .sing { color: #b03a2e; font-weight: bold; }
 figure { margin: 0.8em 0 1.4em; }
-figure img { max-width: 100%; border: 1px solid #d5dbe0; }
-figcaption { font-size: 0.86em; color: #4d5a66; }
-.gallery { display: grid; grid-template-columns: 1fr 1fr; gap: 0 1.2em; }
+figure img { max-width: 100%; height: auto; border: 1px solid #d5dbe0; }
+figcaption { font-size: 0.92em; color: #36424d; max-width: 62em; }
+.oor { color: #8a5a00; }
+td.oor { background: #fff4e0; }
+dl.legend { font-size: 0.86em; color: #4d5a66; }
+dl.legend dt { float: left; font-weight: bold; margin-right: 0.4em; }
 """
 
 
@@ -88,17 +91,28 @@ def _warnings_block(summary: dict) -> str:
 
 
 def render_pictures(folder: Path, maps) -> str | None:
-    """Draw the standard maps into the folder; returns a note when they could not be drawn."""
-    vtu = Path(folder) / "fields.vtu"
+    """Draw the standard maps that the folder lacks; returns a note when they could not be drawn.
+
+    A run draws its maps from memory before the report is written, so nothing is
+    drawn twice: only a folder without them (e.g. written with ``run --quick``)
+    gets them here, from ``fields.vtu`` with matplotlib (no OpenGL needed).
+    """
+    folder = Path(folder)
+    vtu = folder / "fields.vtu"
     if not maps:
+        return None
+    missing = [m for m in maps if not (folder / f"map_section_{m}.png").is_file()]
+    if not missing:
         return None
     if not vtu.is_file():
         return "No maps: fields.vtu was not written (output.vtu = false)."
     try:
-        standard_pictures(vtu, folder, tuple(maps))
-    except Exception as exc:   # no OpenGL, no pyvista ...: keep the rest of the report
+        from mesastrain.io.maps import FieldSource, standard_maps
+
+        standard_maps(FieldSource.from_vtu(vtu), folder, tuple(missing))
+    except Exception as exc:   # keep the rest of the report
         log.warning("maps not drawn: %s", exc)
-        return f"Maps not drawn on this machine ({type(exc).__name__}: {exc})."
+        return f"Maps not drawn ({type(exc).__name__}: {exc})."
     return None
 
 
@@ -113,9 +127,9 @@ def write_report(folder: Path, maps=None, pictures: bool = True,
     maps : sequence of str, optional
         Components drawn as maps; default: the case's ``output.maps``.
     pictures : bool
-        Render the maps from ``fields.vtu`` (pyvista, offscreen). A run draws
-        them beforehand from memory (:func:`mesastrain.io.folder.draw_pictures`)
-        and passes False; pictures already in the folder are embedded regardless.
+        Draw the maps the folder lacks from ``fields.vtu`` (matplotlib). A run
+        draws them beforehand from memory (:func:`mesastrain.io.folder.draw_pictures`)
+        and passes False; pictures already in the folder are embedded, never redrawn.
     sections : tuple of callable(summary, folder) -> str or None, default: SECTIONS
         The body, in order.
 

@@ -11,6 +11,7 @@ import logging
 from pathlib import Path
 
 from mesastrain.io.markup import esc, image, mpa, num, table
+from mesastrain.physics.quantities import describe
 
 log = logging.getLogger(__name__)
 
@@ -60,19 +61,23 @@ def draw_stack(summary: dict, path: Path) -> Path:
         PNG to write.
     """
     import matplotlib
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
+    matplotlib.use("Agg", force=False)
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.figure import Figure
     from matplotlib.patches import Rectangle
 
     case = summary["case"]
-    layers = [lay for lay in summary["layers"] if lay["index"] > 0]
+    layers = [lay for lay in summary["layers"] if lay["index"] > 0 and not lay.get("liner")]
+    liners = [lay for lay in summary["layers"] if lay.get("liner")]
     top = max(lay["z_top"] for lay in layers)
     pat = case.get("pattern", {"shape": "none"})
     patterned = pat.get("shape", "none") != "none"
     etch = float(pat.get("etch_depth") or 0.0) if patterned else 0.0
     floor = top - etch
     sub_show = max(0.6 * top, -min(floor, 0.0) + 0.5 * top)
-    fig, ax = plt.subplots(figsize=(8.0, 3.6), dpi=110)
+    fig = Figure(figsize=(9.0, 3.8), dpi=110)
+    FigureCanvasAgg(fig)
+    ax = fig.subplots()
     # feature drawn over x in [-1, 1] (schematic width), field around it in [-1.6, 1.6]
     xf, xo = 1.0, 1.6
     ax.add_patch(Rectangle((-xo, -sub_show), 2 * xo, sub_show + min(floor, 0.0) if patterned
@@ -81,9 +86,10 @@ def draw_stack(summary: dict, path: Path) -> Path:
         ax.add_patch(Rectangle((-xf, floor), 2 * xf, -floor, facecolor="#c9ced3",
                                edgecolor="k", lw=0.8))
     sub = summary["layers"][0]
-    ax.text(-xo + 0.05, -0.55 * sub_show, f"substrate {sub['label']} "
-            f"{sub['normal']}, x = {sub['x_axis']}\n"
-            f"{case['substrate']['thickness'] / 1e3:g} um (cut)", fontsize=8, va="center")
+    ax.annotate(f"{sub['name']}: {sub['label']} {sub['normal']}, x = {sub['x_axis']}, "
+                f"{case['substrate']['thickness'] / 1e3:g} µm (cut)",
+                (xo + 0.05, 0.5 * (min(floor, 0.0) - sub_show)), fontsize=9, va="center",
+                annotation_clip=False)
     for i, lay in enumerate(layers):
         zb, zt = lay["z_bottom"], lay["z_top"]
         colour = f"C{i}"
@@ -102,29 +108,52 @@ def draw_stack(summary: dict, path: Path) -> Path:
             strain = f", lattice strain {100 * lay['misfit']:+.3g} %"
         relaxed = f", relaxed {lay['relaxed']:g}" if lay.get("relaxed") else ""
         ax.annotate(f"{lay['name']}: {lay['label']}, {zt - zb:g} nm{strain}{relaxed}",
-                    (xo + 0.05, 0.5 * (zb + zt)), fontsize=8, va="center",
+                    (xo + 0.05, 0.5 * (zb + zt)), fontsize=9, va="center",
                     annotation_clip=False)
+    draw_liners(ax, liners, case.get("liner", []), top, floor, xf, xo, len(layers))
+    stack_top, top = top, max([top] + [lay["z_top"] for lay in liners])
     if patterned:
         what = feature_text(pat)
         ax.annotate("", (-xf, top + 0.12 * top), (xf, top + 0.12 * top),
                     arrowprops={"arrowstyle": "<->", "lw": 0.8})
-        ax.text(0, top + 0.16 * top, f"{what} (width not to scale)", ha="center", fontsize=8,
+        ax.text(0, top + 0.16 * top, f"{what} (width not to scale)", ha="center", fontsize=9,
                 va="bottom")
-        ax.annotate("", (xf + 0.12, top), (xf + 0.12, floor),
+        ax.annotate("", (xf + 0.12, stack_top), (xf + 0.12, floor),
                     arrowprops={"arrowstyle": "<->", "lw": 0.8, "color": "0.3"})
-        ax.text(xf + 0.16, floor + 0.5 * etch, f"etch {etch:g} nm", fontsize=7, color="0.3",
+        ax.text(xf + 0.16, floor + 0.5 * etch, f"etch {etch:g} nm", fontsize=8.5, color="0.3",
                 va="center", rotation=90)
     ax.axhline(0.0, color="0.25", lw=0.6, ls=":")
-    ax.set_xlim(-xo - 0.05, xo + 2.4)
+    ax.set_xlim(-xo - 0.05, xo + 3.0)
     ax.set_ylim(-sub_show, top * 1.45)
     ax.set_xticks([])
     ax.set_ylabel("z (nm), to scale")
     ax.spines[["top", "right", "bottom"]].set_visible(False)
-    ax.set_title("Stack and pattern (cross-section)", fontsize=10)
+    ax.set_title("Stack and pattern (cross-section)", fontsize=11)
     fig.tight_layout()
     fig.savefig(path)
-    plt.close(fig)
     return path
+
+
+def draw_liners(ax, liners: list, tables: list, top: float, floor: float, xf: float,
+                xo: float, first_colour: int) -> None:
+    """Liners over the schematic feature: top and floor to scale in z, sidewalls schematic."""
+    from matplotlib.patches import Polygon
+
+    t = f = s = 0.0
+    for k, (lay, tab) in enumerate(zip(liners, tables)):
+        t2 = t + tab["thickness"]
+        f2 = f + tab.get("floor_thickness", tab["thickness"])
+        s2 = s + 0.06
+        outer = [(-xo, floor + f2), (-xf - s2, floor + f2), (-xf - s2, top + t2),
+                 (xf + s2, top + t2), (xf + s2, floor + f2), (xo, floor + f2)]
+        inner = [(xo, floor + f), (xf + s, floor + f), (xf + s, top + t), (-xf - s, top + t),
+                 (-xf - s, floor + f), (-xo, floor + f)]
+        ax.add_patch(Polygon(outer + inner, closed=True, facecolor=f"C{first_colour + k}",
+                             alpha=0.55, edgecolor="k", lw=0.8))
+        ax.annotate(f"{lay['name']}: {lay['label']}, {t2 - t:g} nm (liner)",
+                    (xo + 0.05, 0.5 * (top + t + top + t2)), fontsize=8, va="center",
+                    annotation_clip=False)
+        t, f, s = t2, f2, s2
 
 
 # --------------------------------------------------------------------------
@@ -199,6 +228,13 @@ def section_headline(summary: dict, folder: Path) -> str | None:
             vals = [v["length"] for k, v in rl.items() if k.endswith(ax) and v]
             return num(max(vals), 3, "nm") if vals else "-"
 
+        overs = [v["overshoot"] for v in rl.values() if v and v.get("overshoot")]
+        if overs:
+            ov = max(overs, key=lambda o: o["peak_over_centre"])
+            over = (f'<span class="sing">{num(ov["peak_over_centre"], 2)} &times;</span> at '
+                    f'{num(ov["at"], 3, "nm")}')
+        else:
+            over = "none" if rl else "-"
         en = e.get("energy_per_area", {})
         ct = e.get("critical_thickness") or {}
         mb = ct.get("matthews_blakeslee")
@@ -212,8 +248,9 @@ def section_headline(summary: dict, folder: Path) -> str | None:
             _stress_pair(e.get("blanket_stress")),
             _stress_pair(e.get("centre_stress")),
             num((e.get("centre_over_blanket") or {}).get("xx"), 3),
-            length("x"), length("y"),
-            num(vm.get("value"), 4),
+            length("x"), length("y"), over,
+            num(vm.get("value"), 4) + (' <span class="sing">singular</span>'
+                                       if vm.get("singular") else ""),
             f"{num(en.get('blanket'), 3)} / {num(en.get('patterned'), 3)}",
             (num(mb, 3, "nm") if mb is not None else "-") + flag,
             num(pb, 3, "nm") if pb is not None else "-"])
@@ -221,6 +258,7 @@ def section_headline(summary: dict, folder: Path) -> str | None:
            table(["layer", "blanket &sigma;<sub>xx</sub> / &sigma;<sub>yy</sub> (MPa)",
                   "centre &sigma;<sub>xx</sub> / &sigma;<sub>yy</sub> (MPa)", "centre / blanket",
                   "relaxation length x", "relaxation length y",
+                  "overshoot near the sidewall (peak / centre, distance)",
                   "peak von Mises (MPa, mesh-dependent)",
                   "energy blanket / patterned (J/m&sup2;)", "critical thickness MB",
                   "critical thickness PB"], rows),
@@ -290,7 +328,7 @@ def _edge_table(feats: list) -> str:
                              esc(region), num(v["von_mises"], 4), num(v["principal_max"], 4),
                              num(v["principal_min"], 4), num(v["peel"], 4),
                              num(v["element_size"], 3, "nm")])
-    return table(["place", "side", "kind", "", "evaluated in", "von Mises (MPa)",
+    return table(["place", "side", "kind", "stress there", "evaluated in", "von Mises (MPa)",
                   "max principal (MPa)", "min principal (MPa)", "&sigma;<sub>zz</sub> (MPa)",
                   "element size"], rows, 5)
 
@@ -337,27 +375,35 @@ def section_probes(summary: dict, folder: Path) -> str | None:
         + '<p class="note">MPa, sample frame, exact finite-element values at the point.</p>')
 
 
+def _map_caption(summary: dict, kind: str, quantity: str) -> str:
+    """Caption of a ``map_<view>_<quantity>.png``: what, where, and how the colours are set."""
+    layers = summary.get("layers") or []
+    first = layers[1]["name"] if len(layers) > 1 else "the first layer"
+    where = {"section": "on the cross-section y = 0",
+             "edge": "close to the +x sidewall, on the cross-section y = 0",
+             "plan": f"seen from above at mid-height of {first}"}[kind]
+    q = describe(quantity)
+    return (f"{esc(q.words[:1].upper() + q.words[1:])}"
+            f"{f' ({esc(q.unit)})' if q.unit else ''} {where}; the note in the picture says "
+            f"how its colour limits are set.")
+
+
 def section_pictures(summary: dict, folder: Path) -> str | None:
     """Maps, edge relaxation and traction plots, line cuts."""
     folder = Path(folder)
     parts = []
-    views = {"section": "cross-section y = 0", "edge": "close-up of the +x sidewall",
-             "plan": "plan view at mid-height of layer 1"}
     for kind in ("section", "edge", "plan"):
-        figs = []
         for png in sorted(folder.glob(f"map_{kind}_*.png")):
-            name = png.stem.split("_", 2)[2].replace("_", " ")
-            figs.append(image(png, f"{esc(name)}: {views[kind]}. Colour scale clipped at the "
-                                   f"99th percentile (corner peaks are singular)."))
-        if figs:
-            parts.append('<div class="gallery">' + "".join(figs) + "</div>"
-                         if kind == "plan" else "".join(figs))
+            parts.append(image(png, _map_caption(summary, kind, png.stem.split("_", 2)[2])))
     parts.append(image(folder / "edge_relaxation.png",
-                       "Stress normal to each sidewall over its centre value, at mid-height of "
-                       "each layer (edge_relaxation.csv)."))
+                       "Stress normal to each sidewall (blue) and along it (green), in MPa, "
+                       "against the distance from the sidewall, at mid-height of each layer; "
+                       "dotted: the value at the feature centre, dash-dotted: the blanket film. "
+                       "Red line: relaxation length; red triangle: the largest overshoot over "
+                       "the centre value (edge_relaxation.csv)."))
     parts.append(image(folder / "interface_tractions.png",
-                       "Peel and shear traction along each interface toward the sidewall "
-                       "(interface_tractions.csv)."))
+                       "Peel and shear traction along each interface toward the sidewall, in "
+                       "MPa (interface_tractions.csv)."))
     for c in summary.get("cuts") or []:
         parts.append(image(folder / c["plot"], f"Line cut {esc(c['name'])} "
                                                f"({esc(c['csv'])})."))

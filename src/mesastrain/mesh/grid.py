@@ -57,6 +57,11 @@ class StackLayout:
         Inset of the top outline of the feature relative to its footprint at
         the etch floor, nm (positive: sloped sidewalls narrowing upward; the
         half sizes above are those of the footprint).
+    liners : tuple of (top, side, floor)
+        Conformal liners over the feature, bottom to top: for each, the total
+        thickness of the liners up to and including it on the feature top, on
+        the sidewalls (horizontal offset of the sidewall plane) and on the etch
+        floor, nm. Liner k (from 1) is region ``len(interfaces) - 1 + k``.
     """
 
     interfaces: tuple
@@ -69,6 +74,7 @@ class StackLayout:
     mirrors: tuple = ()
     periodic: tuple = ()
     taper: float = 0.0
+    liners: tuple = ()
 
     @property
     def margins(self) -> tuple:
@@ -88,6 +94,63 @@ class StackLayout:
             return np.ones_like(z)
         rise = np.clip((z - self.etch_floor) / self.etch_depth, 0.0, 1.0)
         return 1.0 - self.taper * rise / half
+
+    def map_lateral(self, x: np.ndarray, z: np.ndarray, axis: int,
+                    inverse: bool = False) -> np.ndarray:
+        """Grid coordinate -> physical one along a lateral axis (or back, ``inverse``).
+
+        The grid is built for the footprint at the etch floor, with the liners'
+        sidewall planes at ``half + side_k``. Above the floor, at rise
+        r = (z - floor) / etch_depth (not capped above, so the liners' sloped
+        sidewalls continue up to their tops), the sidewall moves in by
+        ``taper * r``: the feature (|x| <= half) is scaled toward the centre,
+        the liner band beside it is shifted by the same amount (so each liner's
+        outer sidewall is the sidewall plane offset by its horizontal
+        thickness), and the floor beyond the band is stretched linearly to the
+        fixed cell face. At and below the floor the map is the identity.
+        """
+        x = np.asarray(x, dtype=float)
+        z = np.asarray(z, dtype=float)
+        half = self.half_width if axis == 0 else self.half_length
+        if not self.taper or half is None or self.etch_depth <= 0:
+            return x.copy()
+        shift = self.taper * np.maximum((z - self.etch_floor) / self.etch_depth, 0.0)
+        band = self.liners[-1][1] if self.liners else 0.0
+        edge = half + self.margins[axis]
+        a, u = np.abs(x), np.sign(x)
+        knot = half + band                       # outer liner plane (grid)
+        outer = max(edge - knot, 0.0)
+        if not inverse:
+            inner = a * (1.0 - shift / half)
+            mid = a - shift
+            far = edge - (edge - a) * ((outer + shift) / outer if outer > 0 else 1.0)
+            out = np.where(a <= half, inner, np.where(a <= knot, mid, far))
+        else:
+            inner = a / (1.0 - shift / half)
+            mid = a + shift
+            far = edge - (edge - a) * (outer / (outer + shift) if outer > 0 else 1.0)
+            out = np.where(a <= half - shift, inner, np.where(a <= knot - shift, mid, far))
+        return u * out
+
+    def to_physical(self, p: np.ndarray) -> np.ndarray:
+        """Mesh nodes (3, n) from grid space to the physical body (sloped sidewalls)."""
+        p = np.array(p, dtype=float)
+        z = p[2].copy()
+        for axis in (0, 1):
+            p[axis] = self.map_lateral(p[axis], z, axis)
+        return p
+
+    def to_grid(self, points: np.ndarray) -> np.ndarray:
+        """Points (n, 3) back to grid space (inverse of :meth:`to_physical`)."""
+        pts = np.array(points, dtype=float)
+        for axis in (0, 1):
+            pts[:, axis] = self.map_lateral(pts[:, axis], pts[:, 2], axis, inverse=True)
+        return pts
+
+    @property
+    def nlayers(self) -> int:
+        """Grown layers (the first liner's region is ``nlayers + 1``)."""
+        return len(self.interfaces) - 1
 
     @property
     def top(self) -> float:
@@ -218,7 +281,9 @@ def axis_coordinates(geom: StackLayout, spacing: GridSpacing):
     zb = [-geom.substrate_depth, *geom.interfaces]
     if geom.patterned and geom.etch_depth > 0:
         zb.append(geom.etch_floor)
-    span_z = geom.top + geom.substrate_depth
+    for t_top, _, t_floor in geom.liners:
+        zb += [geom.top + t_top, geom.etch_floor + t_floor]
+    span_z = geom.top + (geom.liners[-1][0] if geom.liners else 0.0) + geom.substrate_depth
     zb = _unique_breaks(zb, span_z)
     zsize = [None] + [he] * (len(zb) - 1)
     zcap = []
@@ -238,8 +303,13 @@ def axis_coordinates(geom: StackLayout, spacing: GridSpacing):
             full = join_segments([-half, half], [None, None], [spacing.lateral_cap], growth)
         else:
             outer = half + margin
-            full = join_segments([-outer, -half, half, outer], [None, he, he, None],
-                                 [cap_out, spacing.lateral_cap, cap_out], growth)
+            bands = [half + side for _, side, _ in geom.liners]     # liner sidewall planes
+            right = [half, *bands, outer]
+            breaks = [-b for b in right[::-1]] + right
+            sizes = [None] + [he] * (2 * len(right) - 2) + [None]
+            caps = ([cap_out] + [spacing.lateral_cap] * len(bands)
+                    + [spacing.lateral_cap] + [spacing.lateral_cap] * len(bands) + [cap_out])
+            full = join_segments(breaks, sizes, caps, growth)
         if not mirrored:
             return full
         # a mirrored model uses the full model's grid with 0 added as a grid line, so that
@@ -255,11 +325,37 @@ def axis_coordinates(geom: StackLayout, spacing: GridSpacing):
 
 
 def keep_mask(geom: StackLayout, xs, ys, zs) -> np.ndarray:
-    """Cells of the full grid that belong to the body (not etched away)."""
+    """Cells of the full grid that belong to the body (not etched away), liners included."""
     xm, ym, zm = (0.5 * (g[1:] + g[:-1]) for g in (xs, ys, zs))
-    keep = np.ones((len(xm), len(ym), len(zm)), dtype=bool)
-    if geom.patterned and geom.etch_depth > 0:
-        outside = (np.abs(xm)[:, None] > geom.half_width) | (np.abs(ym)[None, :] > geom.half_length)
-        keep &= ~(outside[:, :, None] & (zm > geom.etch_floor)[None, None, :])
-    return keep
+    return cell_regions(geom, xm[:, None, None], ym[None, :, None], zm[None, None, :]) >= 0
+
+
+def cell_regions(geom: StackLayout, x, y, z) -> np.ndarray:
+    """Region of grid cells from their centres in grid space (broadcast); -1 etched away.
+
+    0 the substrate, i layer i (by height), ``nlayers + k`` liner k: the cells
+    outside the feature that lie within liner k's square offset of the feature
+    (``|x| <= half + side_k``, ``|y| <= half + side_k``, ``z <= top + top_k``)
+    or below its floor plane (``z <= floor + floor_k``), and within no lower
+    liner. ``y`` may be None (a stripe's section).
+    """
+    x, z = np.asarray(x, dtype=float), np.asarray(z, dtype=float)
+    ay = None if y is None else np.abs(np.asarray(y, dtype=float))
+    layer = np.searchsorted(np.asarray(geom.interfaces[:-1]), z, side="right").astype(np.int32)
+    region = np.broadcast_to(layer, np.broadcast_shapes(x.shape, z.shape, np.shape(ay))).copy()
+    if not (geom.patterned and geom.etch_depth > 0):
+        return region
+
+    def within(extra):
+        ok = np.abs(x) <= geom.half_width + extra
+        return ok if ay is None else ok & (ay <= geom.half_length + extra)
+
+    above = z > geom.etch_floor
+    gone = np.broadcast_to((above & ~within(0.0)) | (z > geom.top), region.shape)
+    region[gone] = -1
+    for k in range(len(geom.liners), 0, -1):   # top liner first: lower ones overwrite
+        t_top, side, t_floor = geom.liners[k - 1]
+        inside = (z <= geom.etch_floor + t_floor) | (within(side) & (z <= geom.top + t_top))
+        region[gone & inside] = geom.nlayers + k
+    return region
 

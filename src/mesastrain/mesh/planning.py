@@ -26,6 +26,22 @@ def pattern_taper(case: Case) -> float:
     return taper_of(case.pattern) if case.pattern.patterned else 0.0
 
 
+def liner_offsets(case: Case) -> tuple:
+    """Cumulative liner thicknesses ((top, side, floor) per liner, bottom to top), nm.
+
+    ``side`` is the horizontal offset of the sidewall plane: the sidewall
+    thickness (normal to the wall) over sin(sidewall_angle).
+    """
+    if not case.liners:
+        return ()
+    sin_a = np.sin(np.radians(case.pattern.sidewall_angle or 90.0))
+    out, t, s, f = [], 0.0, 0.0, 0.0
+    for lin in case.liners:
+        t, s, f = t + lin.thickness, s + lin.side / sin_a, f + lin.floor
+        out.append((float(t), float(s), float(f)))
+    return tuple(out)
+
+
 def pattern_pitch(case: Case) -> tuple:
     """(px, py) of a periodic array in nm, None per axis for an isolated feature."""
     pitch = case.pattern.pitch
@@ -110,6 +126,7 @@ def layout_of(case: Case, mirrors: tuple | None = None) -> tuple[StackLayout, Gr
     order = case.mesh.order
     taper = pattern_taper(case)
     pitch = pattern_pitch(case)
+    liners = liner_offsets(case)
     margin_y = None
     if patterned:
         W, L = pat.width, (pat.length if pat.length is not None else pat.width)
@@ -118,6 +135,10 @@ def layout_of(case: Case, mirrors: tuple | None = None) -> tuple[StackLayout, Gr
             thick.append(etch - stack)
         feature = max(W, L)
         margin = pat.margin if pat.margin is not None else max(0.5 * feature, 4.0 * etch)
+        if liners and pat.margin is None:       # room for the sidewall liners and a floor
+            margin = max(margin, 4.0 * liners[-1][1])
+        for lin in case.liners:
+            thick += [lin.thickness, lin.side, lin.floor]
         if pitch[0] is not None:
             margin = max(0.0, 0.5 * (pitch[0] - W) - taper)
             if pitch[1] is not None:
@@ -165,7 +186,8 @@ def layout_of(case: Case, mirrors: tuple | None = None) -> tuple[StackLayout, Gr
                          half_length=None if L is None else L / 2.0 + taper,
                          etch_depth=float(etch), margin=float(margin),
                          margin_y=None if margin_y is None else float(margin_y),
-                       mirrors=tuple(mirrors), periodic=periodic, taper=float(taper))
+                       mirrors=tuple(mirrors), periodic=periodic, taper=float(taper),
+                       liners=liners)
     return geom, GridSpacing(size=float(size), edge_size=float(edge),
                              growth=1.0 + (float(case.mesh.growth) - 1.0) / refine,
                              lateral_cap=float(lateral_cap), refine=refine)

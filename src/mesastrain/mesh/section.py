@@ -33,7 +33,7 @@ from mesastrain.fem.cost import Estimate, estimate_from_counts
 from mesastrain.fem.discretisation import INTORDER, Discretisation
 from mesastrain.fem.fields import Fields, elastic_state, reference_coordinates
 from mesastrain.mesh.base import ModelMesh
-from mesastrain.mesh.grid import GridSpacing, StackLayout, axis_coordinates
+from mesastrain.mesh.grid import GridSpacing, StackLayout, axis_coordinates, cell_regions
 from mesastrain.mesh.planning import layout_of
 from mesastrain.mesh.structured import distinct_rows, grid_cells
 
@@ -188,7 +188,7 @@ class SectionMesh(ModelMesh):
         x = pts[:, 0].copy()
         z = pts[:, 2]
         if self.layout.taper:
-            x = x / self.layout.scale_at(z, 0)
+            x = self.layout.map_lateral(x, z, 0, inverse=True)
         ix, iz = grid_cells(self.xs, x), grid_cells(self.zs, z)
         ok = ix[2] & iz[2]
         cands = [np.where(ok, self.cell_of_grid[ix[cx], iz[cz]], -1)
@@ -257,12 +257,14 @@ def section_coordinates(case, mirrors=None, whole: bool = False):
     return geom, spacing, xs, zs
 
 
-def _keep(geom, xs, zs) -> np.ndarray:
+def _regions(geom, xs, zs) -> np.ndarray:
+    """Region of each grid cell (nx-1, nz-1), -1 where etched away (liners included)."""
     xm, zm = 0.5 * (xs[1:] + xs[:-1]), 0.5 * (zs[1:] + zs[:-1])
-    keep = np.ones((len(xm), len(zm)), dtype=bool)
-    if geom.etch_depth > 0:
-        keep &= ~((np.abs(xm) > geom.half_width)[:, None] & (zm > geom.etch_floor)[None, :])
-    return keep
+    return cell_regions(geom, xm[:, None], None, zm[None, :])
+
+
+def _keep(geom, xs, zs) -> np.ndarray:
+    return _regions(geom, xs, zs) >= 0
 
 
 def build_section_mesh(case, mirrors=()) -> SectionMesh:
@@ -282,17 +284,16 @@ def build_section_mesh(case, mirrors=()) -> SectionMesh:
     mid = full.p[:, full.t].mean(axis=1)
     ix = np.searchsorted(xs, mid[0]) - 1
     iz = np.searchsorted(zs, mid[1]) - 1
-    keep = _keep(geom, xs, zs)[ix, iz]
-    kept = np.flatnonzero(keep)
+    cell_region = _regions(geom, xs, zs)[ix, iz]
+    kept = np.flatnonzero(cell_region >= 0)
     mesh = full.restrict(kept) if len(kept) < full.t.shape[1] else full
     if geom.taper:
         p = mesh.p.copy()
-        p[0] *= geom.scale_at(p[1], 0)
+        p[0] = geom.map_lateral(p[0], p[1], 0)
         mesh = MeshQuad(p, mesh.t)
     cog = np.full((len(xs) - 1, len(zs) - 1), -1, dtype=np.int64)
     cog[ix[kept], iz[kept]] = np.arange(len(kept))
-    region = np.searchsorted(np.asarray(geom.interfaces[:-1]), mid[1, kept],
-                             side="right").astype(np.int32)
+    region = cell_region[kept].astype(np.int32)
     full_width = 2.0 * max(abs(xs[0]), abs(xs[-1]))
     slab = SLAB_FRACTION * full_width
     return SectionMesh(section=mesh, mesh=extrude(mesh.p, mesh.t, slab), region=region,

@@ -24,11 +24,8 @@ initialised and finalised around each mesh.
 
 from __future__ import annotations
 
-import ctypes
 import logging
 import os
-import signal
-import threading
 from dataclasses import dataclass
 
 import numpy as np
@@ -36,8 +33,10 @@ import numpy as np
 from mesastrain.case.outline import Outline, outline_of, taper_of
 from mesastrain.errors import MeshError
 from mesastrain.fem.cost import Estimate, estimate_from_counts
+from mesastrain.mesh.gmsh_session import _Gmsh
 from mesastrain.mesh.grid import GridSpacing, join_segments
-from mesastrain.mesh.planning import film_reaches_side, refinement_of
+from mesastrain.mesh.planning import film_reaches_side, liner_offsets, refinement_of
+from mesastrain.mesh.shape_solids import region_solids, set_periodic
 from mesastrain.mesh.unstructured import UnstructuredMesh, box_boundary
 
 log = logging.getLogger(__name__)
@@ -84,6 +83,9 @@ class ShapeSpec:
     mirrors : tuple of int
     sizes : GridSpacing
         size = film element size, edge_size = at sidewalls, lateral_cap = largest.
+    liners : tuple of (top, side, floor)
+        Cumulative liner thicknesses per liner, bottom to top (side: horizontal
+        offset of the sidewall), nm (:func:`mesastrain.mesh.planning.liner_offsets`).
     """
 
     top_outline: Outline
@@ -95,10 +97,23 @@ class ShapeSpec:
     periodic: tuple
     mirrors: tuple
     sizes: GridSpacing
+    liners: tuple = ()
 
     @property
     def top(self) -> float:
         return float(self.interfaces[-1])
+
+    @property
+    def liner_top(self) -> float:
+        """z of the top of the last liner over the feature (the top when there is none)."""
+        return self.top + (self.liners[-1][0] if self.liners else 0.0)
+
+    def liner_outlines(self, k: int) -> tuple:
+        """(foot outline at the floor, outline at its top z) of liner k's outer sidewall."""
+        t_top, side, _ = self.liners[k - 1]
+        slope = self.taper / (self.top - self.floor)
+        return (self.top_outline.offset(self.taper + side),
+                self.top_outline.offset(side - slope * t_top))
 
     @property
     def foot_outline(self) -> Outline:
@@ -135,6 +150,10 @@ class SizeField:
                           np.hypot(np.maximum(lat_foot, 0.0), below))
         if s.floor > 0.0:       # unetched layers below the floor cover the whole cell
             d_feat = np.minimum(d_feat, np.maximum(-z, 0.0))
+        if s.liners:            # the floor liners cover the whole cell as well
+            f_top = s.floor + s.liners[-1][2]
+            d_feat = np.minimum(d_feat, np.abs(np.clip(z, s.floor, f_top) - z)
+                                + np.maximum(s.floor - z, 0.0))
         h_side = s.sizes.edge_size + self.g * d_side
         h_film = s.sizes.size + self.g * d_feat
         return np.minimum(np.minimum(h_side, h_film), s.sizes.lateral_cap)
@@ -148,6 +167,7 @@ def shape_spec(case, mirrors=()) -> ShapeSpec:
     floor = top - etch
     outline = outline_of(pat)
     taper = taper_of(pat)
+    liners = liner_offsets(case)
     foot = outline.offset(taper)
     hx = max(outline.half_extent()[0], foot.half_extent()[0])
     hy = max(outline.half_extent()[1], foot.half_extent()[1])
@@ -159,6 +179,8 @@ def shape_spec(case, mirrors=()) -> ShapeSpec:
         depth_default = max(1.5 * max(pitch), 4.0 * etch)
     else:
         margin = pat.margin if pat.margin is not None else max(0.5 * feature, 4.0 * etch)
+        if liners and pat.margin is None:       # room for the sidewall liners and a floor
+            margin = max(margin, 4.0 * liners[-1][1])
         box = (-(hx + margin), hx + margin, -(hy + margin), hy + margin)
         # a film layer on the cell faces: tie them so it can shear (planning.film_reaches_side)
         periodic = (tuple(a for a in (0, 1) if a not in mirrors)
@@ -173,6 +195,8 @@ def shape_spec(case, mirrors=()) -> ShapeSpec:
     thick = [lay.thickness for lay in case.layers]
     if etch > top:
         thick.append(etch - top)
+    for lin in case.liners:
+        thick += [lin.thickness, lin.side, lin.floor]
     t_min = min(thick)
     order = case.mesh.order
     refine = refinement_of(case)
@@ -187,249 +211,7 @@ def shape_spec(case, mirrors=()) -> ShapeSpec:
                         lateral_cap=float(cap), refine=refine)
     return ShapeSpec(top_outline=outline, taper=float(taper), interfaces=tuple(case.interfaces),
                      floor=float(floor), depth=float(depth), box=tuple(float(b) for b in box),
-                     periodic=periodic, mirrors=tuple(mirrors), sizes=sizes)
-
-
-# --------------------------------------------------------------------------
-# gmsh
-# --------------------------------------------------------------------------
-#: gmsh options this module sets (restored afterwards when gmsh was already running).
-_OPTIONS = ("General.Terminal", "General.Verbosity", "Mesh.MeshSizeFromPoints",
-            "Mesh.MeshSizeFromCurvature", "Mesh.MeshSizeExtendFromBoundary", "Mesh.MeshSizeMax",
-            "Mesh.MeshSizeMin", "Mesh.ElementOrder", "Mesh.Optimize", "Mesh.Algorithm3D",
-            "General.NumThreads")
-
-
-_STOP_SIGNALS = tuple(getattr(signal, n) for n in ("SIGINT", "SIGTERM") if hasattr(signal, n))
-
-
-class _SignalState:
-    """The process's SIGINT/SIGTERM dispositions, saved so gmsh cannot keep them.
-
-    ``gmsh.initialize()`` resets SIGTERM (and, unless ``interruptible=False``,
-    SIGINT) to the default action at the C level, behind Python's back, so a later
-    SIGTERM would kill the run without clean-up. The C-level actions are saved as
-    opaque ``struct sigaction`` buffers (any thread may restore them); the Python
-    handlers are saved too, in the main thread.
-    """
-
-    def __init__(self):
-        self.python = {}
-        self.native = {}
-        if threading.current_thread() is threading.main_thread():
-            self.python = {s: signal.getsignal(s) for s in _STOP_SIGNALS}
-        libc = _libc()
-        if libc is not None:
-            for s in _STOP_SIGNALS:
-                buf = ctypes.create_string_buffer(512)     # larger than any struct sigaction
-                if libc.sigaction(int(s), None, buf) == 0:
-                    self.native[s] = buf
-
-    def restore(self) -> None:
-        for s, h in self.python.items():
-            if h is not None:
-                signal.signal(s, h)
-        libc = _libc()
-        for s, buf in self.native.items():
-            libc.sigaction(int(s), buf, None)
-
-
-class _Blocked:
-    """SIGINT and SIGTERM blocked in this thread while gmsh changes their actions: one
-    arriving then waits and goes to the restored handler, not to gmsh's default."""
-
-    def __enter__(self):
-        self.mask = None
-        if hasattr(signal, "pthread_sigmask"):
-            self.mask = signal.pthread_sigmask(signal.SIG_BLOCK, set(_STOP_SIGNALS))
-
-    def __exit__(self, *exc):
-        if self.mask is not None:
-            signal.pthread_sigmask(signal.SIG_SETMASK, self.mask)
-        return False
-
-
-def _libc():
-    try:
-        return ctypes.CDLL(None, use_errno=True) if os.name == "posix" else None
-    except OSError:
-        return None
-
-
-class _Gmsh:
-    """Context manager: a silent gmsh session with an empty model of its own.
-
-    When the caller already runs gmsh, its session, current model and the
-    options touched here are left as they were; otherwise gmsh is started and
-    finalised around the block.
-
-    Signals: gmsh is initialised without its own SIGINT handling
-    (``interruptible=False``) and the process's SIGINT/SIGTERM handlers are put
-    back after ``initialize`` and ``finalize``. Inside the block (main thread) a
-    SIGINT or SIGTERM is held back and delivered to the caller's handler when the
-    block ends, because a handler that raises inside gmsh's mesh-size callback
-    would only be printed and ignored by ctypes. So Ctrl-C while gmsh meshes takes
-    effect when the current gmsh call returns.
-    """
-
-    def __enter__(self):
-        import gmsh
-
-        self.gmsh = gmsh
-        self.signals = _SignalState()
-        self.pending = []
-        for s in self.signals.python:
-            if callable(self.signals.python[s]):
-                signal.signal(s, self._hold)
-        try:
-            self._start(gmsh)
-        except BaseException:
-            self._end_signals()
-            raise
-        return gmsh
-
-    def _hold(self, signum, frame):
-        self.pending.append(signum)
-
-    def _start(self, gmsh):
-        self.owner = not gmsh.isInitialized()
-        if self.owner:
-            with _Blocked():
-                held = _SignalState()
-                try:
-                    gmsh.initialize(readConfigFiles=False, interruptible=False)
-                except TypeError:      # a gmsh API without the keyword
-                    gmsh.initialize(readConfigFiles=False)
-                finally:
-                    held.restore()
-            self.saved, self.previous = {}, None
-        else:
-            self.saved = {k: gmsh.option.getNumber(k) for k in _OPTIONS}
-            try:
-                self.previous = gmsh.model.getCurrent()
-            except Exception:    # no current model
-                self.previous = None
-        gmsh.option.setNumber("General.Terminal", 0)
-        gmsh.option.setNumber("General.Verbosity", 1)
-        gmsh.model.add(f"mesastrain-{id(self)}")
-
-    def _end_signals(self):
-        self.signals.restore()
-        if self.pending:
-            signal.raise_signal(self.pending[0])   # now to the caller's handler
-
-    def __exit__(self, *exc):
-        gmsh = self.gmsh
-        try:
-            if self.owner:
-                with _Blocked():
-                    held = _SignalState()
-                    try:
-                        gmsh.finalize()
-                    finally:
-                        held.restore()
-                return False
-            gmsh.model.remove()
-            for k, v in self.saved.items():
-                gmsh.option.setNumber(k, v)
-            if self.previous:
-                gmsh.model.setCurrent(self.previous)
-            return False
-        finally:
-            self._end_signals()
-
-
-def _outline_surface(occ, outline: Outline, z: float) -> int:
-    """A plane surface of the outline at height z; returns its tag."""
-    if outline.kind == "rectangle":
-        if outline.radius > 0 and outline.radius >= min(outline.hx, outline.hy) * (1 - 1e-9):
-            return _stadium_surface(occ, outline.hx, outline.hy, z)
-        return occ.addRectangle(-outline.hx, -outline.hy, z, 2 * outline.hx, 2 * outline.hy,
-                                roundedRadius=outline.radius if outline.radius > 0 else 0.0)
-    if outline.kind == "disk":
-        return occ.addDisk(0.0, 0.0, z, outline.radius, outline.radius)
-    v = outline.points
-    pts = [occ.addPoint(float(a), float(b), z) for a, b in v]
-    lines = [occ.addLine(pts[k], pts[(k + 1) % len(pts)]) for k in range(len(pts))]
-    loop = occ.addCurveLoop(lines)
-    return occ.addPlaneSurface([loop])
-
-
-def _stadium_surface(occ, hx: float, hy: float, z: float) -> int:
-    """A rectangle rounded by half its shorter side: a stadium, or a disk when square.
-
-    OpenCASCADE's rounded rectangle fails when the radius is exactly half a side
-    (the straight edges between the arcs vanish), the largest radius the case
-    allows; the stadium is built from its two straight edges and four quarter
-    arcs (arcs of less than a half turn, as OpenCASCADE needs).
-    """
-    r = min(hx, hy)
-    if abs(hx - hy) <= 1e-9 * max(hx, hy):
-        return occ.addDisk(0.0, 0.0, z, r, r)
-    along_x = hx > hy
-    c = (hx if along_x else hy) - r          # centres of the end half-disks at +-c
-
-    def pt(u, v):       # (along the long side, across it) -> a point
-        return occ.addPoint(u, v, z) if along_x else occ.addPoint(-v, u, z)
-
-    centre_hi, centre_lo = pt(c, 0.0), pt(-c, 0.0)
-    p = [pt(-c, -r), pt(c, -r), pt(c + r, 0.0), pt(c, r), pt(-c, r), pt(-c - r, 0.0)]
-    curves = [occ.addLine(p[0], p[1]),
-              occ.addCircleArc(p[1], centre_hi, p[2]), occ.addCircleArc(p[2], centre_hi, p[3]),
-              occ.addLine(p[3], p[4]),
-              occ.addCircleArc(p[4], centre_lo, p[5]), occ.addCircleArc(p[5], centre_lo, p[0])]
-    surface = occ.addPlaneSurface([occ.addCurveLoop(curves)])
-    occ.remove([(0, centre_hi), (0, centre_lo)])
-    return surface
-
-
-def _feature_solid(gmsh, spec: ShapeSpec) -> int:
-    """The feature between the etch floor and the top; returns its volume tag."""
-    occ = gmsh.model.occ
-    h = spec.top - spec.floor
-    if not spec.taper:
-        s = _outline_surface(occ, spec.top_outline, spec.floor)
-        out = occ.extrude([(2, s)], 0, 0, h)
-        return [t for d, t in out if d == 3][0]
-    wires = []
-    for ol, z in ((spec.foot_outline, spec.floor), (spec.top_outline, spec.top)):
-        s = _outline_surface(occ, ol, z)
-        occ.synchronize()
-        curves = [t for d, t in gmsh.model.getBoundary([(2, s)], oriented=False)]
-        wires.append(occ.addWire(curves))
-        occ.remove([(2, s)])
-    vols = occ.addThruSections(wires, makeSolid=True, makeRuled=True)
-    return [t for d, t in vols if d == 3][0]
-
-
-def _set_periodic(gmsh, spec: ShapeSpec, zlo: float, zhi: float) -> None:
-    """Tie the cell faces of periodic axes (translation affine maps)."""
-    eps = 1e-6 * max(spec.box[1] - spec.box[0], spec.box[3] - spec.box[2], zhi - zlo)
-    x0, x1, y0, y1 = spec.box
-    for axis in spec.periodic:
-        lo, hi = (x0, x1) if axis == 0 else (y0, y1)
-        shift = [0.0, 0.0, 0.0]
-        shift[axis] = hi - lo
-
-        def faces(v, axis=axis):
-            b = [x0 - eps, y0 - eps, zlo - eps, x1 + eps, y1 + eps, zhi + eps]
-            b[axis], b[axis + 3] = v - eps, v + eps
-            return gmsh.model.getEntitiesInBoundingBox(*b, dim=2)
-
-        for _, slave in faces(hi):
-            sb = np.array(gmsh.model.getBoundingBox(2, slave))
-            target = sb - np.array(shift + shift)
-            match = None
-            for _, master in faces(lo):
-                mb = np.array(gmsh.model.getBoundingBox(2, master))
-                if np.max(np.abs(mb - target)) < 10 * eps:
-                    match = master
-                    break
-            if match is None:
-                raise MeshError(f"gmsh: no periodic partner for a cell face at "
-                                f"{'xy'[axis]} = {hi:g} nm")
-            affine = [1, 0, 0, shift[0], 0, 1, 0, shift[1], 0, 0, 1, shift[2], 0, 0, 0, 1]
-            gmsh.model.mesh.setPeriodic(2, [slave], [match], affine)
+                     periodic=periodic, mirrors=tuple(mirrors), sizes=sizes, liners=liners)
 
 
 def _expected_tets(spec: ShapeSpec) -> float:
@@ -448,7 +230,8 @@ def _expected_tets(spec: ShapeSpec) -> float:
         return join_segments(brk, sizes, [cap] * (len(brk) - 1), g)
 
     xs, ys = axis(x0, x1, hx), axis(y0, y1, hy)
-    zb = sorted({-spec.depth, *spec.interfaces, spec.floor})
+    zb = sorted({-spec.depth, *spec.interfaces, spec.floor,
+                 *(z for t, _, f in spec.liners for z in (spec.top + t, spec.floor + f))})
     zs = join_segments(zb, [None] + [spec.sizes.size] * (len(zb) - 1),
                        [cap] * (len(zb) - 1), g)
     xm, ym, zm = (0.5 * (a[1:] + a[:-1]) for a in (xs, ys, zs))
@@ -458,11 +241,25 @@ def _expected_tets(spec: ShapeSpec) -> float:
     for k, z in enumerate(zm):
         h = field(X, Y, np.full_like(X, z))
         inside = np.ones_like(X, dtype=bool)
-        if z > spec.floor:
+        if spec.liners and z > spec.floor + spec.liners[-1][2]:
+            k = len(spec.liners)
+            foot, top = spec.liner_outlines(k)
+            rise = (z - spec.floor) / (spec.liner_top - spec.floor)
+            inside = (z <= spec.liner_top) & (
+                foot.contains(X, Y) if not spec.taper else
+                top_or_foot(foot, top, rise, X, Y))
+        elif z > spec.floor and not spec.liners:
             inside = spec.outline_at(z).contains(X, Y)
         dz = zs[k + 1] - zs[k]
         count += float(np.sum(vol[inside] / (TET_VOLUME_FACTOR * h[inside] ** 3))) * dz
     return count
+
+
+def top_or_foot(foot: Outline, top: Outline, rise: float, x, y) -> np.ndarray:
+    """Inside the outline interpolated between foot (rise 0) and top (rise 1), approximately
+    (signed distances interpolated); for the size estimate only."""
+    d = (1.0 - rise) * foot.signed_distance(x, y) + rise * top.signed_distance(x, y)
+    return d <= 0.0
 
 
 def _size_fields(gmsh, spec: ShapeSpec) -> None:
@@ -568,31 +365,51 @@ def mesh_shape(spec: ShapeSpec) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     region : ndarray (ntets,)
     """
     x0, x1, y0, y1 = spec.box
-    zb = sorted({-spec.depth, *spec.interfaces, spec.floor})
-    zb = [z for z in zb if -spec.depth - 1e-9 <= z <= spec.top + 1e-9]
-    tol = 1e-9 * (spec.top + spec.depth)
+    liner_z = [z for t_top, _, t_floor in spec.liners
+               for z in (spec.top + t_top, spec.floor + t_floor)]
+    zb = sorted({-spec.depth, *spec.interfaces, spec.floor, *liner_z})
+    zb = [z for z in zb if -spec.depth - 1e-9 <= z <= spec.liner_top + 1e-9]
+    tol = 1e-9 * (spec.liner_top + spec.depth)
     zb = [z for k, z in enumerate(zb) if k == 0 or z - zb[k - 1] > tol]
+    interfaces = np.asarray(spec.interfaces[:-1])
+    nlayers = len(spec.interfaces) - 1
     field = SizeField(spec)
     with _Gmsh() as gmsh:
         occ = gmsh.model.occ
-        vols = []
-        feature = None
+        vols, vol_region = [], []
+        pieces = None           # feature, then each liner alone: (tag, region)
         for za, zc in zip(zb[:-1], zb[1:]):
             box = occ.addBox(x0, y0, za, x1 - x0, y1 - y0, zc - za)
             if zc <= spec.floor + tol:
                 vols.append(box)
+                vol_region.append(int(np.searchsorted(interfaces, 0.5 * (za + zc),
+                                                      side="right")))
                 continue
-            if feature is None:
-                feature = _feature_solid(gmsh, spec)
-            copy = occ.copy([(3, feature)])
-            out, _ = occ.intersect(copy, [(3, box)], removeObject=True, removeTool=True)
-            vols += [t for d, t in out if d == 3]
-        if feature is not None:
-            occ.remove([(3, feature)], recursive=True)
-        out, _ = occ.fragment([(3, v) for v in vols], [])
+            if pieces is None:
+                pieces = region_solids(gmsh, spec, nlayers, interfaces)
+            for tag, region in pieces:
+                if region <= nlayers and za >= spec.top - tol:
+                    continue
+                copy = occ.copy([(3, tag)])
+                out, _ = occ.intersect(copy, [(3, box)], removeObject=True, removeTool=False)
+                if region < 0:
+                    region = int(np.searchsorted(interfaces, 0.5 * (za + zc), side="right"))
+                for d, t in out:
+                    if d == 3:
+                        vols.append(t)
+                        vol_region.append(region)
+            occ.remove([(3, box)], recursive=True)
+        if pieces is not None:
+            occ.remove([(3, t) for t, _ in pieces], recursive=True)
+        out, children = occ.fragment([(3, v) for v in vols], [])
+        region_of = {}
+        for region, kids in zip(vol_region, children):
+            for d, t in kids:
+                if d == 3:
+                    region_of[t] = region
         occ.synchronize()
         if spec.periodic:
-            _set_periodic(gmsh, spec, -spec.depth, spec.top)
+            set_periodic(gmsh, spec, -spec.depth, spec.liner_top)
         opt = gmsh.option
         opt.setNumber("Mesh.MeshSizeFromPoints", 0)
         opt.setNumber("Mesh.MeshSizeFromCurvature", 0)
@@ -619,7 +436,6 @@ def mesh_shape(spec: ShapeSpec) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         index = np.full(int(tags.max()) + 1, -1, dtype=np.int64)
         index[tags.astype(np.int64)] = np.arange(len(tags))
         ts, regs = [], []
-        interfaces = np.asarray(spec.interfaces[:-1])
         for _, vol in gmsh.model.getEntities(3):
             types, _, nodes = gmsh.model.mesh.getElements(3, vol)
             for et, nd in zip(types, nodes):
@@ -627,9 +443,12 @@ def mesh_shape(spec: ShapeSpec) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
                     raise MeshError(f"gmsh produced element type {et}, expected tetrahedra")
                 tt = index[nd.astype(np.int64)].reshape(-1, 4).T
                 ts.append(tt)
-                zc = gmsh.model.occ.getCenterOfMass(3, vol)[2]
-                regs.append(np.full(tt.shape[1], np.searchsorted(interfaces, zc, side="right"),
-                                    dtype=np.int32))
+                if vol in region_of:
+                    region = region_of[vol]
+                else:       # not traced through the fragment: a layer, found by its height
+                    zc = gmsh.model.occ.getCenterOfMass(3, vol)[2]
+                    region = int(np.searchsorted(interfaces, zc, side="right"))
+                regs.append(np.full(tt.shape[1], region, dtype=np.int32))
     if not ts:
         raise MeshError("gmsh produced no tetrahedra")
     t = np.concatenate(ts, axis=1)

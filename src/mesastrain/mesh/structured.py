@@ -22,7 +22,13 @@ from mesastrain.fem.cost import Estimate, count_unknowns, pattern_nonzeros, reso
 from mesastrain.fem.discretisation import Discretisation, discretise
 from mesastrain.fem.solve import choose_method
 from mesastrain.mesh.base import ModelMesh
-from mesastrain.mesh.grid import GridSpacing, StackLayout, axis_coordinates, keep_mask
+from mesastrain.mesh.grid import (
+    GridSpacing,
+    StackLayout,
+    axis_coordinates,
+    cell_regions,
+    keep_mask,
+)
 from mesastrain.mesh.planning import layout_of
 
 log = logging.getLogger(__name__)
@@ -115,10 +121,8 @@ class StackMesh(ModelMesh):
         points = np.atleast_2d(np.asarray(points, dtype=float))
         geom = self.layout
         if geom.taper:
-            # undo the lateral scaling of a tapered feature: back to grid space
-            points = points.copy()
-            for axis in (0, 1):
-                points[:, axis] = points[:, axis] / geom.scale_at(points[:, 2], axis)
+            # undo the lateral map of a tapered feature: back to grid space
+            points = geom.to_grid(points)
         idx = [grid_cells(g, points[:, a]) for a, g in enumerate((self.xs, self.ys, self.zs))]
         inside = idx[0][2] & idx[1][2] & idx[2][2]
         cands = [np.where(inside, self.cell_of_grid[idx[0][cx], idx[1][cy], idx[2][cz]], -1)
@@ -250,24 +254,16 @@ def build_stack_mesh(geom: StackLayout, spacing: GridSpacing) -> StackMesh:
     ix = np.searchsorted(xs, mid[0]) - 1
     iy = np.searchsorted(ys, mid[1]) - 1
     iz = np.searchsorted(zs, mid[2]) - 1
-    keep = np.ones(mid.shape[1], dtype=bool)
-    if geom.patterned and geom.etch_depth > 0:
-        above = mid[2] > geom.etch_floor
-        outside = (np.abs(mid[0]) > geom.half_width) | (np.abs(mid[1]) > geom.half_length)
-        keep = ~(above & outside)
-    kept = np.flatnonzero(keep)
+    cell_region = cell_regions(geom, mid[0], mid[1], mid[2])
+    kept = np.flatnonzero(cell_region >= 0)
     mesh = full.restrict(kept) if len(kept) < full.t.shape[1] else full
     if geom.patterned and geom.taper:
-        # sloped sidewalls: scale the lateral coordinates above the etch floor
-        p = mesh.p.copy()
-        for axis in (0, 1):
-            p[axis] *= geom.scale_at(p[2], axis)
-        mesh = MeshHex(p, mesh.t)
+        # sloped sidewalls: move the lateral coordinates above the etch floor
+        mesh = MeshHex(geom.to_physical(mesh.p), mesh.t)
     # restrict() renumbers nodes but keeps element order; map grid -> element
     cell_of_grid = np.full((len(xs) - 1, len(ys) - 1, len(zs) - 1), -1, dtype=np.int64)
     cell_of_grid[ix[kept], iy[kept], iz[kept]] = np.arange(len(kept))
-    zmid = mid[2, kept]
-    region = np.searchsorted(np.asarray(geom.interfaces[:-1]), zmid, side="right").astype(np.int32)
+    region = cell_region[kept].astype(np.int32)
     sm = StackMesh(mesh=mesh, region=region, xs=xs, ys=ys, zs=zs,
                    cell_of_grid=cell_of_grid, layout=geom, spacing=spacing)
     log.info("meshed %r", sm)

@@ -77,6 +77,11 @@ class LayerModel:
         The layer's built-in blanket stress, MPa (tensile positive), if given.
     deposition_temperature : float or None
         K; None without a ``[thermal]`` table.
+    liner : int
+        0 for the substrate and the grown layers; k for the k-th ``[[liner]]``
+        (then ``z_bottom``, ``z_top`` are the liner's extent over the feature top).
+    title : str or None
+        The liner's name (``[[liner]] name``).
     """
 
     index: int
@@ -94,10 +99,19 @@ class LayerModel:
     epitaxial: bool = True
     builtin_stress: float | None = None
     deposition_temperature: float | None = None
+    liner: int = 0
+    title: str | None = None
 
     @property
     def name(self) -> str:
+        if self.liner:
+            return self.title or f"liner {self.liner}"
         return "substrate" if self.index == 0 else f"layer {self.index}"
+
+
+def stack_of(layers: list) -> list:
+    """The substrate and the grown layers of a region list (the liners left out)."""
+    return [lm for lm in layers if not lm.liner]
 
 
 def _reference_lattice(below: tuple, below_system: str, mat: Material, key: str) -> tuple:
@@ -201,7 +215,54 @@ def build_layers(case: Case, material=None) -> list[LayerModel]:
                               deposition_temperature=_deposition_temperature(case, lay)))
         z += lay.thickness
         below_lat, below_sys = (a_eff, c_eff), mat.system
+    for k, lin in enumerate(case.liners, start=1):
+        out.append(_liner_model(case, lin, k, len(out), z, smat, sframe, tilt, resolve))
+        z += lin.thickness
     return out
+
+
+def liner_eigenstrain(stiffness_sample: np.ndarray, stress: float) -> np.ndarray:
+    """Eigenstrain that gives a conformal liner its built-in stress, sample frame.
+
+    The in-plane part is that of a deposited layer
+    (:func:`mesastrain.physics.deposited.deposited_film_eigenstrain`: a blanket
+    film carries exactly ``stress`` equi-biaxially); the zz part is the mean of
+    xx and yy. For an isotropic liner this is the dilatation e I with
+    e = -stress (1 - nu) / E: the same biaxial stress on the top and the floor,
+    and in the plane of every sidewall whatever its angle (the out-of-plane
+    part of an eigenstrain does not stress a film with a free surface).
+    """
+    eps0 = deposited_film_eigenstrain(stiffness_sample, stress)
+    eps0[2, 2] = 0.5 * (eps0[0, 0] + eps0[1, 1])
+    return eps0
+
+
+def _liner_model(case: Case, lin, k: int, index: int, z: float, smat: Material,
+                 sframe: Frame, tilt, resolve=None) -> LayerModel:
+    """The region of the k-th liner: a deposited film (no lattice mismatch)."""
+    key = f"liner[{k - 1}]"
+    sub = case.substrate
+    mat = (case.material if resolve is None else resolve)(lin.material, None)
+    if INDEX_SYSTEMS[mat.system] == INDEX_SYSTEMS[smat.system]:
+        frame = _frame(mat, sub.normal, sub.x_axis)
+    else:       # a crystal of another system: a textured film, its c (or [001]) along z
+        frame = _frame(mat, (0, 0, 1), (1, 0, 0))
+    if tilt is not None:
+        frame = frame.tilted(tilt, sub.miscut[0])
+    stiff = frame.stiffness_to_sample(mat.stiffness)
+    eig_s = np.zeros((3, 3))
+    thermal_c = None
+    if case.thermal is not None:
+        th_s, _ = _thermal_part(case, lin, key, mat, frame, smat, sframe, 1.0, np.zeros((3, 3)))
+        thermal_c = frame.to_crystal(th_s)
+        eig_s = eig_s + th_s
+    if lin.stress is not None:
+        eig_s = eig_s + liner_eigenstrain(stiff, lin.stress)
+    return LayerModel(index, mat, frame, z, z + lin.thickness, 1.0, (mat.a, mat.c),
+                      frame.to_crystal(eig_s), 0.0, stiff, eig_s, thermal_c, epitaxial=False,
+                      builtin_stress=lin.stress,
+                      deposition_temperature=_deposition_temperature(case, lin), liner=k,
+                      title=lin.name)
 
 
 def _deposition_temperature(case: Case, lay) -> float | None:

@@ -37,6 +37,8 @@ from mesastrain.physics.bands import device_parameters, parameter_entry
 from mesastrain.physics.crystal import rotate_tensor4
 
 __all__ = [
+    "LINEAR_LIMIT_PERCENT",
+    "LINEAR_LIMIT_REASON",
     "PI_UNIT_PER_MPA",
     "PiezoCoefficients",
     "longitudinal_transverse",
@@ -49,6 +51,16 @@ __all__ = [
 
 #: d rho/rho per (coefficient in 1e-11/Pa) per (stress in MPa): 1e-11 * 1e6.
 PI_UNIT_PER_MPA = 1e-5
+
+#: |100 Δρ/ρ| (%) up to which the linear model is used as valid. The coefficients are
+#: small-stress slopes (Smith, Phys. Rev. 94, 42, 1954, measured at tens of MPa); Kanda
+#: (IEEE Trans. Electron Devices 29, 64, 1982) treats them as such; the response of Si becomes
+#: visibly non-linear at a few hundred MPa. The 20 % bound itself is common practice.
+LINEAR_LIMIT_PERCENT = 20.0
+#: Why a larger change is not shown as a result (tables, summary.json).
+LINEAR_LIMIT_REASON = ("beyond the small-stress range of the linear piezoresistance model "
+                       "(|Δρ/ρ| up to about 20 %, common practice; Smith 1954 coefficients are "
+                       "small-stress slopes): the real change is not given by this model")
 
 
 @dataclass(frozen=True)

@@ -18,6 +18,7 @@ import numpy as np
 
 from mesastrain.errors import MaterialError
 from mesastrain.physics.bands import device_parameters, parameter_entry
+from mesastrain.physics.quantities import pdp_words
 
 __all__ = ["BiaxialLine", "RamanParameters", "biaxial_line", "pdp_sets", "raman_parameters",
            "sige_parameters"]
@@ -156,8 +157,9 @@ def sige_parameters(x: float, pdp_set: str | None = None) -> RamanParameters:
     c = get_material("SiGe", x).constants
     b_si = 0.5 * omega0 * (si.p * (-2.0 * c["C12"] / c["C11"]) + 2.0 * si.q)
     s = b / b_si
-    note = (f"p, q, r = {s:.4f} x Si set {si.pdp_set} (Si ratios assumed; scaled to b_SiSi with "
-            f"the alloy's C11, C12) [D]")
+    note = (f"phonon deformation potentials p, q, r of the alloy = {s:.4f} × those of Si "
+            f"({pdp_words(si.pdp_set)}): the ratios of Si kept, scaled so that they give the "
+            f"measured biaxial coefficient b of the Si-Si mode with the alloy's C11, C12 [D]")
     return RamanParameters(material="SiGe", pdp_set=f"{si.pdp_set} scaled to b_SiSi",
                            p=s * si.p, q=s * si.q, r=s * si.r, omega0=omega0,
                            sources=(c1, c2, c3, note) + si.sources[1:])

@@ -432,7 +432,7 @@ def test_cut_csv_and_report(tmp_path):
     assert rows[-1][4] == "0" and abs(float(rows[-1][k])) < 1e-3   # relaxed SiGe: no shift
     summ = json.loads((out / "summary.json").read_text())
     text = report_text(summ, out)
-    assert "Raman" in text and "cm^-1" in text and "delta_z" in text
+    assert "Raman" in text and "cm⁻¹" in text and "Δ[001]" in text
     from mesastrain.io import report
     from mesastrain.io.report_device import section_device
 

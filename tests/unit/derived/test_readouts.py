@@ -11,7 +11,7 @@ from scipy.optimize import brentq
 
 from mesastrain.case.parse import parse_case
 from mesastrain.derived import solve_and_derive
-from mesastrain.derived.relaxation import relaxation_length
+from mesastrain.derived.relaxation import overshoot, relaxation_length
 from mesastrain.errors import CaseError
 from mesastrain.io.export import jsonable
 from mesastrain.physics.materials import get_material
@@ -60,6 +60,41 @@ def test_relaxation_length_definition():
     ratio2 = np.array([0.0, 0.95, 0.5, 0.95, 1.0, 1.0])
     assert relaxation_length(s, ratio2) == pytest.approx(2.0 + 0.4 / 0.45)
     assert relaxation_length(s, np.ones(6)) == 0.0
+
+
+def test_relaxation_length_does_not_hide_an_overshoot():
+    # a cap pulled over a relaxing film: 3 x its centre stress 2 nm in from the sidewall. The
+    # length is where the stress settles within 10 % of the centre value for good (entering
+    # the band through 1.1 between s = 3 and 4), not where it first passes 0.9 (s = 1.16)
+    s = np.array([0.0, 1.0, 2.0, 3.0, 4.0, 10.0])
+    ratio = np.array([0.0, 0.5, 3.0, 2.0, 1.05, 1.0])
+    assert relaxation_length(s, ratio) == pytest.approx(3.0 + 0.9 / 0.95)
+    assert overshoot(s, ratio) == {"peak_over_centre": 3.0, "at": 2.0}
+    assert overshoot(s, np.array([0.0, 0.5, 0.85, 0.95, 1.05, 1.0])) is None
+
+
+def test_summary_flags_singular_peaks_and_piezoresistance_out_of_range(small_mesa_result):
+    import json
+
+    from mesastrain.io.folder import summary_of
+
+    s = json.loads(json.dumps(summary_of(small_mesa_result), default=lambda o: o.tolist()))
+    peaks = {e["index"]: e["peaks"]["von_mises"] for e in s["readouts"]["layers"]}
+    for lf in s["layer_figures"]:
+        assert lf["max_von_mises_singular"] == peaks[lf["index"]]["singular"]
+    assert s["layer_figures"][0]["max_von_mises_singular"]     # the etch-floor corner
+    lim = s["device"]["piezo_linear_limit"]["percent"]
+    assert lim == 20.0 and "Smith 1954" in s["device"]["piezo_linear_limit"]["reason"]
+    for f in s["device"]["layer_figures"]:
+        for k, v in f.items():
+            if k.startswith("piezo_"):
+                beyond = [q for q in ("mean", "min", "max") if abs(v[q]) > lim]
+                assert v.get("out_of_range", []) == beyond
+    for p in s["probes"]:
+        for item in (p.get("piezoresistance") or {}).values():
+            if item and item.get("longitudinal") is not None:
+                beyond = [w for w in ("longitudinal", "transverse") if abs(item[w]) > lim]
+                assert item.get("out_of_range", []) == beyond
 
 
 # --------------------------------------------------------------------------
