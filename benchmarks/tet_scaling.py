@@ -62,7 +62,7 @@ def child(case_path: str) -> None:
     wall = time.perf_counter() - t
     summ = json.loads((out / "summary.json").read_text())
     print(json.dumps({"rc": rc, "wall": wall, "peak_gb": peak_rss_gb(),
-                      "unknowns": summ["mesh"]["unknowns"], "timings": summ["timings"],
+                      "unknowns": summ["mesh"]["solved"]["unknowns"], "timings": summ["timings"],
                       "solver": summ["solver"], "est_s": est.seconds,
                       "est_gb": est.memory_gb, "est_unknowns": est.unknowns}))
 

@@ -26,7 +26,7 @@ from decimal import Decimal
 from mesastrain.errors import CaseError
 
 __all__ = ["LENGTH_UNITS", "MAX_LENGTH_NM", "MAX_TEMPERATURE_K", "TEMPERATURE_UNITS",
-           "finite_float", "is_number", "parse_length", "parse_temperature", "safe_name",
+           "finite_float", "fmt", "is_number", "parse_length", "parse_temperature", "safe_name",
            "show_value"]
 
 #: Length units accepted in strings, and their size in nanometres.
@@ -111,6 +111,30 @@ def show_value(value) -> str:
     if value is None:
         return "nothing"
     return str(value)
+
+
+def fmt(value: float, spec: str = ".4g") -> str:
+    """A number formatted with ``spec`` and never shown as ``-0`` (the one table formatter).
+
+    A value that rounds to zero at the requested precision is written without its
+    sign (``fmt(-0.04, ".1f")`` is ``"0.0"``, not ``"-0.0"``), so that terminal tables,
+    CSV files and the report show the same text for the same number.
+
+    Parameters
+    ----------
+    value : float
+    spec : str
+        A format spec as for :func:`format` (``".1f"``, ``"10.1f"``, ``"+.3g"``).
+
+    Returns
+    -------
+    str
+    """
+    text = format(value, spec)
+    if ("-" in text and math.isfinite(value)
+            and not any(c in "123456789" for c in text.lower().split("e")[0])):
+        return format(0.0, spec)    # a negative that rounds to zero: no sign
+    return text
 
 
 def is_number(value) -> bool:

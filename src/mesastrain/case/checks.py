@@ -62,11 +62,11 @@ class CrossChecks:
     def dislocations(self, sets: list) -> None:
         """Interface index in range, line in the interface, a pattern the lines fit.
 
-        ``sets`` are the read ``[[dislocations]]`` tables.
+        ``sets`` are the read ``[[dislocation]]`` tables.
         """
         shape = self.pattern["shape"]
         for i, ds in enumerate(sets):
-            ik = f"dislocations[{i}]"
+            ik = f"dislocation[{i}]"
             if ds["interface"] >= len(self.layers):
                 raise CaseError(f"{ik}.interface", f"{ds['interface']} is not a layer's bottom "
                                                    f"interface; allowed: 0 to "
@@ -96,7 +96,7 @@ class CrossChecks:
                                               "only lines along the stripe (sample y) fit")
             if shape == "none" and "positions" in ds:
                 raise CaseError(f"{ik}.positions", "a blanket film is modelled as a periodic "
-                                                   "cell: give spacing or relaxation")
+                                                   "cell: give spacing or relaxed")
 
     def temperatures(self, thermal: dict) -> None:
         """Growth and final temperature below the lowest melting point of the stack's materials.
@@ -108,7 +108,7 @@ class CrossChecks:
         for where, t in [("substrate", self.substrate)] + [
                 (f"layer[{i}]", t) for i, t in enumerate(self.layers)]:
             try:
-                tm = melting_point(get_material(t["material"], t.get("x")))
+                tm = melting_point(get_material(t["material"], t.get("composition")))
             except MesastrainError:
                 continue
             if tm is not None and (lowest is None or tm < lowest):

@@ -30,6 +30,7 @@ from pathlib import Path
 
 from mesastrain.case import readers as rd
 from mesastrain.case.keys import Key, Kind, Table
+from mesastrain.case.renames import RENAMED_KEYS, RENAMED_TABLES
 from mesastrain.physics.bands import device_parameters
 from mesastrain.physics.elastic import STIFFNESS_KEYS, SYMMETRY_SYSTEMS
 from mesastrain.physics.materials import builtin_materials
@@ -216,7 +217,9 @@ TITLE = Key("title", STRING, "Title of the case.", computed="the file name witho
 SUBSTRATE = Table("substrate", "substrate", "The wafer.", (
     Key("material", MATERIAL, "Material name, as `mesastrain materials` lists them.",
         required="the substrate material"),
-    Key("x", FRACTION, "Alloy fraction of the second member (alloys only)."),
+    Key("composition", FRACTION, "Alloy composition: the fraction of the alloy's second "
+                                 "member, 0 to 1 (alloys only; Ge in SiGe). Old name: x.",
+        attr="x"),
     Key("thickness", POSITIVE_LENGTH, "Wafer thickness.",
         required='the wafer thickness, e.g. "0.5 mm"'),
     Key("normal", INDICES, "Surface plane (hkl) or (hkil): sample +z.",
@@ -230,8 +233,15 @@ SUBSTRATE = Table("substrate", "substrate", "The wafer.", (
 ))
 
 LAYER = Table("layer", "layers", "The grown layers, bottom to top; at least one.", (
+    Key("name", Kind(rd.name, {"type": "string", "minLength": 1, "maxLength": rd.MAX_NAME,
+                               "pattern": r"^[^.\[\]]+$"}),
+        "The layer's name in every output (tables, summary.json, warnings, fields.vtu); "
+        "unique in the stack (letter case ignored), without '.', '[' or ']', not "
+        '"substrate".', computed='the material, with " 2", " 3" ... appended when it repeats'),
     Key("material", MATERIAL, "Material name.", required="the layer material"),
-    Key("x", FRACTION, "Alloy fraction of the second member (alloys only)."),
+    Key("composition", FRACTION, "Alloy composition: the fraction of the alloy's second "
+                                 "member, 0 to 1 (alloys only; Ge in SiGe). Old name: x.",
+        attr="x"),
     Key("thickness", POSITIVE_LENGTH, "Layer thickness.",
         required='the layer thickness, e.g. "40 nm"'),
     Key("relaxed", FRACTION, "0 = pseudomorphic to the layer below, 1 = fully relaxed.",
@@ -425,8 +435,9 @@ READOUTS = Table("readouts", "readouts", "Settings of the engineering readouts."
     Key("bow", BOOL, "Solve the free-standing blanket wafer for its curvature.", default=True),
 ))
 
-DISLOCATIONS = Table("dislocations", "dislocations", "Families of parallel straight misfit "
-                     "dislocations; each gives one of positions, spacing and relaxation.", (
+DISLOCATIONS = Table("dislocation", "dislocations", "Families of parallel straight misfit "
+                     "dislocations; each gives one of positions, spacing and relaxed. Old "
+                     "name of the table: [[dislocations]].", (
     _NAME,
     Key("interface", _int_between(0, rd.MAX_ITEMS),
         "The lines lie at the bottom of layer[interface].",
@@ -442,8 +453,9 @@ DISLOCATIONS = Table("dislocations", "dislocations", "Families of parallel strai
                                             "minItems": 1, "maxItems": rd.MAX_ITEMS}),
         "Positions of the lines from the pattern centre, normal to the lines."),
     Key("spacing", POSITIVE_LENGTH, "Line spacing of a periodic array."),
-    Key("relaxation", Kind(rd.relaxation, _number(exclusiveMinimum=0, maximum=1)),
-        "Target relaxation of the layer's mismatch; sets the spacing."),
+    Key("relaxed", Kind(rd.relaxation, _number(exclusiveMinimum=0, maximum=1)),
+        "Fraction of the layer's mismatch the lines relieve (as [[layer]] relaxed); sets the "
+        "spacing. Old name: relaxation.", attr="relaxation"),
     Key("offset", LENGTH, "Position of one line of a spacing/relaxation array.", default=0.0,
         echo_if=lambda d: d.positions is None),
 ), array=True)
@@ -542,6 +554,19 @@ def _table_schema(tab: Table) -> dict:
     return out
 
 
+def _old_names(props: dict) -> None:
+    """Accept the old spellings (:mod:`mesastrain.case.renames`), marked ``deprecated``."""
+    for (tab, old), new in RENAMED_KEYS.items():
+        node = props[tab]
+        node = node["items"] if node.get("type") == "array" else node
+        item = copy.deepcopy(node["properties"][new])
+        item.update({"deprecated": True, "description": f"Old name of {new}."})
+        node["properties"][old] = item
+    for old, new in RENAMED_TABLES.items():
+        props[old] = {**copy.deepcopy(props[new]), "deprecated": True,
+                      "description": f"Old name of [[{new}]]."}
+
+
 def json_schema() -> dict:
     """The JSON Schema (draft 2020-12) of the case file, from the declarations.
 
@@ -561,6 +586,7 @@ def json_schema() -> dict:
                             "additionalProperties": one}
     props.update({t.name: _table_schema(t) for t in TABLES})
     props = copy.deepcopy(props)        # the kinds' fragments are shared
+    _old_names(props)
     return {
         "$schema": "https://json-schema.org/draft/2020-12/schema",
         "title": "mesastrain case file",

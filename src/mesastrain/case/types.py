@@ -9,7 +9,7 @@ keys and the echo :meth:`Case.to_dict` come from the declarations in
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 from mesastrain.case.keys import echo
 from mesastrain.case.schema import (
@@ -126,6 +126,9 @@ class Layer:
 
     Attributes
     ----------
+    name : str
+        The layer's name in every output (:mod:`mesastrain.case.names`); always set after
+        :func:`mesastrain.case.parse.parse_case`.
     material, x
         As for :class:`Substrate`.
     thickness : float
@@ -147,6 +150,7 @@ class Layer:
     epitaxial: bool | None = None
     stress: float | None = None
     deposition_temperature: float | None = None
+    name: str | None = None
 
 
 @dataclass(frozen=True)
@@ -433,7 +437,7 @@ class DislocationSet:
     burgers_fraction: float = DISLOCATIONS.default("burgers_fraction")
     positions: tuple | None = DISLOCATIONS.default("positions")
     spacing: float | None = DISLOCATIONS.default("spacing")
-    relaxation: float | None = DISLOCATIONS.default("relaxation")
+    relaxation: float | None = DISLOCATIONS.default("relaxed")
     offset: float = DISLOCATIONS.default("offset")
 
 
@@ -484,6 +488,7 @@ class Case:
     readouts: ReadoutSettings = ReadoutSettings()
     dislocations: tuple = ()
     materials: tuple = ()
+    notes: tuple = field(default=(), compare=False)
 
     def material(self, name: str, x: float | None = None):
         """Resolve a material name: the case's own ``[material.NAME]`` first, then built-ins.
@@ -545,4 +550,4 @@ class Case:
 TABLE_TYPES = {"substrate": Substrate, "layer": Layer, "pattern": Pattern, "thermal": Thermal,
                "mesh": MeshSettings, "solver": SolverSettings, "probe": Probe, "cut": LineCut,
                "output": OutputSettings, "channel": Channel, "device": DeviceSettings,
-               "readouts": ReadoutSettings, "dislocations": DislocationSet}
+               "readouts": ReadoutSettings, "dislocation": DislocationSet}

@@ -90,9 +90,9 @@ def derive(res) -> Derived:
     feats = standoff_values(res, edge_features(res, standoff)) if floor is not None else []
     warnings.extend(standoff_warnings(feats, standoff))
 
-    layers_out, relax_rows = [], []
+    layers_out, relax_rows = {}, []
     for lm in res.layers:
-        entry = {"index": lm.index, "name": lm.name, "label": lm.material.label,
+        entry = {"region": lm.index, "label": lm.material.label,
                  "z_bottom": lm.z_bottom, "z_top": lm.z_top}
         peaks = region_peaks(res, lm.index, centres)
         for pk in peaks.values():
@@ -131,7 +131,7 @@ def derive(res) -> Derived:
                 w = critical_warning(lm, ct)
                 if w:
                     warnings.append(w)
-        layers_out.append(entry)
+        layers_out[lm.name] = entry
 
     interfaces, traction_rows = [], []
     for k, z in free_edge_interfaces(res):

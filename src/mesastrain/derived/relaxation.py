@@ -118,7 +118,7 @@ def plot_relaxation(path: Path, rows: list, layers, layers_out) -> None:
     import matplotlib.pyplot as plt
 
     regions = sorted({r[0] for r in rows})
-    info = {e["index"]: e for e in layers_out}
+    info = {e["region"]: e for e in layers_out.values()}
     stack = layers[-1].z_top
     fig, axes = plt.subplots(len(regions), 1, figsize=(7.5, 2.6 * len(regions) + 0.5),
                              dpi=110, squeeze=False)

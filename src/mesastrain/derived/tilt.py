@@ -55,7 +55,7 @@ def layer_tilts(res: Result) -> list[dict]:
         same = lm.material.system == sub.material.system
         nominal = nominal_sub if same else None
         H, _ = blanket_gradient(lm.stiffness_sample, lm.eigenstrain_sample)
-        item = {"index": lm.index, "name": lm.name, "label": lm.material.label,
+        item = {"name": lm.name, "region": lm.index, "label": lm.material.label,
                 "closed_form": _figures(H, lm.eigenstrain_sample, nominal)}
         if nominal is None:
             item["note"] = "plane tilt not given: the layer's crystal system differs from the substrate's"
@@ -84,4 +84,4 @@ def derive(res: Result) -> Derived:
                        "J. Appl. Phys. 45, 3789 (1974), tan(d_alpha) = e_zz tan(miscut); "
                        "closed_form: coherent blanket layer; finite_element: the blanket "
                        "model's layer average"),
-        "layers": layer_tilts(res)}})
+        "layers": {t.pop("name"): t for t in layer_tilts(res)}}})

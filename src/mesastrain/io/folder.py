@@ -27,7 +27,7 @@ def layer_summary(lm: LayerModel) -> dict:
     if mat.c is not None:
         lattice["c"] = mat.c
     return {
-        "index": lm.index, "name": lm.name, "material": mat.name, "x": mat.x,
+        "name": lm.name, "region": lm.index, "material": mat.name, "x": mat.x,
         "label": mat.label, "system": mat.system,
         "z_bottom": lm.z_bottom, "z_top": lm.z_top,
         "normal": format_indices(lm.frame.normal, "()"),
@@ -46,10 +46,13 @@ def layer_summary(lm: LayerModel) -> dict:
     }
 
 
-def layer_figures(res: Result) -> list[dict]:
-    """Per-region volume averages and extremes of the element stresses (MPa)."""
+def layer_figures(res: Result) -> dict:
+    """Per-region volume averages and extremes of the element stresses (MPa), keyed by name.
+
+    ``region`` is the region's id in the ``region`` cell array of ``fields.vtu``.
+    """
     fl = res.fields
-    out = []
+    out = {}
     for lm in res.layers:
         m = res.mesh.layer == lm.index
         if not np.any(m):
@@ -60,10 +63,10 @@ def layer_figures(res: Result) -> list[dict]:
         vm = von_mises(sig)
         k = int(np.argmax(vm))
         centres = res.mesh.mesh.p[:, res.mesh.mesh.t[:, m]].mean(axis=1).T
-        out.append({"index": lm.index, "name": lm.name, "label": lm.material.label,
-                    "volume_nm3": float(vol.sum()),
-                    "mean_stress": mean, "max_von_mises": float(vm[k]),
-                    "max_von_mises_at": centres[k]})
+        out[lm.name] = {"region": lm.index, "label": lm.material.label,
+                        "volume": float(vol.sum()),
+                        "mean_stress": mean, "max_von_mises": float(vm[k]),
+                        "max_von_mises_at": centres[k]}
     return out
 
 
@@ -82,10 +85,29 @@ def boundary_text(mesh) -> str:
     return "; ".join(parts + ["top and sidewalls free"])
 
 
+def mesh_summary(res: Result) -> dict:
+    """``summary.json`` ``mesh``: the solved system and the exported body, by name.
+
+    ``solved`` is what the solver saw (a half or quarter model, a 2-D section);
+    ``exported`` the whole body written to ``fields.vtu``. ``grid`` (cells along x, y,
+    z) only for the structured grid, where it means something.
+    """
+    m = res.mesh
+    exported = {"nodes": int(m.mesh.p.shape[1]), "elements": int(m.mesh.t.shape[1])}
+    solved = dict(res.solved) or {"unknowns": int(res.u.size), "nodes": exported["nodes"],
+                                  "elements": exported["elements"], "order": res.order}
+    out = {"solved": solved, "exported": exported}
+    if getattr(m, "kind", "") == "structured":
+        out["grid"] = [len(m.xs) - 1, len(m.ys) - 1, len(m.zs) - 1]
+    out["model_extent"] = {"x": [m.xs[0], m.xs[-1]], "y": [m.ys[0], m.ys[-1]],
+                           "z": [m.zs[0], m.zs[-1]]}
+    out["size"], out["edge_size"] = m.spacing.size, m.spacing.edge_size
+    return out
+
+
 def summary_of(res: Result) -> dict:
     """The content of ``summary.json``."""
     case = res.case
-    nn = res.mesh.nnodes
     return {
         "program": {"name": "mesastrain", "version": __version__},
         "title": case.title,
@@ -103,13 +125,7 @@ def summary_of(res: Result) -> dict:
         },
         "case": case.to_dict(),
         "layers": [layer_summary(lm) for lm in res.layers],
-        "mesh": {"nodes": nn, "elements": res.mesh.nelems, "unknowns": int(res.u.size),
-                 "order": res.order,
-                 "grid": [len(res.mesh.xs) - 1, len(res.mesh.ys) - 1, len(res.mesh.zs) - 1],
-                 "model_extent": {"x": [res.mesh.xs[0], res.mesh.xs[-1]],
-                                  "y": [res.mesh.ys[0], res.mesh.ys[-1]],
-                                  "z": [res.mesh.zs[0], res.mesh.zs[-1]]},
-                 "size": res.mesh.spacing.size, "edge_size": res.mesh.spacing.edge_size},
+        "mesh": mesh_summary(res),
         "boundary_conditions": boundary_text(res.mesh),
         "solver": res.solver.to_dict(),
         "timings": {k: round(v, 3) for k, v in res.timings.items()},

@@ -41,10 +41,10 @@ def report_text(summary: dict, folder) -> str:
     folder = Path(folder)
     lines = ["Device readouts (band edges eV, Raman shift cm^-1, piezoresistance % = "
              "100 d rho/rho; element averages: mean [min, max] per region)"]
-    figs = {f["index"]: f for f in dev.get("layer_figures", [])}
-    for reg in dev["regions"]:
-        f = figs.get(reg["index"], {})
-        head = f"  region {reg['index']} {reg['label']}:"
+    figs = dev.get("layer_figures", {})
+    for name, reg in dev["regions"].items():
+        f = figs.get(name, {})
+        head = f"  {name} ({reg['label']}):"
         parts = []
         if "raman_shift" in f:
             r, rm = f["raman_shift"], reg["raman"]
@@ -124,16 +124,16 @@ def section_device(summary: dict, folder) -> str | None:
     if not dev:
         return None
     folder = Path(folder)
-    figs = {f["index"]: f for f in dev.get("layer_figures", [])}
+    figs = dev.get("layer_figures", {})
     rows = []
-    for reg in dev["regions"]:
-        f = figs.get(reg["index"], {})
+    for name, reg in dev["regions"].items():
+        f = figs.get(name, {})
         rm = reg.get("raman") or {}
         valleys = "+".join(f.get("conduction_valleys", [])) or "-"
         split = "-"
         if "band_shift_delta_z" in f and "band_shift_delta_x" in f:
             split = _mev(f["band_shift_delta_z"]["mean"] - f["band_shift_delta_x"]["mean"])
-        rows.append([esc(reg["index"]), esc(reg["label"]),
+        rows.append([esc(name), esc(reg["label"]),
                      esc(_stat(f, "raman_shift", 1.0, "+.2f")),
                      esc(rm.get("pdp_set", "-")),
                      num(rm.get("stress_per_shift_uniaxial_x"), 4),
@@ -153,15 +153,15 @@ def section_device(summary: dict, folder) -> str | None:
              'band, strained minus unstrained.</p>']
     chan_rows = []
     for ch in dev.get("channels", []):
-        for reg in dev["regions"]:
+        for name, reg in dev["regions"].items():
             c = (reg.get("piezo") or {}).get(ch["name"])
             if not c:
                 continue
-            f = figs.get(reg["index"], {})
+            f = figs.get(name, {})
             d = ch["direction_sample"]
             chan_rows.append([esc(ch["name"]) + (" (default)" if ch.get("default") else ""),
                               esc(ch["carrier"]), esc(f"{d[0]:.3g}, {d[1]:.3g}"),
-                              esc(f"{reg['index']} {reg['label']}"),
+                              esc(f"{name} ({reg['label']})"),
                               esc(c["direction_crystal"]), num(c["pi_l"], 4), num(c["pi_t"], 4),
                               esc(_stat(f, f"piezo_{ch['field']}_long", 1.0, "+.1f")),
                               esc(_stat(f, f"piezo_{ch['field']}_trans", 1.0, "+.1f"))])

@@ -65,7 +65,7 @@ def draw_stack(summary: dict, path: Path) -> Path:
     from matplotlib.patches import Rectangle
 
     case = summary["case"]
-    layers = [lay for lay in summary["layers"] if lay["index"] > 0]
+    layers = [lay for lay in summary["layers"] if lay["region"] > 0]
     top = max(lay["z_top"] for lay in layers)
     pat = case.get("pattern", {"shape": "none"})
     patterned = pat.get("shape", "none") != "none"
@@ -161,9 +161,14 @@ def section_inputs(summary: dict, folder: Path) -> str:
                    f"(integrated expansion mismatch) is added to the lattice mismatch.</p>")
     mesh, solver = summary.get("mesh", {}), summary.get("solver", {})
     sym = summary.get("model") or {}
-    out.append(f"<p><b>Model:</b> elements of order {esc(mesh.get('order'))}, "
-               f"{num(solver.get('unknowns') or mesh.get('unknowns'), 8)} unknowns solved"
-               + (f", {esc(sym.get('model'))} model" if sym.get("model") else "")
+    solved, exported = mesh.get("solved", {}), mesh.get("exported", {})
+    out.append(f"<p><b>Model:</b> {esc(solved.get('element_type'))}, order "
+               f"{esc(solved.get('order'))}; solved system: "
+               f"{num(solved.get('unknowns'), 8)} unknowns on {num(solved.get('nodes'), 8)} "
+               f"nodes" + (f" ({esc(sym.get('symmetry'))} model)"
+                           if sym.get("symmetry") not in (None, "full") else "")
+               + f"; exported body: {num(exported.get('nodes'), 8)} nodes, "
+               f"{num(exported.get('elements'), 8)} elements"
                + f"; solver {esc(solver.get('method'))}, relative residual "
                f"{num(solver.get('relative_residual'), 2)}; total time "
                f"{num(sum(summary.get('timings', {}).values()), 3, 's')}.</p>")
@@ -190,8 +195,8 @@ def section_headline(summary: dict, folder: Path) -> str | None:
     if not ro:
         return None
     rows = []
-    for e in ro["layers"]:
-        if e["index"] == 0:
+    for name, e in ro["layers"].items():
+        if e["region"] == 0:
             continue
         rl = e.get("relaxation") or {}
 
@@ -208,7 +213,7 @@ def section_headline(summary: dict, folder: Path) -> str | None:
             flag = ' <span class="sing">exceeded</span>'
         vm = (e.get("peaks") or {}).get("von_mises", {})
         rows.append([
-            f"{esc(e['name'])}: {esc(e['label'])}",
+            f"{esc(name)}: {esc(e['label'])}",
             _stress_pair(e.get("blanket_stress")),
             _stress_pair(e.get("centre_stress")),
             num((e.get("centre_over_blanket") or {}).get("xx"), 3),

@@ -317,5 +317,8 @@ def estimate_section(case) -> Estimate:
     order = case.mesh.order
     scalar = vertices if order == 1 else int(k2.sum())
     nloc = 4 if order == 1 else 9
-    return estimate_from_counts(case, vertices, int(keep.sum()), scalar, nloc,
-                                18 if order == 1 else 45)
+    est = estimate_from_counts(case, vertices, int(keep.sum()), scalar, nloc,
+                               18 if order == 1 else 45, shape="quadrilaterals", section=True)
+    # exported as one layer of hexahedra: twice the section's vertices
+    return replace(est, nodes=2 * vertices, solved_nodes=vertices,
+                   solved_elements=int(keep.sum()), solved_unknowns=3 * scalar)

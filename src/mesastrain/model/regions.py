@@ -34,6 +34,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from mesastrain.case.names import SUBSTRATE, region_names
 from mesastrain.case.types import Case
 from mesastrain.errors import CaseError, MaterialError
 from mesastrain.physics.crystal import INDEX_SYSTEMS, Frame, miscut_rotation, sample_frame
@@ -77,6 +78,9 @@ class LayerModel:
         The layer's built-in blanket stress, MPa (tensile positive), if given.
     deposition_temperature : float or None
         K; None without a ``[thermal]`` table.
+    name : str
+        The region's name in every output: ``"substrate"`` or the layer's ``name``
+        (:mod:`mesastrain.case.names`). The one source of region names downstream.
     """
 
     index: int
@@ -94,10 +98,12 @@ class LayerModel:
     epitaxial: bool = True
     builtin_stress: float | None = None
     deposition_temperature: float | None = None
+    name: str = ""
 
-    @property
-    def name(self) -> str:
-        return "substrate" if self.index == 0 else f"layer {self.index}"
+    def __post_init__(self):
+        if not self.name:       # built by hand (tests, the API): the default names
+            object.__setattr__(self, "name", SUBSTRATE if self.index == 0
+                               else f"layer {self.index}")
 
 
 def _reference_lattice(below: tuple, below_system: str, mat: Material, key: str) -> tuple:
@@ -155,6 +161,7 @@ def build_layers(case: Case) -> list[LayerModel]:
                       np.zeros((3, 3)))]
     below_lat, below_sys = (smat.a, smat.c), smat.system
     q_below = np.zeros((3, 3))    # thermal lattice shift of the layer below (sample frame)
+    names = region_names("layer", [(lay.name, lay.material) for lay in case.layers])
     z = 0.0
     for i, lay in enumerate(case.layers, start=1):
         key = f"layer[{i - 1}]"
@@ -194,7 +201,8 @@ def build_layers(case: Case) -> list[LayerModel]:
         out.append(LayerModel(i, mat, frame, z, z + lay.thickness, r, (a_eff, c_eff),
                               frame.to_crystal(eig_s), misfit, stiff, eig_s, thermal_c,
                               epitaxial=epitaxial, builtin_stress=lay.stress,
-                              deposition_temperature=_deposition_temperature(case, lay)))
+                              deposition_temperature=_deposition_temperature(case, lay),
+                              name=names[i - 1]))
         z += lay.thickness
         below_lat, below_sys = (a_eff, c_eff), mat.system
     return out

@@ -158,15 +158,21 @@ def study(case, levels: int = DEFAULT_LEVELS, ratio: float = DEFAULT_RATIO, prog
                          f"needs about {est.memory_gb:.1f} GB, {limit:.1f} GB allowed"})
             say(f"convergence: level {k} skipped ({est.memory_gb:.1f} GB needed)")
             break
-        say(f"convergence: level {k}, element sizes / {ratio ** k:.3g}")
+        say(f"convergence: level {k + 1} of {levels} running: element sizes / "
+            f"{ratio ** k:.3g}, {est.solved_unknowns or est.unknowns:,} unknowns, about "
+            f"{est.seconds:.0f} s")
         t = time.perf_counter()
-        res = run_case(c, progress=progress if k == 0 else None, max_memory_gb=max_memory_gb,
+        inner = progress if k == 0 or progress is None else (
+            lambda msg, k=k: progress(f"  level {k + 1}: {msg}"))
+        res = run_case(c, progress=inner, max_memory_gb=max_memory_gb,
                        providers=providers if k == 0 else ())
         if first is None:
             first = res
-        info.append({"level": k, "refine": ratio ** k, "unknowns": int(res.u.size),
-                     "elements": int(res.mesh.nelems),
+        solved = res.solved or {"unknowns": int(res.u.size), "elements": int(res.mesh.nelems)}
+        info.append({"level": k, "refine": ratio ** k, "unknowns": solved["unknowns"],
+                     "elements": solved["elements"],
                      "seconds": round(time.perf_counter() - t, 2)})
+        say(f"convergence: level {k + 1} of {levels} done in {info[-1]['seconds']:.1f} s")
         results.append(headline_figures(res))
         del res
     if first is None:

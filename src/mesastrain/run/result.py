@@ -80,6 +80,10 @@ class Result:
     timings : dict of str -> float, s
     warnings : list of str
     derived : list of Derived
+    solved : dict
+        The system that was solved, before unfolding
+        (:func:`mesastrain.run.pipeline.solved_system`): unknowns, nodes, elements,
+        element_type, order, symmetry.
     """
 
     case: Case
@@ -94,6 +98,7 @@ class Result:
     timings: dict = field(default_factory=dict)
     warnings: list = field(default_factory=list)
     derived: list = field(default_factory=list)
+    solved: dict = field(default_factory=dict)
 
     @property
     def order(self) -> int:

@@ -59,7 +59,7 @@ def test_cli_convergence_writes_the_study(tmp_path, capsys):
     assert conv["levels"][0]["unknowns"] < conv["levels"][1]["unknowns"] \
         < conv["levels"][2]["unknowns"]
     # the written result is the case's own mesh (level 0)
-    assert summary["mesh"]["unknowns"] == conv["levels"][0]["unknowns"]
+    assert summary["mesh"]["solved"]["unknowns"] == conv["levels"][0]["unknowns"]
     rows = list(csv.DictReader(open(out / "convergence.csv")))
     names = {r["figure"] for r in rows}
     assert "probe centre sxx" in names and "layer 1 peak von_mises" in names
