@@ -269,8 +269,8 @@ def test_convergence_figures(mesa):
 
     f = convergence_figures(mesa)
     names = list(f)
-    assert any(n.startswith("SiGe/substrate edge +x in layer 1: von_mises at 2.5 nm")
+    assert any(n.startswith("SiGe/substrate edge +x in SiGe: von_mises at 2.5 nm")
                for n in names)
-    assert f["layer 1 relaxation length +x (nm)"] == pytest.approx(
+    assert f["SiGe relaxation length +x (nm)"] == pytest.approx(
         _readouts(mesa)["layers"]["SiGe"]["relaxation"]["+x"]["length"], rel=1e-9)
     assert "interface z=0 +x: peak shear" in f and all(np.isfinite(v) for v in f.values())
