@@ -154,7 +154,11 @@ def _probes_with_derived(res: Result) -> list:
 
 
 def vtu_data(res: Result) -> tuple[dict, dict]:
-    """Point and cell data written to ``fields.vtu``: ``layer`` and ``[output] fields``.
+    """Point and cell data written to ``fields.vtu``: ``region`` and ``[output] fields``.
+
+    ``region`` is the integer region id per element (0 the substrate, i the i-th layer);
+    the names belong to the ids through the file's field data (:func:`region_table`) and
+    ``summary.json`` ``layers`` (``name``, ``region``).
 
     The default set (displacement, nodal and element stress, nodal strain and
     von Mises, single precision) keeps the file near 80 bytes per node once compressed;
@@ -170,7 +174,7 @@ def vtu_data(res: Result) -> tuple[dict, dict]:
 
     layer = res.mesh.layer
     pd: dict = {}
-    cd: dict = {"layer": layer.astype(np.int32)}
+    cd: dict = {"region": layer.astype(np.int32)}
     if "displacement" in want:
         pd["displacement"] = f(fl.displacement)
     if "stress" in want:
@@ -199,6 +203,11 @@ def vtu_data(res: Result) -> tuple[dict, dict]:
             cd.update({k: f(v) if np.issubdtype(np.asarray(v).dtype, np.floating) else v
                        for k, v in d.cell_data.items()})
     return pd, cd
+
+
+def region_table(res: Result) -> dict:
+    """Field data of ``fields.vtu``: one integer per region, named ``region <name>``."""
+    return {f"region {lm.name}": np.array([lm.index], dtype=np.int32) for lm in res.layers}
 
 
 def _timed(res: Result, key: str, progress, what: str):
@@ -318,7 +327,8 @@ def write_result(res: Result, out, overwrite: bool = False, quick: bool = False,
         if o.vtu:
             with _timed(res, "write_fields", progress, "writing fields.vtu"):
                 pd, cd = vtu_data(res)
-                write_vtu(tmp / "fields.vtu", res.mesh.mesh, pd, cd)
+                write_vtu(tmp / "fields.vtu", res.mesh.mesh, pd, cd,
+                          field_data=region_table(res))
         files = [(n, w) for d in res.derived for n, w in d.files.items()]
         with _timed(res, "write_tables", progress, "writing tables"):
             for name, writer in files:
