@@ -22,7 +22,7 @@ figures to collect from each result's ``summary.json``::
     values = [0.2, 0.3]               # ... or a list of values as the case file takes them
 
     [collect]
-    figures = ["probes.centre.stress.xx", "layer_figures[1].mean_stress.xx"]
+    figures = ["probes.centre.stress.xx", "layer_figures.SiGe.mean_stress.xx"]
 
 Key paths
 ---------
