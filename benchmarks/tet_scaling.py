@@ -82,7 +82,7 @@ def row(label: str, r: dict) -> str:
     t, s = r["timings"], r["solver"]
     write = r["wall"] - sum(t.values())
     return (f"| {label} | {r['unknowns']:,} | {t.get('mesh', 0):.1f} | {t.get('assembly', 0):.1f} | "
-            f"{s['setup_seconds']:.1f} | {s['iterations']} | {s['solve_seconds']:.1f} | "
+            f"{s['setup_time']:.1f} | {s['iterations']} | {s['solve_time']:.1f} | "
             f"{t.get('recovery', 0):.1f} | {t.get('derived', 0):.1f} | {write:.1f} | "
             f"{r['wall']:.1f} | {r['peak_gb']:.2f} | {r['est_s']:.1f} | {r['est_gb']:.2f} |")
 

@@ -105,8 +105,8 @@ __all__ = [
 ]
 
 
-_UNITS = {"band": "eV", "raman_shift": "cm^-1", "piezo": "percent (100 d rho/rho)",
-          "pi": "1e-11/Pa", "stress": "MPa", "stress_per_shift": "MPa per cm^-1"}
+_UNITS = {"band": "eV", "raman_shift": "cm^-1", "piezo": "%",
+          "pi": "1e-11/Pa", "stress": "MPa", "stress_per_shift": "MPa/cm^-1"}
 
 
 #: |d rho / rho| (percent) above which the linear piezoresistance model is flagged: the

@@ -61,6 +61,7 @@ from mesastrain.derived.relaxation import RECOVERY, blanket_state, edge_relaxati
 from mesastrain.derived.sampling import cell_centres, etch_floor, sample_inside
 from mesastrain.derived.tractions import interface_balance, plot_tractions, traction_profiles
 from mesastrain.run.result import Derived
+from mesastrain.units import fmt
 
 __all__ = ["convergence_figures", "derive"]
 
@@ -151,7 +152,10 @@ def derive(res) -> Derived:
         interfaces.append(item)
 
     summary = {"readouts": {
-        "units": {"stress": "MPa", "length": "nm", "energy_per_area": "J/m^2"},
+        "units": {"stress": "MPa", "length": "nm", "energy_per_area": "J/m^2",
+                  "thickness": "nm", "matthews_blakeslee": "nm", "people_bean": "nm",
+                  "b": "nm", "a": "nm", "alpha": "deg", "lambda": "deg",
+                  "plan_area": "nm^2"},
         "standoff": standoff,
         "standoff_rule": ("[readouts] standoff" if case.readouts.standoff
                           else "half the thinnest layer (default)"),
@@ -258,4 +262,4 @@ def _write_csv(path: Path, header, rows) -> None:
         w = csv.writer(fh)
         w.writerow(header)
         for r in rows:
-            w.writerow([f"{v:.9g}" if isinstance(v, float) else v for v in r])
+            w.writerow([fmt(v, ".9g") if isinstance(v, float) else v for v in r])

@@ -32,11 +32,11 @@ def _arcsec(x: float) -> float:
 
 def _figures(H: np.ndarray, e0: np.ndarray, nominal: np.ndarray | None) -> dict:
     omega = lattice_rotation(H, e0)
-    out = {"lattice_rotation_arcsec": _arcsec(np.linalg.norm(omega)),
-           "lattice_rotation_vector_arcsec": [_arcsec(w) for w in omega]}
+    out = {"lattice_rotation": _arcsec(np.linalg.norm(omega)),
+           "lattice_rotation_vector": [_arcsec(w) for w in omega]}
     if nominal is not None:
         ang, axis = plane_tilt(H, nominal)
-        out["plane_tilt_arcsec"] = _arcsec(ang)
+        out["plane_tilt"] = _arcsec(ang)
         out["plane_tilt_axis"] = [round(float(a), 6) for a in axis]
     return out
 
@@ -61,7 +61,7 @@ def layer_tilts(res: Result) -> list[dict]:
             item["note"] = "plane tilt not given: the layer's crystal system differs from the substrate's"
         if miscut is not None and same:
             alpha = np.radians(miscut[0])
-            item["nagai_tilt_arcsec"] = _arcsec(nagai_tilt(H[2, 2], alpha))
+            item["nagai_tilt"] = _arcsec(nagai_tilt(H[2, 2], alpha))
         m = res.mesh.layer == lm.index
         if blanket and np.any(m):
             vol = fl.cell_volume[m]
@@ -75,7 +75,8 @@ def layer_tilts(res: Result) -> list[dict]:
 def derive(res: Result) -> Derived:
     """``layer_tilt`` in ``summary.json``."""
     return Derived(summary={"layer_tilt": {
-        "unit": "arcsec",
+        "units": {"lattice_rotation": "arcsec", "lattice_rotation_vector": "arcsec",
+                  "plane_tilt": "arcsec", "nagai_tilt": "arcsec", "plane_tilt_axis": "1"},
         "convention": ("relative to the substrate lattice; lattice_rotation: rotation of the "
                        "layer's lattice (polar decomposition of its elastic deformation), "
                        "first order (-e_yz, e_xz, 0) of the total strain; plane_tilt: tilt of "

@@ -318,9 +318,9 @@ def section_bow(summary: dict, folder: Path) -> str | None:
                          num(e["bow_height"], 4)])
     return ("<h2>Wafer bow of the blanket stack</h2>"
             + table(["estimate", "curvature (1/m)", "radius (m)",
-                     f"bow over {num(wb['wafer_diameter_mm'], 4)} mm (&micro;m)"], rows)
-            + f'<p class="note">{esc(wb["notes"])}. Substrate {num(wb["substrate_thickness_nm"] / 1e3, 5)} '
-              f'&micro;m, films {num(wb["film_thickness_nm"], 4)} nm in total.</p>')
+                     f"bow over {num(wb['wafer_diameter'], 4)} mm (&micro;m)"], rows)
+            + f'<p class="note">{esc(wb["notes"])}. Substrate {num(wb["substrate_thickness"] / 1e3, 5)} '
+              f'&micro;m, films {num(wb["film_thickness"], 4)} nm in total.</p>')
 
 
 def section_probes(summary: dict, folder: Path) -> str | None:

@@ -133,7 +133,7 @@ def test_centre_keeps_most_of_the_blanket_stress_and_energy_drops(mesa):
     assert 0.3 < film["centre_over_blanket"]["xx"] < 1.0
     e = film["energy_per_area"]
     assert 0 < e["patterned"] < e["blanket"]
-    assert e["plan_area_nm2"] == pytest.approx(80.0 * 80.0, rel=1e-9)
+    assert e["plan_area"] == pytest.approx(80.0 * 80.0, rel=1e-9)
 
 
 # --------------------------------------------------------------------------

@@ -28,7 +28,7 @@ _FIGURE_UNITS = {
     "displacement": "nm", "at": "nm", "max_von_mises_at": "nm", "z_bottom": "nm", "z_top": "nm",
     "volume": "nm^3", "lattice": "Angstrom", "lattice_in_plane": "Angstrom",
     "constants": "GPa", "stiffness_sample": "GPa",
-    "timings": "s", "setup_seconds": "s", "solve_seconds": "s",
+    "timings": "s", "setup_time": "s", "solve_time": "s",
 }
 _UNIT_SUFFIXES = (("_nm3", "nm^3"), ("_nm", "nm"), ("_um", "um"), ("_mpa", "MPa"),
                   ("_gpa", "GPa"), ("_mev", "meV"), ("_ev", "eV"), ("_k", "K"),
