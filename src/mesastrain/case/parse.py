@@ -65,6 +65,7 @@ from mesastrain.case.schema import (
     table,
 )
 from mesastrain.case.types import TABLE_TYPES, Case, UserMaterial
+from mesastrain.case.written import written_quantities
 from mesastrain.errors import CaseError, MaterialError, OrientationError
 from mesastrain.physics.crystal import (
     INDEX_SYSTEMS,
@@ -289,6 +290,7 @@ class _Parser:
         self.source = source
         self.materials = {}
         self.notes = ()
+        self.written = ()
 
     # ---- phase 1: each top-level key on its own, in file order -----------
     def run(self, data) -> Case:
@@ -296,6 +298,7 @@ class _Parser:
             raise CaseError("", f"expected a table of case settings, got {show_value(data)}")
         check_nesting(data)
         data, self.notes = modernise(data)
+        self.written = written_quantities(data)
         special = {TITLE.name: TITLE.kind.read, "substrate": self._substrate,
                    "layer": self._layers, "pattern": self._pattern, "cut": self._cuts,
                    "dislocation": self._dislocations}
@@ -363,7 +366,7 @@ class _Parser:
             else:
                 parts[tab.attr] = None if name == "thermal" else _build(name, {})
         return Case(title=title, source=self.source, materials=tuple(self.materials.values()),
-                    notes=tuple(str(n) for n in self.notes), **parts)
+                    notes=tuple(str(n) for n in self.notes), written=self.written, **parts)
 
     # ---- the case's own materials ----------------------------------------
     @staticmethod

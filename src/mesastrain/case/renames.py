@@ -18,11 +18,13 @@ relaxation``                                            (the fraction of the mis
 
 from __future__ import annotations
 
+import copy
 from dataclasses import dataclass
 
 from mesastrain.errors import CaseError
 
-__all__ = ["RENAMED_KEYS", "RENAMED_TABLES", "DeprecationNote", "current_path", "modernise"]
+__all__ = ["RENAMED_KEYS", "RENAMED_TABLES", "DeprecationNote", "add_old_names", "current_path",
+           "modernise"]
 
 #: Renamed top-level tables: old name -> new name.
 RENAMED_TABLES = {"dislocations": "dislocation"}
@@ -123,3 +125,16 @@ def current_path(segs: tuple) -> tuple[tuple, DeprecationNote | None]:
 def _text(segs) -> str:
     return "".join(f"[{s}]" if isinstance(s, int) else (f".{s}" if i else s)
                    for i, s in enumerate(segs))
+
+
+def add_old_names(props: dict) -> None:
+    """Let a JSON Schema's ``properties`` accept the old spellings, marked ``deprecated``."""
+    for (tab, old), new in RENAMED_KEYS.items():
+        node = props[tab]
+        node = node["items"] if node.get("type") == "array" else node
+        item = copy.deepcopy(node["properties"][new])
+        item.update({"deprecated": True, "description": f"Old name of {new}."})
+        node["properties"][old] = item
+    for old, new in RENAMED_TABLES.items():
+        props[old] = {**copy.deepcopy(props[new]), "deprecated": True,
+                      "description": f"Old name of [[{new}]]."}

@@ -30,7 +30,7 @@ from pathlib import Path
 
 from mesastrain.case import readers as rd
 from mesastrain.case.keys import Key, Kind, Table
-from mesastrain.case.renames import RENAMED_KEYS, RENAMED_TABLES
+from mesastrain.case.renames import add_old_names
 from mesastrain.physics.bands import device_parameters
 from mesastrain.physics.elastic import STIFFNESS_KEYS, SYMMETRY_SYSTEMS
 from mesastrain.physics.materials import builtin_materials
@@ -208,6 +208,8 @@ GROUPS = Kind(rd.groups, {"type": "object", "minProperties": 1, "maxProperties":
                                                               "maximum": rd.MAX_ITEMS},
                                                              {"const": "substrate"}]}},
               echo=dict)
+
+
 
 # --------------------------------------------------------------------------
 # the tables
@@ -554,19 +556,6 @@ def _table_schema(tab: Table) -> dict:
     return out
 
 
-def _old_names(props: dict) -> None:
-    """Accept the old spellings (:mod:`mesastrain.case.renames`), marked ``deprecated``."""
-    for (tab, old), new in RENAMED_KEYS.items():
-        node = props[tab]
-        node = node["items"] if node.get("type") == "array" else node
-        item = copy.deepcopy(node["properties"][new])
-        item.update({"deprecated": True, "description": f"Old name of {new}."})
-        node["properties"][old] = item
-    for old, new in RENAMED_TABLES.items():
-        props[old] = {**copy.deepcopy(props[new]), "deprecated": True,
-                      "description": f"Old name of [[{new}]]."}
-
-
 def json_schema() -> dict:
     """The JSON Schema (draft 2020-12) of the case file, from the declarations.
 
@@ -586,7 +575,7 @@ def json_schema() -> dict:
                             "additionalProperties": one}
     props.update({t.name: _table_schema(t) for t in TABLES})
     props = copy.deepcopy(props)        # the kinds' fragments are shared
-    _old_names(props)
+    add_old_names(props)
     return {
         "$schema": "https://json-schema.org/draft/2020-12/schema",
         "title": "mesastrain case file",

@@ -489,6 +489,14 @@ class Case:
     dislocations: tuple = ()
     materials: tuple = ()
     notes: tuple = field(default=(), compare=False)
+    written: tuple = field(default=(), compare=False)
+
+    def as_written(self, path: str) -> str | None:
+        """A quantity as the case file wrote it (``"substrate.thickness"`` -> ``"725 µm"``).
+
+        None when the key was not given in the file (a default, or a case built in code).
+        """
+        return dict(self.written).get(path)
 
     def material(self, name: str, x: float | None = None):
         """Resolve a material name: the case's own ``[material.NAME]`` first, then built-ins.

@@ -126,6 +126,7 @@ def summary_of(res: Result) -> dict:
             "vtu_tensor_order": "XX, YY, ZZ, XY, YZ, XZ",
         },
         "case": case.to_dict(),
+        "case_as_written": dict(getattr(case, "written", ())),
         "layers": [layer_summary(lm) for lm in res.layers],
         "mesh": mesh_summary(res),
         "boundary_conditions": boundary_text(res.mesh),

@@ -11,6 +11,7 @@ import logging
 from pathlib import Path
 
 from mesastrain.io.markup import esc, image, mpa, num, table
+from mesastrain.units import fmt
 
 log = logging.getLogger(__name__)
 
@@ -83,7 +84,8 @@ def draw_stack(summary: dict, path: Path) -> Path:
     sub = summary["layers"][0]
     ax.text(-xo + 0.05, -0.55 * sub_show, f"substrate {sub['label']} "
             f"{sub['normal']}, x = {sub['x_axis']}\n"
-            f"{case['substrate']['thickness'] / 1e3:g} um (cut)", fontsize=8, va="center")
+            f"{_written(summary, 'substrate.thickness', case['substrate']['thickness'])} (cut)",
+            fontsize=8, va="center")
     for i, lay in enumerate(layers):
         zb, zt = lay["z_bottom"], lay["z_top"]
         colour = f"C{i}"
@@ -127,6 +129,21 @@ def draw_stack(summary: dict, path: Path) -> Path:
     return path
 
 
+def _written(summary: dict, path: str, value) -> str:
+    """An input as its author wrote it (``summary.json`` ``case_as_written``), else in nm.
+
+    Lengths without a written form are shown in nm, temperatures (strings in K) as given.
+    """
+    text = (summary.get("case_as_written") or {}).get(path)
+    if text:
+        return text
+    if isinstance(value, (int, float)):
+        return f"{fmt(value, 'g')} nm"
+    if isinstance(value, list):
+        return ", ".join(f"{fmt(v, 'g')} nm" for v in value)
+    return "-" if value is None else str(value)
+
+
 # --------------------------------------------------------------------------
 # sections
 # --------------------------------------------------------------------------
@@ -134,12 +151,14 @@ def section_inputs(summary: dict, folder: Path) -> str:
     """Inputs: substrate, layers, pattern, thermal history, mesh and solver."""
     case = summary["case"]
     sub = summary["layers"][0]
-    rows = [[esc(sub["name"]), esc(sub["label"]), num(case["substrate"]["thickness"], 6, "nm"),
+    rows = [[esc(sub["name"]), esc(sub["label"]),
+             esc(_written(summary, "substrate.thickness", case["substrate"]["thickness"])),
              esc(sub["normal"]), esc(sub["x_axis"]), "-", "-", "-"]]
-    for lay in summary["layers"][1:]:
+    for i, lay in enumerate(summary["layers"][1:]):
         th = lay.get("thermal_eigenstrain")
-        rows.append([esc(lay["name"]), esc(lay["label"]), num(lay["z_top"] - lay["z_bottom"], 6,
-                                                              "nm"),
+        rows.append([esc(lay["name"]), esc(lay["label"]),
+                     esc(_written(summary, f"layer[{i}].thickness",
+                                  lay["z_top"] - lay["z_bottom"])),
                      esc(lay["normal"]), esc(lay["x_axis"]), num(lay["relaxed"], 3),
                      num(100 * lay["misfit"], 4, "%"),
                      num(-100 * th[0][0], 4, "%") if th else "-"])
@@ -151,13 +170,16 @@ def section_inputs(summary: dict, folder: Path) -> str:
     for k in ("width", "length", "diameter", "etch_depth", "margin", "corner_radius",
               "sidewall_angle", "pitch"):
         if pat.get(k) is not None:
-            bits.append(f"{esc(k.replace('_', ' '))} {esc(pat[k])}"
-                        + ("" if k in ("sidewall_angle", "pitch") else " nm"))
+            shown = (f"{pat[k]:g}°" if k == "sidewall_angle"
+                     else _written(summary, f"pattern.{k}", pat[k]))
+            bits.append(f"{esc(k.replace('_', ' '))} {esc(shown)}")
     out.append(f"<p><b>Pattern:</b> {', '.join(bits)}.</p>")
     th = case.get("thermal")
     if th:
-        out.append(f"<p><b>Thermal history:</b> grown at {esc(th['growth_temperature'])}, "
-                   f"used at {esc(th['final_temperature'])}; the thermal eigenstrain "
+        grown = _written(summary, "thermal.growth_temperature", th.get("growth_temperature"))
+        used = _written(summary, "thermal.final_temperature", th["final_temperature"])
+        out.append(f"<p><b>Thermal history:</b> grown at {esc(grown)}, "
+                   f"used at {esc(used)}; the thermal eigenstrain "
                    f"(integrated expansion mismatch) is added to the lattice mismatch.</p>")
     mesh, solver = summary.get("mesh", {}), summary.get("solver", {})
     sym = summary.get("model") or {}
