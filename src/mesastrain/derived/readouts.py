@@ -138,7 +138,8 @@ def derive(res) -> Derived:
     for k, z in free_edge_interfaces(res):
         prof, rows = traction_profiles(res, k, z)
         traction_rows.extend(rows)
-        item = {"index": k, "z": z, "between": [res.layers[k].name, res.layers[k + 1].name],
+        below, above = res.layers[k].name, res.layers[k + 1].name
+        item = {"name": f"{above}/{below}", "z": z, "between": [below, above],
                 "sides": prof, "balance": interface_balance(res, z)}
         if prof:
             pk = max(prof.values(), key=lambda v: abs(v["peel_peak"]))
