@@ -193,13 +193,16 @@ def derive(res) -> Derived:
     }}
     files = {}
     if relax_rows:
-        files["edge_relaxation.csv"] = lambda p, rows=relax_rows: _write_csv(
+        named = [(res.layers[r[0]].name, *r[1:]) for r in relax_rows]
+        files["edge_relaxation.csv"] = lambda p, rows=named: _write_csv(
             p, ("region", "side", "distance_from_sidewall_nm", "normal_stress_MPa",
                 "along_edge_stress_MPa", "centre_normal_stress_MPa"), rows)
         files["edge_relaxation.png"] = lambda p, rows=relax_rows: plot_relaxation(
             p, rows, res.layers, layers_out)
     if traction_rows:
-        files["interface_tractions.csv"] = lambda p, rows=traction_rows: _write_csv(
+        named = [(f"{res.layers[r[0] + 1].name}/{res.layers[r[0]].name}", *r[1:])
+                 for r in traction_rows]
+        files["interface_tractions.csv"] = lambda p, rows=named: _write_csv(
             p, ("interface", "z_nm", "side", "distance_from_sidewall_nm", "peel_MPa",
                 "shear_toward_sidewall_MPa", "shear_along_edge_MPa"), rows)
         files["interface_tractions.png"] = lambda p, rows=traction_rows: plot_tractions(

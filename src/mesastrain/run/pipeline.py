@@ -144,7 +144,9 @@ def run_case(case: Case, progress=None, max_memory_gb: float | None = None,
     timings["recovery"] = time.perf_counter() - t
     if providers:
         t = time.perf_counter()
-        for provider in providers:
+        for i, provider in enumerate(providers, 1):
+            name = getattr(provider, "__module__", "").rsplit(".", 1)[-1] or "derived"
+            say(f"derived quantities {i} of {len(providers)}: {name}")
             d = provider(res)
             res.derived.append(d)
             res.warnings.extend(d.warnings)
