@@ -30,8 +30,11 @@ def cmd_check(args) -> int:
         print(json.dumps(d))
     else:
         print(f"case      {args.case}: {case.title} (valid)")
-        print(f"stack     {case.substrate.material} substrate + {len(case.layers)} layer(s), "
-              f"{case.stack_thickness:g} nm; pattern {case.pattern.shape}")
+        sub = case.as_written("substrate.thickness") or f"{case.substrate.thickness:g} nm"
+        layers = ", ".join(f"{lay.name} {case.as_written(f'layer[{i}].thickness') or f'{lay.thickness:g} nm'}"
+                           for i, lay in enumerate(case.layers))
+        print(f"stack     substrate {case.substrate.material} {sub}; layers {layers} "
+              f"({case.stack_thickness:g} nm in all); pattern {case.pattern.shape}")
         sol = d["solved"]
         model = "" if sol["symmetry"] == "full" else f", {sol['symmetry']} model"
         print(f"elements  {sol['element_type']}, order {est.order} ({d['mesh_kind']} "

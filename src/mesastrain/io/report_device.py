@@ -11,6 +11,7 @@ from __future__ import annotations
 from pathlib import Path
 
 from mesastrain.io.markup import esc, image, num, table
+from mesastrain.units import fmt
 
 __all__ = ["report_text", "section_device"]
 
@@ -39,7 +40,7 @@ def report_text(summary: dict, folder) -> str:
     if not dev:
         return ""
     folder = Path(folder)
-    lines = ["Device readouts (band edges eV, Raman shift cm^-1, piezoresistance % = "
+    lines = ["Device readouts (band edges eV, Raman shift cm⁻¹, piezoresistance % = "
              "100 d rho/rho; element averages: mean [min, max] per region)"]
     figs = dev.get("layer_figures", {})
     for name, reg in dev["regions"].items():
@@ -49,9 +50,10 @@ def report_text(summary: dict, folder) -> str:
         if "raman_shift" in f:
             r, rm = f["raman_shift"], reg["raman"]
             factor = rm.get("stress_per_shift_biaxial")
-            parts.append(f"Raman {r['mean']:+.2f} [{r['min']:+.2f}, {r['max']:+.2f}] cm^-1 "
+            parts.append(f"Raman {fmt(r['mean'], '+.2f')} [{fmt(r['min'], '+.2f')}, "
+                         f"{fmt(r['max'], '+.2f')}] cm⁻¹ "
                          f"(PDP {rm['pdp_set']}"
-                         + (f"; {factor:.0f} MPa per cm^-1 if equi-biaxial)" if factor else ")"))
+                         + (f"; {factor:.0f} MPa per cm⁻¹ if equi-biaxial)" if factor else ")"))
         if "band_gap_shift" in f:
             g = f["band_gap_shift"]
             valley = "+".join(f.get("conduction_valleys", []))
@@ -77,7 +79,7 @@ def report_text(summary: dict, folder) -> str:
         for p in probes:
             bits = []
             if p.get("raman_shift") is not None:
-                bits.append(f"Raman {p['raman_shift']:+.2f} cm^-1")
+                bits.append(f"Raman {p['raman_shift']:+.2f} cm⁻¹")
             be = p.get("band_edges")
             if be:
                 bits.append(f"gap {be['gap']:.3f} eV ({_mev(be['gap_shift'])} meV, "
