@@ -48,7 +48,7 @@ def test_run_writes_summary_and_vtu(small_mesa_run):
         assert k in m.point_data
     assert m.point_data["stress"].shape[1] == 6
     assert m.cell_data["stress"][0].shape[1] == 6
-    assert set(np.unique(m.cell_data["layer"][0])) == {0, 1}
+    assert set(np.unique(m.cell_data["region"][0])) == {0, 1}
     # no temporary folders left behind
     assert [x.name for x in tmp_path.iterdir() if x.name.startswith(".")] == []
 
@@ -75,7 +75,8 @@ def test_overwrite_replaces_whole_folder(small_case, tmp_path):
 def test_check_json(small_case, capsys):
     assert main(["check", str(small_case), "--json"]) == 0
     d = json.loads(capsys.readouterr().out)
-    assert d["unknowns"] > 0 and d["memory_gb"] > 0 and d["seconds"] > 0
+    assert d["solved"]["unknowns"] > 0 and d["memory_gb"] > 0 and d["seconds"] > 0
+    assert d["exported"]["nodes"] >= d["solved"]["nodes"]
 
 
 def test_check_text(small_case, capsys):
@@ -120,7 +121,8 @@ BAD = [
     # (what to change, expected key in the message)
     (lambda s: s.replace('thickness = "20 nm"', 'thickness = "-20 nm"'), "layer[0].thickness"),
     (lambda s: s.replace('material = "SiGe"', 'material = "SiGex"'), "layer[0].material"),
-    (lambda s: s.replace("x = 0.2", "x = 1.5"), "layer[0].x"),
+    (lambda s: s.replace("composition = 0.2", "composition = 1.5"), "layer[0].composition"),
+    (lambda s: s.replace("composition = 0.2", "x = 1.5"), "layer[0].composition"),  # old name
     (lambda s: s.replace('thickness = "20 nm"', 'thickness = "20 furlongs"'), "layer[0].thickness"),
     (lambda s: s.replace("x_axis = [1, 1, 0]", "x_axis = [1, 1, 1]"), "substrate.x_axis"),
     (lambda s: s.replace("normal = [0, 0, 1]", "normal = [0, 0, 0]"), "substrate.normal"),

@@ -290,7 +290,7 @@ class _Parser:
         self.source = source
         self.materials = {}
         self.notes = ()
-        self.written = ()
+        self.data = {}
 
     # ---- phase 1: each top-level key on its own, in file order -----------
     def run(self, data) -> Case:
@@ -298,7 +298,7 @@ class _Parser:
             raise CaseError("", f"expected a table of case settings, got {show_value(data)}")
         check_nesting(data)
         data, self.notes = modernise(data)
-        self.written = written_quantities(data)
+        self.data = data
         special = {TITLE.name: TITLE.kind.read, "substrate": self._substrate,
                    "layer": self._layers, "pattern": self._pattern, "cut": self._cuts,
                    "dislocation": self._dislocations}
@@ -366,7 +366,8 @@ class _Parser:
             else:
                 parts[tab.attr] = None if name == "thermal" else _build(name, {})
         return Case(title=title, source=self.source, materials=tuple(self.materials.values()),
-                    notes=tuple(str(n) for n in self.notes), written=self.written, **parts)
+                    notes=tuple(str(n) for n in self.notes),
+                    written=written_quantities(self.data), **parts)
 
     # ---- the case's own materials ----------------------------------------
     @staticmethod

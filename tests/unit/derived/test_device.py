@@ -186,7 +186,7 @@ def test_vtu_raman_field_matches_crystal_frame_strain(strained_si, tmp_path):
                  "band_conduction_valleys", "piezo_n110_long", "piezo_n110_trans",
                  "piezo_p100_long", "piezo_p100_trans"):
         assert name in cd, name
-    film, sub = cd["layer"] == 1, cd["layer"] == 0
+    film, sub = cd["region"] == 1, cd["region"] == 0
     par = raman_parameters("Si")
     expected = backscatter_shift(from_vtk6(cd["strain_crystal"][film]), res.layers[1].frame.R,
                                  par.p, par.q, par.r, par.omega0)
@@ -428,11 +428,11 @@ def test_cut_csv_and_report(tmp_path):
     rows = [r.split(",") for r in lines[1:]]
     assert len(rows) == 7
     k = head.index("raman_shift_cm-1")
-    assert rows[0][4] == "1" and float(rows[0][k]) < -5.0      # tensile Si: softer line
-    assert rows[-1][4] == "0" and abs(float(rows[-1][k])) < 1e-3   # relaxed SiGe: no shift
+    assert rows[0][4] == res.layers[1].name and float(rows[0][k]) < -5.0   # tensile Si: softer
+    assert rows[-1][4] == "substrate" and abs(float(rows[-1][k])) < 1e-3   # relaxed SiGe
     summ = json.loads((out / "summary.json").read_text())
     text = report_text(summ, out)
-    assert "Raman" in text and "cm^-1" in text and "delta_z" in text
+    assert "Raman" in text and "cm⁻¹" in text and "delta_z" in text
     from mesastrain.io import report
     from mesastrain.io.report_device import section_device
 

@@ -72,11 +72,11 @@ def test_vtu_round_trip_and_vtk_order(tmp_path):
     meshio = pytest.importorskip("meshio")
     m = _box("hex")
     pd = {"stress": np.random.default_rng(0).random((m.nvertices, 6)).astype(np.float32)}
-    cd = {"layer": np.arange(m.nelements, dtype=np.int32) % 2}
+    cd = {"region": np.arange(m.nelements, dtype=np.int32) % 2}
     write_vtu(tmp_path / "f.vtu", m, pd, cd)
     r = meshio.read(tmp_path / "f.vtu")
     assert np.array_equal(r.point_data["stress"], pd["stress"])
-    assert r.cell_data["layer"][0].shape == (m.nelements,)
+    assert r.cell_data["region"][0].shape == (m.nelements,)
     # VTK hexahedron order: the first four vertices are one face, counter-clockwise seen
     # from the last four, which lie opposite (vertex i + 4 above vertex i)
     c = r.points[r.cells[0].data[0]]
