@@ -38,7 +38,7 @@ def test_demo_physics_is_sensible(demo_result):
 def test_demo_vtu_opens_and_renders(demo_result, tmp_path):
     pv = pytest.importorskip("pyvista")
     mesh = pv.read(str(demo_result / "fields.vtu"))
-    assert mesh.n_cells > 0 and "stress" in mesh.cell_data and "layer" in mesh.cell_data
+    assert mesh.n_cells > 0 and "stress" in mesh.cell_data and "region" in mesh.cell_data
     assert mesh.cell_data["stress"].shape[1] == 6
     from mesastrain.io.render import render_section
     png = render_section(demo_result / "fields.vtu", tmp_path / "sxx.png")
