@@ -143,6 +143,20 @@ class CrossChecks:
         """Total thickness of the layers, nm."""
         return math.fsum(t["thickness"] for t in self.layers)
 
+    def _group_numbers(self, groups) -> tuple:
+        """Imported-mesh groups mapped to a layer's name -> the layer's region number."""
+        names = {t["name"].lower(): i for i, t in enumerate(self.layers, start=1)}
+        out = []
+        for group, region in groups:
+            if isinstance(region, str):
+                if region.strip().lower() not in names:
+                    raise CaseError(f"pattern.groups.{group}",
+                                    f"{region!r} is not a region of the case; allowed: "
+                                    f"substrate, " + ", ".join(t["name"] for t in self.layers))
+                region = names[region.strip().lower()]
+            out.append((group, region))
+        return tuple(out)
+
     def pattern_fits(self) -> None:
         """Etch depth, corner radius, sloped sidewalls and pitch against the feature and stack.
 
@@ -152,6 +166,7 @@ class CrossChecks:
         if p["shape"] in ("none", "mesh"):
             if p["shape"] == "mesh":
                 n = len(self.layers)
+                p["groups"] = self._group_numbers(p["groups"])
                 for name, region in p["groups"]:
                     if region > n:
                         raise CaseError(f"pattern.groups.{name}",

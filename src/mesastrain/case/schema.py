@@ -206,7 +206,8 @@ MISCUT = Kind(rd.miscut, {"type": "object", "additionalProperties": False,
 GROUPS = Kind(rd.groups, {"type": "object", "minProperties": 1, "maxProperties": rd.MAX_ITEMS,
                           "additionalProperties": {"anyOf": [{"type": "integer", "minimum": 0,
                                                               "maximum": rd.MAX_ITEMS},
-                                                             {"const": "substrate"}]}},
+                                                             {"type": "string", "minLength": 1,
+                                                              "maxLength": rd.MAX_NAME}]}},
               echo=dict)
 
 
@@ -306,8 +307,9 @@ PATTERN = Table("pattern", "pattern", "The etched feature, centred on x = y = 0.
         required_for=(("mesh", 'the mesh file, e.g. "device.msh"'),)),
     Key("unit", Kind(rd.length_unit, _enum(LENGTH_UNITS)),
         "Length unit of the imported mesh coordinates (default nm).", shapes=("mesh",)),
-    Key("groups", GROUPS, 'Imported mesh: physical group name (or integer tag) -> region (0 or '
-                          '"substrate", i = layer i counted from 1); each group mapped once.',
+    Key("groups", GROUPS, 'Imported mesh: physical group name (or integer tag) -> region: '
+                          '"substrate" (or 0), a layer\'s name, or i = layer i counted from 1; '
+                          'each group mapped once.',
         shapes=("mesh",),
         required_for=(("mesh", ('a table mapping physical groups to regions, '
                                 'e.g. groups = { substrate = 0, film = 1 }')),)),

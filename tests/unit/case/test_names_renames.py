@@ -77,3 +77,33 @@ def test_old_dislocation_table_and_key_give_notes_and_the_same_case():
     assert a == b and a.dislocations[0].relaxation == 0.3
     assert len(b.notes) == 2 and {"[[dislocations]]" in n or "relaxation" in n
                                   for n in b.notes} == {True}
+
+
+def test_imported_mesh_groups_take_region_names():
+    import tomllib
+    from pathlib import Path
+
+    from mesastrain.case.parse import load_case
+
+    demo = Path(__file__).parents[3] / "cases" / "embedded_stressor.toml"
+    assert load_case(demo).pattern.groups == (("wafer", 0), ("pocket", 1))
+    d = tomllib.loads(demo.read_text())
+    d["pattern"]["file"] = str(demo.parent / d["pattern"]["file"])
+    d["pattern"]["groups"] = {"wafer": "substrate", "pocket": "cap"}
+    with pytest.raises(CaseError) as info:
+        parse_case(d)
+    assert info.value.key == "pattern.groups.pocket" and "SiGe" in info.value.message
+
+
+def test_quantities_are_kept_as_written():
+    d = copy.deepcopy(BASE)
+    d["substrate"]["thickness"] = "0.725 mm"
+    d["layer"][0]["thickness"] = "200 A"
+    d["thermal"] = {"growth_temperature": "700 C", "final_temperature": 25}
+    case = parse_case(d)
+    assert case.as_written("substrate.thickness") == "0.725 mm"
+    assert case.as_written("layer[0].thickness") == "200 Å"
+    assert case.as_written("layer[1].thickness") == "5 nm"          # a bare number: nm
+    assert case.as_written("thermal.growth_temperature") == "700 °C"
+    assert case.as_written("thermal.final_temperature") == "25 °C"
+    assert case.as_written("pattern.width") is None                 # not given
