@@ -114,7 +114,8 @@ def summary_of(res: Result) -> dict:
         "units": {"length": "nm", "stress": "MPa", "strain": "1", "stiffness": "GPa",
                   "lattice": "Angstrom", "displacement": "nm", "volume": "nm^3",
                   "timings": "s", "z_bottom": "nm", "z_top": "nm", "misfit": "1",
-                  "eigenstrain": "1", "max_von_mises": "MPa", "mean_stress": "MPa"},
+                  "eigenstrain": "1", "max_von_mises": "MPa", "mean_stress": "MPa",
+                  "sidewall_angle": "deg", "pitch": "nm", "temperature": "K"},
         "conventions": {
             "frames": "sample: z = wafer normal (up), x = substrate x_axis; crystal: cube axes "
                       "(hexagonal: x = a1, z = c)",

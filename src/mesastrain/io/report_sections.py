@@ -368,8 +368,10 @@ def section_pictures(summary: dict, folder: Path) -> str | None:
     """Maps, edge relaxation and traction plots, line cuts."""
     folder = Path(folder)
     parts = []
+    first = next((lay["name"] for lay in summary.get("layers", []) if lay.get("region") == 1),
+                 "the first layer")
     views = {"section": "cross-section y = 0", "edge": "close-up of the +x sidewall",
-             "plan": "plan view at mid-height of layer 1"}
+             "plan": f"plan view at mid-height of {first}"}
     for kind in ("section", "edge", "plan"):
         figs = []
         for png in sorted(folder.glob(f"map_{kind}_*.png")):
