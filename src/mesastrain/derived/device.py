@@ -140,7 +140,7 @@ def _factor(kind: str, params, stiffness, R, geometry: dict) -> float | None:
 def _region_entry(rp: RegionPlan, plan: Plan, layer_model) -> dict:
     entry = {"region": rp.index, "label": rp.label, "not_computed": dict(rp.missing)}
     if rp.bands is not None:
-        entry["bands"] = {"parameters": rp.bands.name, "x": rp.bands.x,
+        entry["bands"] = {"parameters": rp.bands.name, "composition": rp.bands.x,
                           "structure": rp.bands.structure, "scale": rp.bands.scale,
                           "xi_u_delta": rp.bands.xi_u_delta, "b": rp.bands.b, "d": rp.bands.d,
                           "a_v": rp.bands.a_v, "a_c": rp.bands.a_c,

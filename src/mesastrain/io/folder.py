@@ -27,7 +27,7 @@ def layer_summary(lm: LayerModel) -> dict:
     if mat.c is not None:
         lattice["c"] = mat.c
     return {
-        "name": lm.name, "region": lm.index, "material": mat.name, "x": mat.x,
+        "name": lm.name, "region": lm.index, "material": mat.name, "composition": mat.x,
         "label": mat.label, "system": mat.system,
         "z_bottom": lm.z_bottom, "z_top": lm.z_top,
         "normal": format_indices(lm.frame.normal, "()"),
