@@ -150,3 +150,25 @@ def test_vtk_messages_are_silenced():
 
     quiet_vtk()
     assert vtkObject.GetGlobalWarningDisplay() == 0
+
+
+def test_convergence_says_which_level_runs(monkeypatch, small_mesa_case, small_mesa_result):
+    # the study's own messages, with the solves replaced by the session's one result
+    from mesastrain.run import convergence
+
+    import dataclasses
+
+    def fake_run(case, progress=None, **kw):
+        if progress is not None:
+            progress("mesh: ...")
+        # a copy: the study appends to the result's lists, the session's result stays as is
+        return dataclasses.replace(small_mesa_result, derived=list(small_mesa_result.derived),
+                                   warnings=list(small_mesa_result.warnings))
+    monkeypatch.setattr(convergence, "run_case", fake_run)
+    said = []
+    convergence.study(small_mesa_case, levels=2, progress=said.append)
+    assert said[0].startswith("convergence: level 1 of 2 running: element sizes / 1")
+    assert "unknowns, about" in said[0]
+    assert said[1] == "mesh: ..." and said[2].startswith("convergence: level 1 of 2 done in")
+    assert said[3].startswith("convergence: level 2 of 2 running: element sizes / 1.5")
+    assert said[4] == "  level 2: mesh: ..."
