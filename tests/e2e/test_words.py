@@ -154,9 +154,9 @@ def test_vtk_messages_are_silenced():
 
 def test_convergence_says_which_level_runs(monkeypatch, small_mesa_case, small_mesa_result):
     # the study's own messages, with the solves replaced by the session's one result
-    from mesastrain.run import convergence
-
     import dataclasses
+
+    from mesastrain.run import convergence
 
     def fake_run(case, progress=None, **kw):
         if progress is not None:
