@@ -13,7 +13,7 @@ from pathlib import Path
 
 from mesastrain.case.parse import load_case
 from mesastrain.cli.common import notes
-from mesastrain.errors import CaseError
+from mesastrain.errors import CaseError, one_line
 from mesastrain.units import fmt
 
 
@@ -123,6 +123,8 @@ def _solve_and_write(args, case, dest) -> int:
             made += ", pictures" + (", report.html" if case.output.report else "")
         print(f"results in {out}/ ({made})")
         print(CAUTION)
+        for w in summary.get("warnings", ()):
+            print(f"warning: {one_line(w)}", file=sys.stderr)
     return 0
 
 
