@@ -118,7 +118,7 @@ def write_cut_csv(path: Path, dist, pts, region, labels, comps: dict) -> None:
         for k in range(len(dist)):
             r = int(region[k])
             row = [fmt(dist[k], ".9g"), *(fmt(v, ".9g") for v in pts[k]),
-                   *(labels[r].split(": ", 1) if r >= 0 else ("outside", ""))]
+                   *(labels[r].partition(": ")[::2] if r >= 0 else ("outside", ""))]
             row += [fmt(comps[n][k], ".9g") for n in names]
             w.writerow(row)
 

@@ -510,13 +510,16 @@ def render_layer(vtu, png: Path, layer: int, name: str = "stress_xx",
     (mesh.cell_data if where == "cell" else mesh.point_data)["_shown"] = values
     part = mesh.threshold((layer - 0.5, layer + 0.5), scalars="region")
     if part.n_cells == 0:
-        raise ValueError(f"no cells with layer = {layer}")
+        raise ValueError(f"no cells with region = {layer}")
     pl = pv.Plotter(off_screen=True, window_size=list(window_size))
     pl.set_background("white")
     sel = np.asarray(part["_shown"])
     clim = _limits(sel, np.ones(len(sel)), signed, 99.0)
     _three_d(pl, part, "_shown", clim, "RdBu_r" if signed else "viridis", label, where)
-    pl.add_text(f"{label} in region {layer} only; colour limits at the 99th percentile",
+    names = {int(np.asarray(mesh.field_data[k]).ravel()[0]): k.removeprefix("region ")
+             for k in mesh.field_data.keys() if k.startswith("region ")}
+    pl.add_text(f"{label} in {names.get(layer, f'region {layer}')} only; colour limits at "
+                f"the 99th percentile",
                 font_size=9, color="black", position="upper_left")
     pl.show_bounds(xtitle="x (nm)", ytitle="y (nm)", ztitle="z (nm)", color="black",
                    font_size=10, fmt="%.4g")

@@ -104,7 +104,7 @@ def test_default_vtu_is_lean_and_quick_writes_no_pictures(small_mesa_toml, tmp_p
     assert "write_fields" in s["timings"] and "write_pictures" not in s["timings"]
     m = meshio.read(out / "fields.vtu")
     assert set(m.point_data) == {"displacement", "stress", "strain", "von_mises"}
-    assert set(m.cell_data) == {"layer", "stress"}
+    assert set(m.cell_data) == {"region", "stress"}
     assert m.point_data["stress"].dtype == np.float32
     assert (out / "fields.vtu").stat().st_size / len(m.points) < 100
 
