@@ -70,8 +70,8 @@ def child(case: str, out: str, quick: bool) -> None:
     vtu = Path(out) / "fields.vtu"
     print(json.dumps({"rc": rc, "start": start, "wall": wall, "cpu": time.process_time() - c0,
                       "peak_gb": peak_rss_gb(), "timings": summary["timings"],
-                      "nodes": summary["mesh"]["nodes"],
-                      "solved": summary["solver"].get("unknowns", summary["mesh"]["unknowns"]),
+                      "nodes": summary["mesh"]["exported"]["nodes"],
+                      "solved": summary["mesh"]["solved"]["unknowns"],
                       "vtu_bytes": vtu.stat().st_size if vtu.is_file() else 0}))
 
 

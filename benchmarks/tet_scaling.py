@@ -62,7 +62,7 @@ def child(case_path: str) -> None:
     wall = time.perf_counter() - t
     summ = json.loads((out / "summary.json").read_text())
     print(json.dumps({"rc": rc, "wall": wall, "peak_gb": peak_rss_gb(),
-                      "unknowns": summ["mesh"]["unknowns"], "timings": summ["timings"],
+                      "unknowns": summ["mesh"]["solved"]["unknowns"], "timings": summ["timings"],
                       "solver": summ["solver"], "est_s": est.seconds,
                       "est_gb": est.memory_gb, "est_unknowns": est.unknowns}))
 
@@ -82,7 +82,7 @@ def row(label: str, r: dict) -> str:
     t, s = r["timings"], r["solver"]
     write = r["wall"] - sum(t.values())
     return (f"| {label} | {r['unknowns']:,} | {t.get('mesh', 0):.1f} | {t.get('assembly', 0):.1f} | "
-            f"{s['setup_seconds']:.1f} | {s['iterations']} | {s['solve_seconds']:.1f} | "
+            f"{s['setup_time']:.1f} | {s['iterations']} | {s['solve_time']:.1f} | "
             f"{t.get('recovery', 0):.1f} | {t.get('derived', 0):.1f} | {write:.1f} | "
             f"{r['wall']:.1f} | {r['peak_gb']:.2f} | {r['est_s']:.1f} | {r['est_gb']:.2f} |")
 

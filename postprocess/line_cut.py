@@ -48,7 +48,7 @@ def main(argv=None) -> int:
     valid = np.asarray(line["vtkValidPointMask"]).astype(bool)
     # region at each point from the cell the point lies in
     cells = mesh.find_containing_cell(np.asarray(line.points))
-    layer = np.asarray(mesh.cell_data["layer"])
+    layer = np.asarray(mesh.cell_data["region"])
     region = np.where((cells >= 0) & valid, layer[np.maximum(cells, 0)], -1)
     nan = ~valid
     stress = from_vtk6(np.asarray(line["stress"], dtype=float))
@@ -57,7 +57,9 @@ def main(argv=None) -> int:
     stress[nan], strain[nan], disp[nan] = np.nan, np.nan, np.nan
     comps = components(strain, stress, disp)
     dist = np.linalg.norm(np.asarray(line.points) - np.asarray(a.start), axis=1)
-    labels = {int(k): f"region {int(k)}" for k in np.unique(layer)}
+    names = {int(np.asarray(mesh.field_data[k]).ravel()[0]): k.removeprefix("region ")
+             for k in mesh.field_data.keys() if k.startswith("region ")}
+    labels = {int(k): names.get(int(k), f"region {int(k)}") for k in np.unique(layer)}
     out = a.out_dir or a.result
     out.mkdir(parents=True, exist_ok=True)
     csv_path, png_path = out / f"cut_{a.name}.csv", out / f"cut_{a.name}.png"

@@ -23,7 +23,7 @@ normal = [0, 0, 1]
 x_axis = [1, 1, 0]
 [[layer]]
 material = "SiGe"
-x = 0.2
+composition = 0.2
 thickness = "20 nm"
 [pattern]
 {pattern}

@@ -26,7 +26,7 @@ from decimal import Decimal
 from mesastrain.errors import CaseError
 
 __all__ = ["LENGTH_UNITS", "MAX_LENGTH_NM", "MAX_TEMPERATURE_K", "TEMPERATURE_UNITS",
-           "finite_float", "is_number", "parse_length", "parse_temperature", "safe_name",
+           "as_written", "finite_float", "fmt", "is_number", "parse_length", "parse_temperature", "safe_name",
            "show_value"]
 
 #: Length units accepted in strings, and their size in nanometres.
@@ -111,6 +111,61 @@ def show_value(value) -> str:
     if value is None:
         return "nothing"
     return str(value)
+
+
+def fmt(value: float, spec: str = ".4g") -> str:
+    """A number formatted with ``spec`` and never shown as ``-0`` (the one table formatter).
+
+    A value that rounds to zero at the requested precision is written without its
+    sign (``fmt(-0.04, ".1f")`` is ``"0.0"``, not ``"-0.0"``), so that terminal tables,
+    CSV files and the report show the same text for the same number.
+
+    Parameters
+    ----------
+    value : float
+    spec : str
+        A format spec as for :func:`format` (``".1f"``, ``"10.1f"``, ``"+.3g"``).
+
+    Returns
+    -------
+    str
+    """
+    text = format(value, spec)
+    if ("-" in text and math.isfinite(value)
+            and not any(c in "123456789" for c in text.lower().split("e")[0])):
+        return format(0.0, spec)    # a negative that rounds to zero: no sign
+    return text
+
+
+#: How output text writes each accepted unit (one spelling per unit, Unicode).
+_SHOWN_UNIT = {"um": "µm", "\u03bcm": "µm", "\u00b5m": "µm", "A": "Å", "\u212b": "Å",
+               "\u00c5": "Å", "C": "°C", "degC": "°C", "\u00b0C": "°C"}
+
+
+def as_written(value, bare_unit: str) -> str | None:
+    """A quantity of the case file as its author wrote it, with the unit spelled one way.
+
+    ``"725 um"`` -> ``"725 µm"``, ``"700 C"`` -> ``"700 °C"``, ``40`` -> ``"40 nm"`` (with
+    ``bare_unit = "nm"``: the unit a bare number means). None for other values.
+
+    Parameters
+    ----------
+    value : str or number
+        As read from TOML.
+    bare_unit : str
+        The unit of a bare number (``"nm"`` for lengths, ``"°C"`` for temperatures).
+    """
+    if isinstance(value, bool):
+        return None
+    if is_number(value):
+        return f"{value:g} {bare_unit}"
+    if not isinstance(value, str):
+        return None
+    m = _NUMBER_WITH_UNIT.match(value)
+    if m is None or not m.group("unit"):
+        return None
+    unit = m.group("unit")
+    return f"{m.group('num')} {_SHOWN_UNIT.get(unit, unit)}"
 
 
 def is_number(value) -> bool:

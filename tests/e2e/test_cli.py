@@ -36,8 +36,10 @@ def test_run_writes_summary_and_vtu(small_mesa_run):
     p = s["probes"][0]
     for k in ("stress", "strain", "stress_crystal", "strain_crystal"):
         assert np.array(p[k]).shape == (3, 3)
-    assert p["layer"] == 1 and p["at"] == [0, 0, 10]
-    assert s["mesh"]["unknowns"] > 0 and s["mesh"]["nodes"] > 0 and s["mesh"]["elements"] > 0
+    assert p["region"] == "SiGe" and p["at"] == [0, 0, 10]
+    solved, exported = s["mesh"]["solved"], s["mesh"]["exported"]
+    assert solved["unknowns"] > 0 and solved["nodes"] > 0 and solved["elements"] > 0
+    assert exported["nodes"] >= solved["nodes"] and exported["elements"] >= solved["elements"]
     assert "solve" in s["timings"]
     # the VTU opens and carries the contract's arrays
     import meshio
@@ -46,7 +48,7 @@ def test_run_writes_summary_and_vtu(small_mesa_run):
         assert k in m.point_data
     assert m.point_data["stress"].shape[1] == 6
     assert m.cell_data["stress"][0].shape[1] == 6
-    assert set(np.unique(m.cell_data["layer"][0])) == {0, 1}
+    assert set(np.unique(m.cell_data["region"][0])) == {0, 1}
     # no temporary folders left behind
     assert [x.name for x in tmp_path.iterdir() if x.name.startswith(".")] == []
 
@@ -73,7 +75,8 @@ def test_overwrite_replaces_whole_folder(small_case, tmp_path):
 def test_check_json(small_case, capsys):
     assert main(["check", str(small_case), "--json"]) == 0
     d = json.loads(capsys.readouterr().out)
-    assert d["unknowns"] > 0 and d["memory_gb"] > 0 and d["seconds"] > 0
+    assert d["solved"]["unknowns"] > 0 and d["memory_gb"] > 0 and d["seconds"] > 0
+    assert d["exported"]["nodes"] >= d["solved"]["nodes"]
 
 
 def test_check_text(small_case, capsys):
@@ -118,7 +121,8 @@ BAD = [
     # (what to change, expected key in the message)
     (lambda s: s.replace('thickness = "20 nm"', 'thickness = "-20 nm"'), "layer[0].thickness"),
     (lambda s: s.replace('material = "SiGe"', 'material = "SiGex"'), "layer[0].material"),
-    (lambda s: s.replace("x = 0.2", "x = 1.5"), "layer[0].x"),
+    (lambda s: s.replace("composition = 0.2", "composition = 1.5"), "layer[0].composition"),
+    (lambda s: s.replace("composition = 0.2", "x = 1.5"), "layer[0].composition"),  # old name
     (lambda s: s.replace('thickness = "20 nm"', 'thickness = "20 furlongs"'), "layer[0].thickness"),
     (lambda s: s.replace("x_axis = [1, 1, 0]", "x_axis = [1, 1, 1]"), "substrate.x_axis"),
     (lambda s: s.replace("normal = [0, 0, 1]", "normal = [0, 0, 0]"), "substrate.normal"),

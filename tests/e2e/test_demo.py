@@ -38,7 +38,7 @@ def test_demo_physics_is_sensible(demo_result):
 def test_demo_vtu_opens_and_renders(demo_result, tmp_path):
     pv = pytest.importorskip("pyvista")
     mesh = pv.read(str(demo_result / "fields.vtu"))
-    assert mesh.n_cells > 0 and "stress" in mesh.cell_data and "layer" in mesh.cell_data
+    assert mesh.n_cells > 0 and "stress" in mesh.cell_data and "region" in mesh.cell_data
     assert mesh.cell_data["stress"].shape[1] == 6
     from mesastrain.io.render import render_section
     png = render_section(demo_result / "fields.vtu", tmp_path / "sxx.png")
@@ -62,7 +62,7 @@ def test_demo_report_shows_every_headline_figure_with_its_error_bars(demo_result
             assert row["material_scatter"]["singular"]
         else:
             assert row["material_scatter"]["error"] > 0
-    centre = next(r for r in s["headline"] if r["name"] == "layer 1 centre sxx")
+    centre = next(r for r in s["headline"] if r["name"] == "SiGe centre sxx")
     assert centre["material_scatter"]["dominant"] == "SiGe lattice law"
     assert 0.05 < centre["material_scatter"]["error"] / abs(centre["value"]) < 0.15
 
@@ -82,6 +82,6 @@ def test_liner_fin_demo(tmp_path):
     assert p["fin_mid"][2, 2] < -100
     assert p["liner_side"][2, 2] > 200
     assert 0.6 * 1200 < p["liner_top"][1, 1] < 1200
-    assert [lay["name"] for lay in s["layers"]] == ["substrate", "layer 1", "SiN liner"]
+    assert [lay["name"] for lay in s["layers"]] == ["substrate", "Si fin", "SiN liner"]
     assert s["layers"][2]["liner"] == 1
     assert s["timings"]["solve"] < 60

@@ -296,12 +296,12 @@ SUMMARY = {
     "probes": [{"name": "centre", "stress": [[-1.0, 2.0, 3.0], [2.0, -4.0, 5.0],
                                              [3.0, 5.0, 6.0]],
                 "displacement": [0.1, 0.2, 0.3], "von_mises": 9.5}],
-    "layer_figures": [{"name": "substrate", "mean_stress": [[1, 0, 0], [0, 1, 0], [0, 0, 0]]},
-                      {"name": "layer 1", "mean_stress": [[7, 0, 0], [0, 8, 0], [0, 0, 0]]}],
+    "layer_figures": {"substrate": {"mean_stress": [[1, 0, 0], [0, 1, 0], [0, 0, 0]]},
+                      "SiGe": {"mean_stress": [[7, 0, 0], [0, 8, 0], [0, 0, 0]]}},
     "readouts": {"units": {"length": "nm"},
-                 "layers": [{"name": "layer 1", "relaxation": {"+x": {"length": 26.5}},
-                             "centre_over_blanket": {"xx": 0.2}, "missing": None,
-                             "exceeds": True}]},
+                 "layers": {"SiGe": {"relaxation": {"+x": {"length": 26.5}},
+                                     "centre_over_blanket": {"xx": 0.2}, "missing": None,
+                                     "exceeds": True}}},
 }
 
 
@@ -310,16 +310,17 @@ def test_figure_paths():
     assert figure_value(SUMMARY, "probes[0].stress.yz") == 5.0
     assert figure_value(SUMMARY, "probes.centre.stress.zx") == 3.0
     assert figure_value(SUMMARY, "probes.centre.displacement.z") == 0.3
-    assert figure_value(SUMMARY, "layer_figures[1].mean_stress.yy") == 8.0
-    assert figure_value(SUMMARY, "layer_figures.layer 1.mean_stress.xx") == 7.0
-    assert figure_value(SUMMARY, "readouts.layers[0].relaxation.+x.length") == 26.5
-    assert figure_value(SUMMARY, "readouts.layers[0].missing") is None
-    assert figure_value(SUMMARY, "readouts.layers[0].exceeds") == 1.0
+    assert figure_value(SUMMARY, "layer_figures.SiGe.mean_stress.yy") == 8.0
+    assert figure_value(SUMMARY, "layer_figures.substrate.mean_stress.xx") == 1.0
+    assert figure_value(SUMMARY, "readouts.layers.SiGe.relaxation.+x.length") == 26.5
+    assert figure_value(SUMMARY, "readouts.layers.SiGe.missing") is None
+    assert figure_value(SUMMARY, "readouts.layers.SiGe.exceeds") == 1.0
     for path, text in (("probes.centre.stress", "add a component"),
                        ("probes.edge.stress.xx", "names: centre"),
-                       ("layer_figures[5].mean_stress.xx", "has 2 item(s)"),
+                       ("probes[5].stress.xx", "has 1 item(s)"),
+                       ("layer_figures.Si.mean_stress.xx", "it has: substrate, SiGe"),
                        ("probes.centre.strain.xx", "it has: name, stress"),
-                       ("readouts.layers[0].relaxation", "is a table"),
+                       ("readouts.layers.SiGe.relaxation", "is a table"),
                        ("probes.centre.von_mises.xx", "is a number")):
         with pytest.raises(CaseError, match=re.escape(text)) as e:
             figure_value(SUMMARY, path, "collect.figures[0]")
@@ -330,9 +331,9 @@ def test_figure_units():
     assert figure_unit("probes.centre.stress.xx") == "MPa"
     assert figure_unit("probes.centre.strain.zz") == "1"
     assert figure_unit("probes.centre.displacement.z") == "nm"
-    assert figure_unit("layer_figures[1].mean_stress.xx") == "MPa"
-    assert figure_unit("readouts.layers[0].relaxation.+x.length", None, SUMMARY) == "nm"
-    assert figure_unit("readouts.layers[0].centre_over_blanket.xx") == "1"
+    assert figure_unit("layer_figures.SiGe.mean_stress.xx") == "MPa"
+    assert figure_unit("readouts.layers.SiGe.relaxation.+x.length", None, SUMMARY) == "nm"
+    assert figure_unit("readouts.layers.SiGe.centre_over_blanket.xx") == "1"
     assert figure_unit("some.gap_mev") == "meV"
     assert figure_unit("some.thing", {"some.thing": "eV"}) == "eV"
 
@@ -481,7 +482,7 @@ def test_mesa_width_sweep_on_local_cluster(tmp_path):
     # ... never beyond it, the narrowest mesa well relaxed, the widest within 1 % of it
     assert np.all(ratio < 1.0 + 1e-3) and ratio[0] < 0.5 and ratio[-1] > 0.99
     # the readouts' own centre/blanket ratio agrees with this closed form
-    rb = np.array([float(r["readouts.layers[1].centre_over_blanket.xx"]) for r in rows])
+    rb = np.array([float(r["readouts.layers.SiGe.centre_over_blanket.xx"]) for r in rows])
     assert rb == pytest.approx(ratio, rel=1e-4)
 
     # metadata, folders and plots

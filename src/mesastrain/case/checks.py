@@ -152,11 +152,11 @@ class CrossChecks:
     def dislocations(self, sets: list) -> None:
         """Interface index in range, line in the interface, a pattern the lines fit.
 
-        ``sets`` are the read ``[[dislocations]]`` tables.
+        ``sets`` are the read ``[[dislocation]]`` tables.
         """
         shape = self.pattern["shape"]
         for i, ds in enumerate(sets):
-            ik = f"dislocations[{i}]"
+            ik = f"dislocation[{i}]"
             if ds["interface"] >= len(self.layers):
                 raise CaseError(f"{ik}.interface", f"{ds['interface']} is not a layer's bottom "
                                                    f"interface; allowed: 0 to "
@@ -186,7 +186,7 @@ class CrossChecks:
                                               "only lines along the stripe (sample y) fit")
             if shape == "none" and "positions" in ds:
                 raise CaseError(f"{ik}.positions", "a blanket film is modelled as a periodic "
-                                                   "cell: give spacing or relaxation")
+                                                   "cell: give spacing or relaxed")
 
     def temperatures(self, thermal: dict) -> None:
         """Growth and final temperature below the lowest melting point of the stack's materials.
@@ -198,7 +198,7 @@ class CrossChecks:
         for where, t in [("substrate", self.substrate)] + [
                 (f"layer[{i}]", t) for i, t in enumerate(self.layers)]:
             try:
-                tm = melting_point(get_material(t["material"], t.get("x")))
+                tm = melting_point(get_material(t["material"], t.get("composition")))
             except MesastrainError:
                 continue
             if tm is not None and (lowest is None or tm < lowest):
@@ -233,6 +233,20 @@ class CrossChecks:
         """Total thickness of the layers, nm."""
         return math.fsum(t["thickness"] for t in self.layers)
 
+    def _group_numbers(self, groups) -> tuple:
+        """Imported-mesh groups mapped to a layer's name -> the layer's region number."""
+        names = {t["name"].lower(): i for i, t in enumerate(self.layers, start=1)}
+        out = []
+        for group, region in groups:
+            if isinstance(region, str):
+                if region.strip().lower() not in names:
+                    raise CaseError(f"pattern.groups.{group}",
+                                    f"{region!r} is not a region of the case; allowed: "
+                                    f"substrate, " + ", ".join(t["name"] for t in self.layers))
+                region = names[region.strip().lower()]
+            out.append((group, region))
+        return tuple(out)
+
     def pattern_fits(self) -> None:
         """Etch depth, corner radius, sloped sidewalls and pitch against the feature and stack.
 
@@ -242,6 +256,7 @@ class CrossChecks:
         if p["shape"] in ("none", "mesh"):
             if p["shape"] == "mesh":
                 n = len(self.layers)
+                p["groups"] = self._group_numbers(p["groups"])
                 for name, region in p["groups"]:
                     if region > n:
                         raise CaseError(f"pattern.groups.{name}",

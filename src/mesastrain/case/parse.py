@@ -52,6 +52,8 @@ from pathlib import Path
 from mesastrain.case import readers as rd
 from mesastrain.case.checks import CrossChecks
 from mesastrain.case.keys import read_table
+from mesastrain.case.names import region_names
+from mesastrain.case.renames import modernise
 from mesastrain.case.schema import (
     MATERIAL,
     PATTERN,
@@ -63,6 +65,7 @@ from mesastrain.case.schema import (
     table,
 )
 from mesastrain.case.types import TABLE_TYPES, Case, UserMaterial
+from mesastrain.case.written import written_quantities
 from mesastrain.errors import CaseError, MaterialError, OrientationError
 from mesastrain.physics.crystal import (
     INDEX_SYSTEMS,
@@ -286,15 +289,19 @@ class _Parser:
     def __init__(self, source: str | None):
         self.source = source
         self.materials = {}
+        self.notes = ()
+        self.data = {}
 
     # ---- phase 1: each top-level key on its own, in file order -----------
     def run(self, data) -> Case:
         if not isinstance(data, dict):
             raise CaseError("", f"expected a table of case settings, got {show_value(data)}")
         check_nesting(data)
+        data, self.notes = modernise(data)
+        self.data = data
         special = {TITLE.name: TITLE.kind.read, "substrate": self._substrate,
                    "layer": self._layers, "pattern": self._pattern, "cut": self._cuts,
-                   "dislocations": self._dislocations, "liner": self._liners}
+                   "dislocation": self._dislocations, "liner": self._liners}
         for name in data:
             if name not in TOP_KEYS:
                 raise rd.unknown_key(name, name, TOP_KEYS)
@@ -335,7 +342,7 @@ class _Parser:
                  "thermal": lambda: checks.temperatures(got["thermal"]),
                  "probe": lambda: checks.probes_inside(got["probe"]),
                  "cut": lambda: checks.cuts_inside(got["cut"]),
-                 "dislocations": lambda: checks.dislocations(got["dislocations"]),
+                 "dislocation": lambda: checks.dislocations(got["dislocation"]),
                  "liner": lambda: checks.liners_fit(got["liner"])}
         for name in data:
             if name in cross:
@@ -360,7 +367,8 @@ class _Parser:
             else:
                 parts[tab.attr] = None if name == "thermal" else _build(name, {})
         return Case(title=title, source=self.source, materials=tuple(self.materials.values()),
-                    **parts)
+                    notes=tuple(str(n) for n in self.notes),
+                    written=written_quantities(self.data), **parts)
 
     # ---- the case's own materials ----------------------------------------
     @staticmethod
@@ -414,10 +422,11 @@ class _Parser:
     # ---- materials and orientation shared by substrate and layers -------
     def _resolve_material(self, t: dict, key: str) -> dict:
         """Check x against the material; return canonical name, index system, c/a, lattice."""
-        name, x = t["material"], t.get("x")
+        name, x = t["material"], t.get("composition")
         if name in self.materials:
             if x is not None:
-                raise CaseError(f"{key}.x", f"{name} is not an alloy: do not give x")
+                raise CaseError(f"{key}.composition", f"{name} is not an alloy: do not give "
+                                                      f"composition")
             mat = self.materials[name].material()
             return {"material": name, "system": INDEX_SYSTEMS[mat.system],
                     "c_over_a": mat.c_over_a, "label": mat.label,
@@ -426,8 +435,9 @@ class _Parser:
             mat = get_material(name, x)
         except MaterialError as err:
             if is_alloy(name) and x is None:
-                raise CaseError(f"{key}.x", f"required key is missing; {err}") from None
-            raise CaseError(f"{key}.x" if x is not None else f"{key}.material",
+                raise CaseError(f"{key}.composition", f"required key is missing; {err}"
+                                ) from None
+            raise CaseError(f"{key}.composition" if x is not None else f"{key}.material",
                             str(err)) from None
         return {"material": mat.name, "system": INDEX_SYSTEMS[mat.system],
                 "c_over_a": mat.c_over_a, "label": mat.label, "has_lattice": mat.has_lattice}
@@ -468,7 +478,9 @@ class _Parser:
         for i, item in enumerate(rd.array_of_tables(value, key)):
             lk = f"{key}[{i}]"
             t = read_table(table(key), item, lk)
+            written = t["material"]
             t.update(self._resolve_material(t, lk))
+            t["written_material"] = written
             has_n, has_x = "normal" in t, "x_axis" in t
             if has_n != has_x:
                 gone = "x_axis" if has_n else "normal"
@@ -481,6 +493,9 @@ class _Parser:
                 t["normal"] = t["x_axis"] = None
             self._epitaxy(t, lk, out[-1] if out else None)
             out.append(t)
+        names = region_names(key, [(t.get("name"), t.pop("written_material")) for t in out])
+        for t, name in zip(out, names):
+            t["name"] = name
         return out
 
     def _epitaxy(self, t: dict, key: str, below: dict | None) -> None:
@@ -526,13 +541,13 @@ class _Parser:
             del t["corner_radius"]
         return t
 
-    def _named_items(self, value, key: str, sep: str = "") -> list:
+    def _named_items(self, value, key: str) -> list:
         """An array of named tables: names default to key1, key2, ... and must be unique."""
         out, seen = [], {}
         for i, item in enumerate(rd.array_of_tables(value, key)):
             ik = f"{key}[{i}]"
             t = read_table(table(key), item, ik)
-            t.setdefault("name", f"{key}{sep}{i + 1}")
+            t.setdefault("name", f"{key}{i + 1}")
             if t["name"] in seen:
                 raise CaseError(f"{ik}.name", f"{show_value(t['name'])} is already used by "
                                               f"{seen[t['name']]}; give each {key} its own name")
@@ -552,10 +567,17 @@ class _Parser:
         return out
 
     def _liners(self, value, key: str) -> list:
-        """``[[liner]]``: named ("liner 1", ...), materials resolved (no alloy fraction)."""
-        items = self._named_items(value, key, sep=" ")
-        for i, t in enumerate(items):
+        """``[[liner]]``: materials resolved (no alloy fraction), named as
+        :func:`mesastrain.case.names.region_names` says ("SiN liner", ...)."""
+        items, written = [], []
+        for i, item in enumerate(rd.array_of_tables(value, key)):
+            t = read_table(table(key), item, f"{key}[{i}]")
+            written.append(t["material"])
             t["material"] = self._resolve_material(t, f"{key}[{i}]")["material"]
+            items.append(t)
+        names = region_names(key, [(t.get("name"), w) for t, w in zip(items, written)])
+        for t, name in zip(items, names):
+            t["name"] = name
         return items
 
     def _cuts(self, value, key: str) -> list:
@@ -570,15 +592,15 @@ class _Parser:
         items = self._named_items(value, key)
         for i, t in enumerate(items):
             ik = f"{key}[{i}]"
-            given = [k for k in ("positions", "spacing", "relaxation") if k in t]
+            given = [k for k in ("positions", "spacing", "relaxed") if k in t]
             if not given:
                 raise rd.missing(f"{ik}.spacing", "one of positions (a list of lengths), "
-                                                  "spacing (a length) or relaxation (a "
+                                                  "spacing (a length) or relaxed (a "
                                                   "fraction 0..1)")
             if len(given) > 1:
                 raise CaseError(f"{ik}.{given[1]}", f"give only one of positions, spacing and "
-                                                    f"relaxation (also set: {given[0]})")
+                                                    f"relaxed (also set: {given[0]})")
             if "offset" in t and "positions" in t:
-                raise CaseError(f"{ik}.offset", "only with spacing or relaxation; positions "
+                raise CaseError(f"{ik}.offset", "only with spacing or relaxed; positions "
                                                 "are absolute")
         return items

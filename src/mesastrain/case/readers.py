@@ -451,7 +451,11 @@ def pitch(value, key: str) -> tuple:
 
 
 def groups(value, key: str) -> tuple:
-    """{name = region, ...} -> ((name, region), ...); region 0 / "substrate" or i >= 1."""
+    """{name = region, ...} -> ((name, region), ...); region 0 / "substrate", i >= 1 or a name.
+
+    A region given by a layer's name stays a string here; the cross-table checks
+    (:meth:`mesastrain.case.checks.CrossChecks.pattern_fits`) turn it into its number.
+    """
     if not isinstance(value, dict) or not value:
         raise CaseError(key, f'expected a table mapping physical group names to regions, e.g. '
                              f'{{ substrate = 0, film = 1 }}, got {_brief(value)}')
@@ -461,10 +465,11 @@ def groups(value, key: str) -> tuple:
     for group, region in value.items():
         if region == "substrate":
             region = 0
-        if (not isinstance(region, int) or isinstance(region, bool) or region < 0
-                or region > MAX_ITEMS):
-            raise CaseError(f"{key}.{group}", f'expected a region: 0 or "substrate", or the '
-                                              f'layer number 1, 2, ... (bottom up), got '
+        named = isinstance(region, str) and 0 < len(region.strip()) <= MAX_NAME
+        if not named and (not isinstance(region, int) or isinstance(region, bool) or region < 0
+                          or region > MAX_ITEMS):
+            raise CaseError(f"{key}.{group}", f'expected a region: "substrate" or 0, a layer\'s '
+                                              f'name, or its number 1, 2, ... (bottom up), got '
                                               f'{_brief(region)}')
         tag = _integer_tag(group)
         if tag is not None:

@@ -30,6 +30,7 @@ from pathlib import Path
 
 from mesastrain.case import readers as rd
 from mesastrain.case.keys import Key, Kind, Table
+from mesastrain.case.renames import add_old_names
 from mesastrain.physics.bands import device_parameters
 from mesastrain.physics.elastic import STIFFNESS_KEYS, SYMMETRY_SYSTEMS
 from mesastrain.physics.materials import builtin_materials
@@ -205,8 +206,11 @@ MISCUT = Kind(rd.miscut, {"type": "object", "additionalProperties": False,
 GROUPS = Kind(rd.groups, {"type": "object", "minProperties": 1, "maxProperties": rd.MAX_ITEMS,
                           "additionalProperties": {"anyOf": [{"type": "integer", "minimum": 0,
                                                               "maximum": rd.MAX_ITEMS},
-                                                             {"const": "substrate"}]}},
+                                                             {"type": "string", "minLength": 1,
+                                                              "maxLength": rd.MAX_NAME}]}},
               echo=dict)
+
+
 
 # --------------------------------------------------------------------------
 # the tables
@@ -216,7 +220,9 @@ TITLE = Key("title", STRING, "Title of the case.", computed="the file name witho
 SUBSTRATE = Table("substrate", "substrate", "The wafer.", (
     Key("material", MATERIAL, "Material name, as `mesastrain materials` lists them.",
         required="the substrate material"),
-    Key("x", FRACTION, "Alloy fraction of the second member (alloys only)."),
+    Key("composition", FRACTION, "Alloy composition: the fraction of the alloy's second "
+                                 "member, 0 to 1 (alloys only; Ge in SiGe). Old name: x.",
+        attr="x"),
     Key("thickness", POSITIVE_LENGTH, "Wafer thickness.",
         required='the wafer thickness, e.g. "0.5 mm"'),
     Key("normal", INDICES, "Surface plane (hkl) or (hkil): sample +z.",
@@ -230,8 +236,15 @@ SUBSTRATE = Table("substrate", "substrate", "The wafer.", (
 ))
 
 LAYER = Table("layer", "layers", "The grown layers, bottom to top; at least one.", (
+    Key("name", Kind(rd.name, {"type": "string", "minLength": 1, "maxLength": rd.MAX_NAME,
+                               "pattern": r"^[^.\[\]]+$"}),
+        "The layer's name in every output (tables, summary.json, warnings, fields.vtu); "
+        "unique in the stack (letter case ignored), without '.', '[' or ']', not "
+        '"substrate".', computed='the material, with " 2", " 3" ... appended when it repeats'),
     Key("material", MATERIAL, "Material name.", required="the layer material"),
-    Key("x", FRACTION, "Alloy fraction of the second member (alloys only)."),
+    Key("composition", FRACTION, "Alloy composition: the fraction of the alloy's second "
+                                 "member, 0 to 1 (alloys only; Ge in SiGe). Old name: x.",
+        attr="x"),
     Key("thickness", POSITIVE_LENGTH, "Layer thickness.",
         required='the layer thickness, e.g. "40 nm"'),
     Key("relaxed", FRACTION, "0 = pseudomorphic to the layer below, 1 = fully relaxed.",
@@ -270,7 +283,7 @@ LINER = Table("liner", "liners", "Conformal films deposited over the etched feat
         computed="[thermal] growth_temperature"),
     Key("name", Kind(rd.name, {"type": "string", "minLength": 1, "maxLength": rd.MAX_NAME}),
         f"Name of the liner's region in the results; 1 to {rd.MAX_NAME} characters.",
-        computed='"liner N"'),
+        computed='"<material> liner", numbered on repeats'),
 ), array=True)
 
 PATTERN = Table("pattern", "pattern", "The etched feature, centred on x = y = 0.", (
@@ -316,8 +329,9 @@ PATTERN = Table("pattern", "pattern", "The etched feature, centred on x = y = 0.
         required_for=(("mesh", 'the mesh file, e.g. "device.msh"'),)),
     Key("unit", Kind(rd.length_unit, _enum(LENGTH_UNITS)),
         "Length unit of the imported mesh coordinates (default nm).", shapes=("mesh",)),
-    Key("groups", GROUPS, 'Imported mesh: physical group name (or integer tag) -> region (0 or '
-                          '"substrate", i = layer i counted from 1); each group mapped once.',
+    Key("groups", GROUPS, 'Imported mesh: physical group name (or integer tag) -> region: '
+                          '"substrate" (or 0), a layer\'s name, or i = layer i counted from 1; '
+                          'each group mapped once.',
         shapes=("mesh",),
         required_for=(("mesh", ('a table mapping physical groups to regions, '
                                 'e.g. groups = { substrate = 0, film = 1 }')),)),
@@ -466,8 +480,9 @@ UNCERTAINTY = Table("uncertainty", "uncertainty", "Material-data scatter propaga
         "alpha only with [thermal]).", default=UNCERTAINTY_GROUPS),
 ))
 
-DISLOCATIONS = Table("dislocations", "dislocations", "Families of parallel straight misfit "
-                     "dislocations; each gives one of positions, spacing and relaxation.", (
+DISLOCATIONS = Table("dislocation", "dislocations", "Families of parallel straight misfit "
+                     "dislocations; each gives one of positions, spacing and relaxed. Old "
+                     "name of the table: [[dislocations]].", (
     _NAME,
     Key("interface", _int_between(0, rd.MAX_ITEMS),
         "The lines lie at the bottom of layer[interface].",
@@ -483,8 +498,9 @@ DISLOCATIONS = Table("dislocations", "dislocations", "Families of parallel strai
                                             "minItems": 1, "maxItems": rd.MAX_ITEMS}),
         "Positions of the lines from the pattern centre, normal to the lines."),
     Key("spacing", POSITIVE_LENGTH, "Line spacing of a periodic array."),
-    Key("relaxation", Kind(rd.relaxation, _number(exclusiveMinimum=0, maximum=1)),
-        "Target relaxation of the layer's mismatch; sets the spacing."),
+    Key("relaxed", Kind(rd.relaxation, _number(exclusiveMinimum=0, maximum=1)),
+        "Fraction of the layer's mismatch the lines relieve (as [[layer]] relaxed); sets the "
+        "spacing. Old name: relaxation.", attr="relaxation"),
     Key("offset", LENGTH, "Position of one line of a spacing/relaxation array.", default=0.0,
         echo_if=lambda d: d.positions is None),
 ), array=True)
@@ -608,6 +624,7 @@ def json_schema() -> dict:
                             "additionalProperties": one}
     props.update({t.name: _table_schema(t) for t in TABLES})
     props = copy.deepcopy(props)        # the kinds' fragments are shared
+    add_old_names(props)
     return {
         "$schema": "https://json-schema.org/draft/2020-12/schema",
         "title": "mesastrain case file",

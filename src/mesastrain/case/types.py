@@ -9,7 +9,7 @@ keys and the echo :meth:`Case.to_dict` come from the declarations in
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 from mesastrain.case.keys import echo
 from mesastrain.case.schema import (
@@ -132,6 +132,9 @@ class Layer:
 
     Attributes
     ----------
+    name : str
+        The layer's name in every output (:mod:`mesastrain.case.names`); always set after
+        :func:`mesastrain.case.parse.parse_case`.
     material, x
         As for :class:`Substrate`.
     thickness : float
@@ -153,6 +156,7 @@ class Layer:
     epitaxial: bool | None = None
     stress: float | None = None
     deposition_temperature: float | None = None
+    name: str | None = None
 
 
 @dataclass(frozen=True)
@@ -173,7 +177,7 @@ class Liner:
     deposition_temperature : float or None
         K; None = ``[thermal] growth_temperature``.
     name : str or None
-        Region name; None = ``"liner N"``.
+        Region name; None = ``"<material> liner"`` (:mod:`mesastrain.case.names`).
     """
 
     material: str
@@ -503,7 +507,7 @@ class DislocationSet:
     burgers_fraction: float = DISLOCATIONS.default("burgers_fraction")
     positions: tuple | None = DISLOCATIONS.default("positions")
     spacing: float | None = DISLOCATIONS.default("spacing")
-    relaxation: float | None = DISLOCATIONS.default("relaxation")
+    relaxation: float | None = DISLOCATIONS.default("relaxed")
     offset: float = DISLOCATIONS.default("offset")
 
 
@@ -560,6 +564,15 @@ class Case:
     dislocations: tuple = ()
     materials: tuple = ()
     liners: tuple = ()
+    notes: tuple = field(default=(), compare=False)
+    written: tuple = field(default=(), compare=False)
+
+    def as_written(self, path: str) -> str | None:
+        """A quantity as the case file wrote it (``"substrate.thickness"`` -> ``"725 µm"``).
+
+        None when the key was not given in the file (a default, or a case built in code).
+        """
+        return dict(self.written).get(path)
 
     def material(self, name: str, x: float | None = None):
         """Resolve a material name: the case's own ``[material.NAME]`` first, then built-ins.
@@ -621,5 +634,5 @@ class Case:
 TABLE_TYPES = {"substrate": Substrate, "layer": Layer, "pattern": Pattern, "thermal": Thermal,
                "mesh": MeshSettings, "solver": SolverSettings, "probe": Probe, "cut": LineCut,
                "output": OutputSettings, "channel": Channel, "device": DeviceSettings,
-               "readouts": ReadoutSettings, "dislocations": DislocationSet,
+               "readouts": ReadoutSettings, "dislocation": DislocationSet,
                "liner": Liner, "uncertainty": UncertaintySettings}

@@ -9,29 +9,44 @@ from __future__ import annotations
 import json
 
 from mesastrain.case.parse import load_case
-from mesastrain.cli.common import EXIT_USAGE, err
+from mesastrain.cli.common import EXIT_USAGE, err, notes
 
 
 def cmd_check(args) -> int:
     """``mesastrain check``: 0 when the case is valid and fits in memory, 2 otherwise."""
-    from mesastrain.run.resources import available_memory_gb, estimate
+    from mesastrain.mesh.kinds import mesh_kind
+    from mesastrain.run.resources import available_memory_gb, estimate, usable_cores
 
     case = load_case(args.case)
+    notes(case)
     est = estimate(case)
     avail = available_memory_gb()
     d = est.to_dict()
     d["memory_available_gb"] = round(avail, 2)
     d["fits"] = est.memory_gb <= avail
+    d["cores"] = cores = usable_cores()
+    d["mesh_kind"] = mesh_kind(case)
     if args.json:
         print(json.dumps(d))
     else:
         print(f"case      {args.case}: {case.title} (valid)")
-        print(f"stack     {case.substrate.material} substrate + {len(case.layers)} layer(s), "
-              f"{case.stack_thickness:g} nm; pattern {case.pattern.shape}")
-        print(f"mesh      {est.nodes:,} nodes, {est.elements:,} hexahedra, order {est.order}")
-        print(f"unknowns  {est.unknowns:,} (solver: {est.method})")
+        sub = case.as_written("substrate.thickness") or f"{case.substrate.thickness:g} nm"
+        layers = ", ".join(f"{lay.name} {case.as_written(f'layer[{i}].thickness') or f'{lay.thickness:g} nm'}"
+                           for i, lay in enumerate(case.layers))
+        print(f"stack     substrate {case.substrate.material} {sub}; layers {layers} "
+              f"({case.stack_thickness:g} nm in all); pattern {case.pattern.shape}")
+        sol = d["solved"]
+        model = "" if sol["symmetry"] == "full" else f", {sol['symmetry']} model"
+        print(f"elements  {sol['element_type']}, order {est.order} ({d['mesh_kind']} "
+              f"mesh{model})")
+        print(f"solved    {sol['unknowns']:,} unknowns, {sol['nodes']:,} nodes, "
+              f"{sol['elements']:,} elements (solver: {est.method})")
+        print(f"exported  {est.nodes:,} nodes, {est.elements:,} elements in fields.vtu"
+              + (" (the section as one layer of hexahedra)" if "section" in sol["element_type"]
+                 else " (the whole body, mirrored)" if model else ""))
         print(f"memory    about {est.memory_gb:.2f} GB (available {avail:.1f} GB)")
-        print(f"time      about {est.seconds:.0f} s on 2 cores (rough)")
+        print(f"time      about {est.seconds:.0f} s on {cores} core{'s' * (cores != 1)} "
+              f"(rough)")
     if not d["fits"]:
         err(f"mesh: the case needs about {est.memory_gb:.1f} GB but only {avail:.1f} GB are "
             "available; coarsen mesh.size / mesh.edge_size")

@@ -17,3 +17,9 @@ EXIT_INTERRUPTED = 130
 def err(msg: str) -> None:
     """Print ``mesastrain: error: <msg>`` on stderr, control characters escaped (one line)."""
     print(f"mesastrain: error: {one_line(msg)}", file=sys.stderr)
+
+
+def notes(case) -> None:
+    """Print the case's notes (old key names read under their new ones) on stderr."""
+    for n in getattr(case, "notes", ()):
+        print(f"note: {one_line(n)}", file=sys.stderr)

@@ -12,8 +12,10 @@ import time
 from pathlib import Path
 
 from mesastrain.case.parse import load_case
+from mesastrain.cli.common import notes
 from mesastrain.cli.headline_table import headline_table
-from mesastrain.errors import CaseError
+from mesastrain.errors import CaseError, one_line
+from mesastrain.units import fmt
 
 
 class Progress:
@@ -30,34 +32,42 @@ class Progress:
 
 
 def _fmt(v: float) -> str:
-    return f"{v:10.1f}"
+    return fmt(v, "10.1f")
 
 
 def results_table(summary: dict) -> str:
-    """Short plain-text table of the headline results of a run (MPa)."""
-    lines = ["region          material        mean sxx   mean syy   mean szz  max v.Mises"]
-    singular = False
-    for lf in summary["layer_figures"]:
+    """Short plain-text table of the headline results of a run (MPa).
+
+    Regions by name (``layer_figures`` of ``summary.json``); a peak von Mises stress
+    that sits at a singular corner or edge (``readouts`` peaks) is marked with ``*``.
+    """
+    figs = summary["layer_figures"]
+    wide = max([15] + [len(n) + 1 for n in figs])
+    lines = [f"{'region':<{wide}} {'material':<14}  mean σxx   mean σyy   mean σzz  "
+             f"max von Mises"]
+    peaks = {n: ((e.get("peaks") or {}).get("von_mises") or {})
+             for n, e in (summary.get("readouts") or {}).get("layers", {}).items()}
+    starred = False
+    for name, lf in figs.items():
         s = lf["mean_stress"]
-        mark = ""
-        if lf.get("max_von_mises_singular"):
-            mark, singular = " (singular corner)", True
-        lines.append(f"{lf['name']:<15} {lf['label']:<14}{_fmt(s[0][0])} {_fmt(s[1][1])} "
-                     f"{_fmt(s[2][2])} {_fmt(lf['max_von_mises'])}{mark}")
+        star = "*" if peaks.get(name, {}).get("singular") else ""
+        starred = starred or bool(star)
+        lines.append(f"{name:<{wide}} {lf['label']:<14}{_fmt(s[0][0])} {_fmt(s[1][1])} "
+                     f"{_fmt(s[2][2])} {_fmt(lf['max_von_mises'])}{star}")
     if summary["probes"]:
         lines.append("")
-        lines.append("probe           at (nm)                       sxx        syy        szz")
+        lines.append("probe           at (nm)                      σxx        σyy        σzz"
+                     "  region")
         for p in summary["probes"]:
-            at = ", ".join(f"{v:g}" for v in p["at"])
+            at = ", ".join(fmt(v, "g") for v in p["at"])
             s = p["stress"]
             lines.append(f"{p['name']:<15} [{at}]".ljust(40) +
-                         f"{_fmt(s[0][0])} {_fmt(s[1][1])} {_fmt(s[2][2])}")
+                         f"{_fmt(s[0][0])} {_fmt(s[1][1])} {_fmt(s[2][2])}  {p['region']}")
     lines.append("stress in MPa, sample frame, positive in tension; element averages for "
                  "regions, exact values at probes")
-    if singular:
-        lines.append("singular corner: the peak sits at a sharp corner or edge, where linear "
-                     "elasticity has no finite stress; it grows as the mesh is refined (read "
-                     "the stand-off values in the report)")
+    if starred:
+        lines.append("* at a sharp corner or edge: a singular value that grows as the mesh is "
+                     "refined, not a material stress")
     return "\n".join(lines)
 
 
@@ -74,6 +84,7 @@ def cmd_run(args) -> int:
 
     check_memory_limit(args.max_memory)
     case = load_case(args.case)
+    notes(case)
     out = Path(args.out) if args.out is not None else Path(Path(args.case).stem + "-results")
     with claim_output(out, overwrite=args.overwrite, inputs=[args.case]) as dest:
         return _solve_and_write(args, case, dest)
@@ -117,6 +128,8 @@ def _solve_and_write(args, case, dest) -> int:
             made += ", pictures" + (", report.html" if case.output.report else "")
         print(f"results in {out}/ ({made})")
         print(CAUTION)
+        for w in summary.get("warnings", ()):
+            print(f"warning: {one_line(w)}", file=sys.stderr)
     return 0
 
 

@@ -16,6 +16,7 @@ The check groups are the explicit list :data:`CHECKS` of functions
 from __future__ import annotations
 
 import json
+import sys
 import time
 from collections.abc import Callable
 from dataclasses import asdict
@@ -25,6 +26,7 @@ import numpy as np
 from mesastrain.cli.common import EXIT_FAILED
 from mesastrain.cli.verify_row import Check, _case  # noqa: F401 (Check re-exported)
 from mesastrain.cli.verify_stack import check_le11, check_liner, check_stack
+from mesastrain.units import fmt
 
 
 def _blanket_film_stress(case) -> tuple[np.ndarray, np.ndarray, object]:
@@ -370,18 +372,26 @@ CHECKS: list[Callable[[], list[Check]]] = [
 # --------------------------------------------------------------------------
 # running and printing
 # --------------------------------------------------------------------------
-def run_checks(groups=None) -> list[Check]:
-    """Run every check group (or the named ones) and return the rows."""
+def run_checks(groups=None, progress=None) -> list[Check]:
+    """Run every check group (or the named ones) and return the rows.
+
+    ``progress(str)``, when given, is told which group runs (``group 3 of 9: stoney``) and
+    how many rows have failed so far.
+    """
     rows = []
-    for fn in CHECKS:
-        if groups and fn.__name__.removeprefix("check_") not in groups:
-            continue
+    chosen = [fn for fn in CHECKS
+              if not groups or fn.__name__.removeprefix("check_") in groups]
+    for k, fn in enumerate(chosen, 1):
+        if progress is not None:
+            bad = sum(not r.passed for r in rows)
+            progress(f"group {k} of {len(chosen)}: {fn.__name__.removeprefix('check_')} "
+                     f"({len(rows)} rows done, {bad} failed)")
         rows.extend(fn())
     return rows
 
 
 def _fmt(v: float) -> str:
-    return f"{v:.6g}" if np.isfinite(v) else str(v)
+    return fmt(v, ".6g") if np.isfinite(v) else str(v)
 
 
 def format_table(rows: list[Check]) -> str:
@@ -412,8 +422,11 @@ def _plain(v):
 
 
 def cmd_verify(args) -> int:
+    from mesastrain.cli.run import Progress
+
     t = time.perf_counter()
-    rows = run_checks(args.only)
+    progress = Progress(sys.stderr.isatty() or getattr(args, "progress", False))
+    rows = run_checks(args.only, progress=progress)
     if args.json:
         print(json.dumps([dict(asdict(r), error=r.error if np.isfinite(r.error) else None,
                                passed=r.passed) for r in rows], indent=1, default=_plain))
@@ -434,4 +447,6 @@ def add_command(subparsers) -> None:
     p.add_argument("--only", nargs="+", choices=names, metavar="GROUP",
                    help=f"run only these groups: {', '.join(names)}")
     p.add_argument("--json", action="store_true", help="print the rows as JSON")
+    p.add_argument("--progress", action="store_true",
+                   help="show which check group runs even when stderr is not a terminal")
     p.set_defaults(func=cmd_verify)

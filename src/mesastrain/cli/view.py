@@ -36,7 +36,7 @@ def result_vtu(folder: Path) -> Path:
 
 
 #: Arrays every ``fields.vtu`` written by mesastrain carries: (where, name, components).
-REQUIRED_ARRAYS = (("cell", "layer", 1), ("cell", "stress", 6), ("point", "displacement", 3))
+REQUIRED_ARRAYS = (("cell", "region", 1), ("cell", "stress", 6), ("point", "displacement", 3))
 
 
 def check_fields(vtu: Path) -> None:
@@ -65,6 +65,8 @@ def check_fields(vtu: Path) -> None:
     for where, name, ncomp in REQUIRED_ARRAYS:
         if where == "cell":
             blocks = m.cell_data.get(name)
+            if blocks is None and name == "region":     # results of earlier versions
+                blocks = m.cell_data.get("layer")
             data = None if blocks is None else [np.asarray(b) for b in blocks]
             ok = data is not None and sum(len(b) for b in data) == ncells and all(
                 (b.ndim == 1 and ncomp == 1) or (b.ndim == 2 and b.shape[1] == ncomp)
@@ -82,12 +84,16 @@ def interactive(vtu: Path, name: str = "stress_xx") -> None:
     import numpy as np
     import pyvista as pv
 
+    from mesastrain.io.gl import quiet_vtk
+
+    quiet_vtk()
+
     from mesastrain.io.render import _limits, load, map_values
 
     mesh = load(vtu)
     values, where, label, signed = map_values(mesh, name)
     (mesh.cell_data if where == "cell" else mesh.point_data)["_shown"] = values
-    layer = np.asarray(mesh.cell_data["layer"])
+    layer = np.asarray(mesh.cell_data["region"])
     clim = _limits(values, layer, signed, 99.0)
     half = mesh.clip(normal=(0, -1, 0), origin=(0, 0, 0))
     pl = pv.Plotter(title=f"mesastrain - {vtu.parent.name}")
@@ -96,7 +102,7 @@ def interactive(vtu: Path, name: str = "stress_xx") -> None:
                     preference=where, scalar_bar_args={"title": label, "color": "black",
                                                        "fmt": "%.4g"})
     for k in np.unique(layer):
-        part = half.threshold((k - 0.5, k + 0.5), scalars="layer")
+        part = half.threshold((k - 0.5, k + 0.5), scalars="region")
         if part.n_cells:
             _ = pl.add_mesh(part.extract_feature_edges(feature_angle=60), color="black",
                             line_width=1)

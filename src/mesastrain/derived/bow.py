@@ -252,13 +252,19 @@ def wafer_bow(res, fe: bool | None = None) -> dict:
 
     lam = laminate_curvature(stiff, eig, zb, zt)
     out = {
-        "units": {"curvature": "1/m", "radius": "m", "bow_height": "um", "force": "MPa nm"},
-        "wafer_diameter_mm": diameter * 1e-6,
-        "substrate_thickness_nm": h_s,
-        "film_thickness_nm": h_f,
-        "substrate_biaxial_modulus_GPa": M_s,
+        "units": {"curvature": "1/m", "radius": "m", "bow_height": "um",
+                  "film_force": "N/m", "film_force_blanket": "N/m", "wafer_diameter": "mm",
+                  "substrate_thickness": "nm", "film_thickness": "nm",
+                  "substrate_biaxial_modulus": "GPa"},
+        "film_force_definition": ("in-plane film stress integrated over the film thickness: "
+                                  "force per unit length of film edge, N/m (1 MPa nm = "
+                                  "1e-3 N/m)"),
+        "wafer_diameter": diameter * 1e-6,
+        "substrate_thickness": h_s,
+        "film_thickness": h_f,
+        "substrate_biaxial_modulus": M_s,
         "substrate_in_plane_isotropic": bool(iso),
-        "film_force_blanket": F,
+        "film_force_blanket": F * 1e-3,
         "stoney": _entry(stoney(F), diameter),
         "laminate": _entry(lam["mean"], diameter, lam["curvature"]),
     }
@@ -272,7 +278,7 @@ def wafer_bow(res, fe: bool | None = None) -> dict:
     if fe:
         r = free_plate_curvature(stiff, eig, zb, zt)
         out["finite_element"] = _entry(r["mean"], diameter, r["curvature"])
-        out["finite_element"]["film_force"] = r["film_force"]
+        out["finite_element"]["film_force"] = r["film_force"] * 1e-3      # MPa nm -> N/m
         out["finite_element"]["unknowns"] = r["unknowns"]
         out["stoney_with_fe_film_force"] = _entry(stoney(r["film_force"]), diameter)
     out["notes"] = ("curvature positive when the film side is concave (tensile film); Stoney's "

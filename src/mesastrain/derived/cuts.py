@@ -24,7 +24,7 @@ from mesastrain.derived.sampling import sample_inside
 from mesastrain.fem.fields import hydrostatic, principal, von_mises
 from mesastrain.physics.quantities import describe
 from mesastrain.run.result import Derived
-from mesastrain.units import safe_name
+from mesastrain.units import fmt, safe_name
 
 _AX = {"x": 0, "y": 1, "z": 2}
 
@@ -105,7 +105,11 @@ def sample_cut(res, start, end, points: int):
 
 
 def write_cut_csv(path: Path, dist, pts, region, labels, comps: dict) -> None:
-    """CSV with one row per sample point; units in the column names."""
+    """CSV with one row per sample point; units in the column names.
+
+    ``region`` is the region's name and ``material`` its material ("outside" and empty
+    for a point outside the body).
+    """
     names = list(comps)
     header = (["distance_nm", "x_nm", "y_nm", "z_nm", "region", "material"]
               + [f"{n}_{unit_of(n)}" if unit_of(n) != "1" else n for n in names])
@@ -114,9 +118,9 @@ def write_cut_csv(path: Path, dist, pts, region, labels, comps: dict) -> None:
         w.writerow(header)
         for k in range(len(dist)):
             r = int(region[k])
-            row = [f"{dist[k]:.9g}", *(f"{v:.9g}" for v in pts[k]), r,
-                   labels[r] if r >= 0 else "outside"]
-            row += [f"{comps[n][k]:.9g}" for n in names]
+            row = [fmt(dist[k], ".9g"), *(fmt(v, ".9g") for v in pts[k]),
+                   *(labels[r].partition(": ")[::2] if r >= 0 else ("outside", ""))]
+            row += [fmt(comps[n][k], ".9g") for n in names]
             w.writerow(row)
 
 

@@ -110,8 +110,8 @@ __all__ = [
 ]
 
 
-_UNITS = {"band": "eV", "raman_shift": "cm^-1", "piezo": "percent (100 d rho/rho)",
-          "pi": "1e-11/Pa", "stress": "MPa", "stress_per_shift": "MPa per cm^-1"}
+_UNITS = {"band": "eV", "raman_shift": "cm^-1", "piezo": "%",
+          "pi": "1e-11/Pa", "stress": "MPa", "stress_per_shift": "MPa/cm^-1"}
 
 
 #: |100 d rho/rho| (%) beyond which the linear piezoresistance model is flagged
@@ -142,10 +142,9 @@ def _factor(kind: str, params, stiffness, R, geometry: dict) -> float | None:
 
 
 def _region_entry(rp: RegionPlan, plan: Plan, layer_model) -> dict:
-    entry = {"index": rp.index, "name": layer_model.name, "label": rp.label,
-             "not_computed": dict(rp.missing)}
+    entry = {"region": rp.index, "label": rp.label, "not_computed": dict(rp.missing)}
     if rp.bands is not None:
-        entry["bands"] = {"parameters": rp.bands.name, "x": rp.bands.x,
+        entry["bands"] = {"parameters": rp.bands.name, "composition": rp.bands.x,
                           "structure": rp.bands.structure, "scale": rp.bands.scale,
                           "xi_u_delta": rp.bands.xi_u_delta, "b": rp.bands.b, "d": rp.bands.d,
                           "a_v": rp.bands.a_v, "a_c": rp.bands.a_c,
@@ -195,9 +194,9 @@ def _sources(plan: Plan) -> list[str]:
     return seen
 
 
-def _layer_figures(values: dict, region, volume, plan: Plan, names: dict) -> list[dict]:
-    """Volume means and ranges of each device field per region (element averages)."""
-    out = []
+def _layer_figures(values: dict, region, volume, plan: Plan) -> dict:
+    """Volume means and ranges of each device field per region (element averages), by name."""
+    out = {}
     for rp in plan.regions:
         m = region == rp.index
         if not np.any(m):
@@ -223,16 +222,16 @@ def _layer_figures(values: dict, region, volume, plan: Plan, names: dict) -> lis
                 kinds, where = np.unique(masks, return_inverse=True)
                 share = np.bincount(where, weights=vol)
                 figs["conduction_valleys"] = valley_names(int(kinds[np.argmax(share)]))
-        out.append({"index": rp.index, "name": names.get(rp.index), "label": rp.label, **figs})
+        out[rp.name] = {"region": rp.index, "label": rp.label, **figs}
     return out
 
 
 def _probe_entries(plan: Plan, values: dict, probes: list) -> dict:
     n = len(probes)
     bands, raman, modes, piezo = [None] * n, [None] * n, [None] * n, [None] * n
-    regions = {rp.index: rp for rp in plan.regions}
+    regions = {rp.name: rp for rp in plan.regions}
     for k, pr in enumerate(probes):
-        rp = regions[pr["layer"]]
+        rp = regions[pr["region"]]
         if plan.raman and rp.raman is not None:
             raman[k] = float(values["raman_shift"][k])
             modes[k] = ({"line": rp.raman.mode, "pdp_set": rp.raman.pdp_set,
@@ -313,7 +312,7 @@ def _warnings(plan: Plan, values: dict, region, names: dict) -> list[str]:
                                        values[f"piezo_{ch.field}_trans"][m]]))
             level = float(np.percentile(v, 99.0))
             if level > PIEZO_WARN_PERCENT:
-                big.append(f"{level:.0f} % in {names.get(rp.index, rp.index)} ({rp.label})")
+                big.append(f"{level:.0f} % in {rp.name} ({rp.label})")
         if big:
             out.append(f"channel {ch.name}: |Δρ/ρ| reaches {', '.join(big)} (99th "
                        f"percentile of the elements); the linear piezoresistance coefficients "
@@ -371,8 +370,9 @@ def derive(res):
         "channels": [{"name": ch.name, "field": ch.field, "carrier": ch.carrier,
                       "direction_sample": ch.direction, "default": ch.default}
                      for ch in plan.channels],
-        "regions": [_region_entry(rp, plan, lm) for rp, lm in zip(plan.regions, res.layers)],
-        "layer_figures": _layer_figures(values, region, res.fields.cell_volume, plan, names),
+        "regions": {rp.name: _region_entry(rp, plan, lm)
+                    for rp, lm in zip(plan.regions, res.layers)},
+        "layer_figures": _layer_figures(values, region, res.fields.cell_volume, plan),
         "fields": list(cell_data),
         "piezo_linear_limit": {"percent": PIEZO_WARN_PERCENT, "reason": LINEAR_LIMIT_REASON},
         "sources": _sources(plan),
@@ -381,7 +381,8 @@ def derive(res):
     if res.probes:
         pts = np.array([p["strain"] for p in res.probes])
         sig = np.array([p["stress"] for p in res.probes])
-        reg = np.array([p["layer"] for p in res.probes])
+        index = {lm.name: lm.index for lm in res.layers}
+        reg = np.array([index[p["region"]] for p in res.probes])
         probe_entries = _probe_entries(plan, evaluate(plan, reg, pts, sig), res.probes)
     files = {f"cut_{safe_name(cut.name)}_device.csv": cut_writer(res, plan, cut)
              for cut in getattr(case, "cuts", ())}

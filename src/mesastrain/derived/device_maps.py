@@ -15,6 +15,7 @@ from mesastrain.derived.device_physics import Plan, direction_label, evaluate, f
 from mesastrain.derived.sampling import sample_inside
 from mesastrain.physics.piezo import LINEAR_LIMIT_PERCENT
 from mesastrain.physics.quantities import pdp_words
+from mesastrain.units import fmt
 
 __all__ = ["PIEZO_LINEAR_LIMIT", "cut_writer", "map_fields", "map_words", "section_maps"]
 
@@ -43,8 +44,7 @@ def _csv_value(name: str, v) -> str:
         return str(int(v))
     if not np.isfinite(v):
         return ""
-    text = f"{v:.6f}" if name.startswith("band") else f"{v:.4f}"
-    return text[1:] if text.startswith("-") and float(text) == 0.0 else text
+    return fmt(v, ".6f") if name.startswith("band") else fmt(v, ".4f")
 
 
 def cut_writer(res, plan: Plan, cut):
@@ -54,13 +54,15 @@ def cut_writer(res, plan: Plan, cut):
         strain, stress, _, region = sample_inside(res, pts)   # region -1 outside: empty row
         values = evaluate(plan, region, strain, stress)
         names = field_names(plan)
+        names_of = [lm.name for lm in res.layers]
         dist = np.linalg.norm(pts - pts[0], axis=1)
         with open(path, "w", newline="", encoding="utf-8") as fh:
             w = csv.writer(fh)
             w.writerow(["distance_nm", "x_nm", "y_nm", "z_nm", "region"]
                        + [_csv_header(k) for k in names])
             for i in range(len(pts)):
-                row = [f"{dist[i]:.6g}", *(f"{c:.6g}" for c in pts[i]), int(region[i])]
+                row = [fmt(dist[i], ".6g"), *(fmt(c, ".6g") for c in pts[i]),
+                       names_of[int(region[i])] if region[i] >= 0 else "outside"]
                 for k in names:
                     row.append(_csv_value(k, values[k][i]))
                 w.writerow(row)

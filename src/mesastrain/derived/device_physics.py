@@ -144,6 +144,8 @@ class RegionPlan:
     piezo : dict of channel field -> PiezoCoefficients or None
     missing : dict of str -> str
         Why a readout does not apply (quantity -> reason).
+    name : str
+        The region's name (:attr:`mesastrain.model.regions.LayerModel.name`).
     """
 
     index: int
@@ -153,6 +155,7 @@ class RegionPlan:
     raman: RamanParameters | BiaxialLine | None
     piezo: dict
     missing: dict
+    name: str = ""
 
 
 @dataclass(frozen=True)
@@ -261,7 +264,7 @@ def plan_of(case, layers) -> Plan:
                 missing[f"piezo {ch.name}"] = (f"no piezoresistance coefficients for "
                                                f"{ch.carrier}-type {mat.label}")
         regions.append(RegionPlan(lm.index, mat.label, np.asarray(lm.frame.R), bp, rp, pz,
-                                  missing))
+                                  missing, name=lm.name))
     regions = tuple(regions)
     return Plan(bands=any(rp.bands is not None for rp in regions),
                 raman=any(rp.raman is not None for rp in regions), piezo=dev.piezo,

@@ -59,7 +59,7 @@ def layer_energy(res, lm, blanket_stress, blanket_strain) -> dict:
         w = 0.5 * np.einsum("nij,nij->n", res.fields.cell_stress[m], res.fields.cell_strain[m])
         area = vol.sum() / h
         out["patterned"] = float(np.sum(w * vol) / area) * _MPA_NM_TO_J_M2
-        out["plan_area_nm2"] = float(area)
+        out["plan_area"] = float(area)
         out["patterned_over_blanket"] = (out["patterned"] / out["blanket"]
                                          if out["blanket"] > 0 else None)
     return out
@@ -100,14 +100,14 @@ def critical_thickness(res, lm) -> dict | None:
     mb = float(matthews_blakeslee_thickness(f, b, nu, 60.0, 60.0, form="single"))
     out = {"misfit": f, "thickness": h,
            "matthews_blakeslee": mb,
-           "matthews_blakeslee_parameters": {"b_nm": b, "nu": nu, "alpha_deg": 60.0,
-                                             "lambda_deg": 60.0, "form": "single layer, 8 pi"},
+           "matthews_blakeslee_parameters": {"b": b, "nu": nu, "alpha": 60.0,
+                                             "lambda": 60.0, "form": "single layer, 8 pi"},
            "exceeds_matthews_blakeslee": bool(np.isfinite(mb) and h > mb) or bool(np.isnan(mb))}
     below = res.layers[lm.index - 1].material
     if mat.name in ("SiGe", "Ge") and below.name == "Si" and below.x is None:
         pb = float(people_bean_thickness(f, PB_BURGERS_NM, PB_LATTICE_NM, nu))
         out["people_bean"] = pb
-        out["people_bean_parameters"] = {"b_nm": PB_BURGERS_NM, "a_nm": PB_LATTICE_NM, "nu": nu}
+        out["people_bean_parameters"] = {"b": PB_BURGERS_NM, "a": PB_LATTICE_NM, "nu": nu}
         out["exceeds_people_bean"] = bool(np.isfinite(pb) and h > pb) or bool(np.isnan(pb))
     return out
 

@@ -109,8 +109,7 @@ def headline_figures(res) -> list[Figure]:
     s = merged_summary(res)
     figs: list[Figure] = []
     readouts = s.get("readouts") or {}
-    for entry in readouts.get("layers", []):
-        name = entry["name"]
+    for name, entry in readouts.get("layers", {}).items():
         c = entry.get("centre_stress")
         if c is not None:
             c = np.asarray(c, dtype=float)

@@ -30,7 +30,7 @@ from mesastrain.model.volterra import lines_eigenstrain
 from mesastrain.physics.dislocations import anisotropic_fields, array_fields
 from mesastrain.physics.quantities import nice_limit
 from mesastrain.run.result import Derived
-from mesastrain.units import safe_name
+from mesastrain.units import fmt, safe_name
 
 __all__ = ["derive", "overlay_stress"]
 
@@ -264,9 +264,9 @@ def _cut_file(res, cut, fams, fe_cells) -> dict:
                 head += [f"{what}_stress_{c}_MPa" for c, _, _ in _PAIRS]
             w.writerow(head)
             for k in range(len(pts)):
-                row = [f"{dist[k]:.6g}", *(f"{v:.6g}" for v in pts[k])]
+                row = [fmt(dist[k], ".6g"), *(fmt(v, ".6g") for v in pts[k])]
                 for arr in (total, fe, inf):
-                    row += ["" if not np.isfinite(arr[k, i, j]) else f"{arr[k, i, j]:.6g}"
+                    row += ["" if not np.isfinite(arr[k, i, j]) else fmt(arr[k, i, j], ".6g")
                             for _, i, j in _PAIRS]
                 w.writerow(row)
 

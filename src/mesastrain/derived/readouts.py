@@ -61,6 +61,7 @@ from mesastrain.derived.relaxation import RECOVERY, blanket_state, edge_relaxati
 from mesastrain.derived.sampling import cell_centres, etch_floor, sample_inside
 from mesastrain.derived.tractions import interface_balance, plot_tractions, traction_profiles
 from mesastrain.run.result import Derived
+from mesastrain.units import fmt
 
 __all__ = ["convergence_figures", "derive"]
 
@@ -90,9 +91,9 @@ def derive(res) -> Derived:
     feats = standoff_values(res, edge_features(res, standoff)) if floor is not None else []
     warnings.extend(standoff_warnings(feats, standoff))
 
-    layers_out, relax_rows = [], []
+    layers_out, relax_rows = {}, []
     for lm in res.layers:
-        entry = {"index": lm.index, "name": lm.name, "label": lm.material.label,
+        entry = {"region": lm.index, "label": lm.material.label,
                  "z_bottom": lm.z_bottom, "z_top": lm.z_top}
         peaks = region_peaks(res, lm.index, centres)
         for pk in peaks.values():
@@ -131,13 +132,14 @@ def derive(res) -> Derived:
                 w = critical_warning(lm, ct)
                 if w:
                     warnings.append(w)
-        layers_out.append(entry)
+        layers_out[lm.name] = entry
 
     interfaces, traction_rows = [], []
     for k, z in free_edge_interfaces(res):
         prof, rows = traction_profiles(res, k, z)
         traction_rows.extend(rows)
-        item = {"index": k, "z": z, "between": [res.layers[k].name, res.layers[k + 1].name],
+        below, above = res.layers[k].name, res.layers[k + 1].name
+        item = {"name": f"{above}/{below}", "z": z, "between": [below, above],
                 "sides": prof, "balance": interface_balance(res, z)}
         if prof:
             pk = max(prof.values(), key=lambda v: abs(v["peel_peak"]))
@@ -151,7 +153,10 @@ def derive(res) -> Derived:
         interfaces.append(item)
 
     summary = {"readouts": {
-        "units": {"stress": "MPa", "length": "nm", "energy_per_area": "J/m^2"},
+        "units": {"stress": "MPa", "length": "nm", "energy_per_area": "J/m^2",
+                  "thickness": "nm", "matthews_blakeslee": "nm", "people_bean": "nm",
+                  "b": "nm", "a": "nm", "alpha": "deg", "lambda": "deg",
+                  "plan_area": "nm^2"},
         "standoff": standoff,
         "standoff_rule": ("[readouts] standoff" if case.readouts.standoff
                           else "half the thinnest layer (default)"),
@@ -192,13 +197,16 @@ def derive(res) -> Derived:
     }}
     files = {}
     if relax_rows:
-        files["edge_relaxation.csv"] = lambda p, rows=relax_rows: _write_csv(
+        named = [(res.layers[r[0]].name, *r[1:]) for r in relax_rows]
+        files["edge_relaxation.csv"] = lambda p, rows=named: _write_csv(
             p, ("region", "side", "distance_from_sidewall_nm", "normal_stress_MPa",
                 "along_edge_stress_MPa", "centre_normal_stress_MPa"), rows)
         files["edge_relaxation.png"] = lambda p, rows=relax_rows: plot_relaxation(
             p, rows, res.layers, layers_out)
     if traction_rows:
-        files["interface_tractions.csv"] = lambda p, rows=traction_rows: _write_csv(
+        named = [(f"{res.layers[r[0] + 1].name}/{res.layers[r[0]].name}", *r[1:])
+                 for r in traction_rows]
+        files["interface_tractions.csv"] = lambda p, rows=named: _write_csv(
             p, ("interface", "z_nm", "side", "distance_from_sidewall_nm", "peel_MPa",
                 "shear_toward_sidewall_MPa", "shear_along_edge_MPa"), rows)
         files["interface_tractions.png"] = lambda p, rows=traction_rows: plot_tractions(
@@ -262,4 +270,4 @@ def _write_csv(path: Path, header, rows) -> None:
         w = csv.writer(fh)
         w.writerow(header)
         for r in rows:
-            w.writerow([f"{v:.9g}" if isinstance(v, float) else v for v in r])
+            w.writerow([fmt(v, ".9g") if isinstance(v, float) else v for v in r])

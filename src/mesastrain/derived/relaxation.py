@@ -151,7 +151,7 @@ def relaxation_figure(rows: list, layers, layers_out):
     from matplotlib.figure import Figure
 
     regions = sorted({r[0] for r in rows})
-    info = {e["index"]: e for e in layers_out}
+    info = {e["region"]: e for e in layers_out.values()}
     stack = layers[-1].z_top
     fig = Figure(figsize=(8.0, 3.1 * len(regions) + 0.6), dpi=110, layout="constrained")
     FigureCanvasAgg(fig)

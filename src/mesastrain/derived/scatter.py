@@ -83,7 +83,7 @@ def evaluation_plan(res, figs, base) -> dict:
     Computed once on the unvaried result; the geometry does not move with the
     material data.
     """
-    layers_entry = {e["name"]: e for e in (base.get("readouts") or {}).get("layers", [])}
+    layers_entry = (base.get("readouts") or {}).get("layers", {})
     point_idx = [i for i, f in enumerate(figs) if f.kind in ("centre", "probe", "raman", "band")]
     so = [i for i, f in enumerate(figs) if f.kind == "standoff"]
     rays = {}

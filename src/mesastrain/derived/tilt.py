@@ -33,11 +33,11 @@ def _arcsec(x: float) -> float:
 
 def _figures(H: np.ndarray, e0: np.ndarray, nominal: np.ndarray | None) -> dict:
     omega = lattice_rotation(H, e0)
-    out = {"lattice_rotation_arcsec": _arcsec(np.linalg.norm(omega)),
-           "lattice_rotation_vector_arcsec": [_arcsec(w) for w in omega]}
+    out = {"lattice_rotation": _arcsec(np.linalg.norm(omega)),
+           "lattice_rotation_vector": [_arcsec(w) for w in omega]}
     if nominal is not None:
         ang, axis = plane_tilt(H, nominal)
-        out["plane_tilt_arcsec"] = _arcsec(ang)
+        out["plane_tilt"] = _arcsec(ang)
         out["plane_tilt_axis"] = [round(float(a), 6) for a in axis]
     return out
 
@@ -56,13 +56,13 @@ def layer_tilts(res: Result) -> list[dict]:
         same = lm.material.system == sub.material.system
         nominal = nominal_sub if same else None
         H, _ = blanket_gradient(lm.stiffness_sample, lm.eigenstrain_sample)
-        item = {"index": lm.index, "name": lm.name, "label": lm.material.label,
+        item = {"name": lm.name, "region": lm.index, "label": lm.material.label,
                 "closed_form": _figures(H, lm.eigenstrain_sample, nominal)}
         if nominal is None:
             item["note"] = "plane tilt not given: the layer's crystal system differs from the substrate's"
         if miscut is not None and same:
             alpha = np.radians(miscut[0])
-            item["nagai_tilt_arcsec"] = _arcsec(nagai_tilt(H[2, 2], alpha))
+            item["nagai_tilt"] = _arcsec(nagai_tilt(H[2, 2], alpha))
         m = res.mesh.layer == lm.index
         if blanket and np.any(m):
             vol = fl.cell_volume[m]
@@ -76,7 +76,8 @@ def layer_tilts(res: Result) -> list[dict]:
 def derive(res: Result) -> Derived:
     """``layer_tilt`` in ``summary.json``."""
     return Derived(summary={"layer_tilt": {
-        "unit": "arcsec",
+        "units": {"lattice_rotation": "arcsec", "lattice_rotation_vector": "arcsec",
+                  "plane_tilt": "arcsec", "nagai_tilt": "arcsec", "plane_tilt_axis": "1"},
         "convention": ("relative to the substrate lattice; lattice_rotation: rotation of the "
                        "layer's lattice (polar decomposition of its elastic deformation), "
                        "first order (-e_yz, e_xz, 0) of the total strain; plane_tilt: tilt of "
@@ -85,4 +86,4 @@ def derive(res: Result) -> Derived:
                        "J. Appl. Phys. 45, 3789 (1974), tan(d_alpha) = e_zz tan(miscut); "
                        "closed_form: coherent blanket layer; finite_element: the blanket "
                        "model's layer average"),
-        "layers": layer_tilts(res)}})
+        "layers": {t.pop("name"): t for t in layer_tilts(res)}}})

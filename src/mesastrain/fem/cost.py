@@ -34,14 +34,44 @@ class Estimate:
     memory_gb: float
     seconds: float
     solved_unknowns: int | None = None
+    element_type: str = ""
+    solved_nodes: int | None = None
+    solved_elements: int | None = None
+    symmetry: str = "full"
 
     def to_dict(self) -> dict:
-        out = {"nodes": self.nodes, "elements": self.elements, "unknowns": self.unknowns,
-               "order": self.order, "solver": self.method,
-               "memory_gb": round(self.memory_gb, 3), "seconds": round(self.seconds, 1)}
-        if self.solved_unknowns is not None and self.solved_unknowns != self.unknowns:
-            out["solved_unknowns"] = self.solved_unknowns
-        return out
+        """The estimate as ``check --json`` prints it: the solved system and the exported body."""
+        return {
+            "solved": {"unknowns": self.solved_unknowns or self.unknowns,
+                       "nodes": self.solved_nodes or self.nodes,
+                       "elements": self.solved_elements or self.elements,
+                       "element_type": self.element_type, "order": self.order,
+                       "symmetry": self.symmetry},
+            "exported": {"nodes": self.nodes, "elements": self.elements},
+            "solver": self.method, "memory_gb": round(self.memory_gb, 3),
+            "seconds": round(self.seconds, 1)}
+
+
+#: Nodes per element by shape for element order 1 and 2 (27-node bricks, 10-node
+#: tetrahedra, 9-node quadrilaterals, 6-node triangles).
+ELEMENT_NODES = {"hexahedra": (8, 27), "tetrahedra": (4, 10), "quadrilaterals": (4, 9),
+                 "triangles": (3, 6)}
+
+
+def element_type(shape: str, order: int, section: bool = False) -> str:
+    """The element type in words: ``"8-node hexahedra"``, ``"10-node tetrahedra"``, ...
+
+    Parameters
+    ----------
+    shape : {"hexahedra", "tetrahedra", "quadrilaterals", "triangles"}
+    order : int
+        1 or 2.
+    section : bool
+        A 2-D x-z cross-section (generalized plane strain) rather than a 3-D body.
+    """
+    n = ELEMENT_NODES.get(shape, (0, 0))[0 if order == 1 else 1]
+    text = f"{n}-node {shape}" if n else shape
+    return text + (" of the x-z cross-section (generalized plane strain)" if section else "")
 
 
 
@@ -186,7 +216,8 @@ TET_OUTPUT_S_PER_UNKNOWN = 2.0e-5
 
 def estimate_from_counts(case, nodes: int, elements: int, scalar_dofs: int,
                          dofs_per_element: int, nnz_per_row: int,
-                         mesh_seconds: float = 0.0) -> Estimate:
+                         mesh_seconds: float = 0.0, shape: str = "tetrahedra",
+                         section: bool = False) -> Estimate:
     """An :class:`Estimate` from mesh counts, with the memory and time rules of :func:`resources`.
 
     Used for the meshes that are not structured hexahedra (cross-sections,
@@ -204,6 +235,9 @@ def estimate_from_counts(case, nodes: int, elements: int, scalar_dofs: int,
     mesh_seconds : float
         Time of the mesher (gmsh) when the caller can predict it; a nonzero
         value also adds the output time of :data:`TET_OUTPUT_S`.
+    shape, section
+        The element shape and whether the mesh is a 2-D cross-section
+        (:func:`element_type`).
     """
     n = 3 * int(scalar_dofs)
     nnz = n * nnz_per_row
@@ -212,5 +246,6 @@ def estimate_from_counts(case, nodes: int, elements: int, scalar_dofs: int,
                           multigrid="algebraic")
     if mesh_seconds:
         secs += mesh_seconds + TET_OUTPUT_S + TET_OUTPUT_S_PER_UNKNOWN * n
-    return Estimate(int(nodes), int(elements), n, case.mesh.order, method, mem, secs)
+    return Estimate(int(nodes), int(elements), n, case.mesh.order, method, mem, secs,
+                    element_type=element_type(shape, case.mesh.order, section))
 

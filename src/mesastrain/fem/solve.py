@@ -134,8 +134,9 @@ class SolverReport:
                 "multigrid_levels": self.levels,
                 "operator_complexity": round(self.operator_complexity, 3),
                 "preconditioner_precision": self.precision,
-                "setup_seconds": round(self.setup_seconds, 3),
-                "solve_seconds": round(self.solve_seconds, 3)}
+                "setup_time": round(self.setup_seconds, 3),
+                "solve_time": round(self.solve_seconds, 3),
+                "units": {"setup_time": "s", "solve_time": "s"}}
 
 
 def choose_method(method: str, n_free: int, direct_limit: int | None = None) -> str:

@@ -11,6 +11,7 @@ those of :mod:`mesastrain.fem.fields`.
 
 from __future__ import annotations
 
+import html
 import json
 import math
 from pathlib import Path
@@ -57,7 +58,7 @@ def _compressed(a: np.ndarray, pool, level: int) -> list[bytes]:
 
 
 def write_vtu(path: Path, mesh, point_data: dict, cell_data: dict,
-              points_dtype=np.float64, level: int = 1) -> None:
+              points_dtype=np.float64, level: int = 1, field_data: dict | None = None) -> None:
     """Write a scikit-fem mesh and its data to a binary, zlib-compressed VTU file.
 
     The arrays are appended raw (no base64) in zlib blocks of 1 MiB, compressed
@@ -76,6 +77,8 @@ def write_vtu(path: Path, mesh, point_data: dict, cell_data: dict,
     points_dtype : numpy dtype, default: float64
     level : int, default: 1
         zlib level (1: fastest; the float fields gain little from higher levels).
+    field_data : dict of name -> small integer or float array, optional
+        Written inline (ASCII) as the grid's field data, e.g. the region names.
     """
     import os
     from concurrent.futures import ThreadPoolExecutor
@@ -106,9 +109,16 @@ def write_vtu(path: Path, mesh, point_data: dict, cell_data: dict,
             chunks += parts
             offset += sum(len(p) for p in parts)
     body = "".join(f"<{sec}>{''.join(items)}</{sec}>" for sec, items in sections.items())
+    fields = ""
+    if field_data:
+        fields = "<FieldData>" + "".join(
+            f'<DataArray type="{_VTK_TYPE[np.asarray(v).dtype]}" '
+            f'Name="{html.escape(k, quote=True)}" NumberOfTuples="{np.asarray(v).size}" '
+            f'format="ascii">{" ".join(str(x) for x in np.asarray(v).ravel())}</DataArray>'
+            for k, v in field_data.items()) + "</FieldData>\n"
     head = ('<?xml version="1.0"?>\n<VTKFile type="UnstructuredGrid" version="1.0" '
             'byte_order="LittleEndian" header_type="UInt64" '
-            'compressor="vtkZLibDataCompressor">\n<UnstructuredGrid>\n'
+            'compressor="vtkZLibDataCompressor">\n<UnstructuredGrid>\n' + fields +
             f'<Piece NumberOfPoints="{npts}" NumberOfCells="{nel}">{body}</Piece>\n'
             '</UnstructuredGrid>\n<AppendedData encoding="raw">\n_')
     with open(path, "wb") as fh:

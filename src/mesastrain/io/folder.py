@@ -27,7 +27,7 @@ def layer_summary(lm: LayerModel) -> dict:
     if mat.c is not None:
         lattice["c"] = mat.c
     return {
-        "index": lm.index, "name": lm.name, "material": mat.name, "x": mat.x,
+        "name": lm.name, "region": lm.index, "material": mat.name, "composition": mat.x,
         "label": mat.label, "system": mat.system,
         "z_bottom": lm.z_bottom, "z_top": lm.z_top,
         "normal": format_indices(lm.frame.normal, "()"),
@@ -47,10 +47,13 @@ def layer_summary(lm: LayerModel) -> dict:
     }
 
 
-def layer_figures(res: Result) -> list[dict]:
-    """Per-region volume averages and extremes of the element stresses (MPa)."""
+def layer_figures(res: Result) -> dict:
+    """Per-region volume averages and extremes of the element stresses (MPa), keyed by name.
+
+    ``region`` is the region's id in the ``region`` cell array of ``fields.vtu``.
+    """
     fl = res.fields
-    out = []
+    out = {}
     for lm in res.layers:
         m = res.mesh.layer == lm.index
         if not np.any(m):
@@ -61,10 +64,10 @@ def layer_figures(res: Result) -> list[dict]:
         vm = von_mises(sig)
         k = int(np.argmax(vm))
         centres = res.mesh.mesh.p[:, res.mesh.mesh.t[:, m]].mean(axis=1).T
-        out.append({"index": lm.index, "name": lm.name, "label": lm.material.label,
-                    "volume_nm3": float(vol.sum()),
-                    "mean_stress": mean, "max_von_mises": float(vm[k]),
-                    "max_von_mises_at": centres[k]})
+        out[lm.name] = {"region": lm.index, "label": lm.material.label,
+                        "volume": float(vol.sum()),
+                        "mean_stress": mean, "max_von_mises": float(vm[k]),
+                        "max_von_mises_at": centres[k]}
     return out
 
 
@@ -83,15 +86,37 @@ def boundary_text(mesh) -> str:
     return "; ".join(parts + ["top and sidewalls free"])
 
 
+def mesh_summary(res: Result) -> dict:
+    """``summary.json`` ``mesh``: the solved system and the exported body, by name.
+
+    ``solved`` is what the solver saw (a half or quarter model, a 2-D section);
+    ``exported`` the whole body written to ``fields.vtu``. ``grid`` (cells along x, y,
+    z) only for the structured grid, where it means something.
+    """
+    m = res.mesh
+    exported = {"nodes": int(m.mesh.p.shape[1]), "elements": int(m.mesh.t.shape[1])}
+    solved = dict(res.solved) or {"unknowns": int(res.u.size), "nodes": exported["nodes"],
+                                  "elements": exported["elements"], "order": res.order}
+    out = {"solved": solved, "exported": exported}
+    if getattr(m, "kind", "") == "structured":
+        out["grid"] = [len(m.xs) - 1, len(m.ys) - 1, len(m.zs) - 1]
+    out["model_extent"] = {"x": [m.xs[0], m.xs[-1]], "y": [m.ys[0], m.ys[-1]],
+                           "z": [m.zs[0], m.zs[-1]]}
+    out["size"], out["edge_size"] = m.spacing.size, m.spacing.edge_size
+    return out
+
+
 def summary_of(res: Result) -> dict:
     """The content of ``summary.json``."""
     case = res.case
-    nn = res.mesh.nnodes
     return _mark_singular({
         "program": {"name": "mesastrain", "version": __version__},
         "title": case.title,
         "units": {"length": "nm", "stress": "MPa", "strain": "1", "stiffness": "GPa",
-                  "lattice": "Angstrom", "displacement": "nm", "volume": "nm^3"},
+                  "lattice": "Angstrom", "displacement": "nm", "volume": "nm^3",
+                  "timings": "s", "z_bottom": "nm", "z_top": "nm", "misfit": "1",
+                  "eigenstrain": "1", "max_von_mises": "MPa", "mean_stress": "MPa",
+                  "sidewall_angle": "deg", "pitch": "nm", "temperature": "K"},
         "conventions": {
             "frames": "sample: z = wafer normal (up), x = substrate x_axis; crystal: cube axes "
                       "(hexagonal: x = a1, z = c)",
@@ -103,14 +128,9 @@ def summary_of(res: Result) -> dict:
             "vtu_tensor_order": "XX, YY, ZZ, XY, YZ, XZ",
         },
         "case": case.to_dict(),
+        "case_as_written": dict(getattr(case, "written", ())),
         "layers": [layer_summary(lm) for lm in res.layers],
-        "mesh": {"nodes": nn, "elements": res.mesh.nelems, "unknowns": int(res.u.size),
-                 "order": res.order,
-                 "grid": [len(res.mesh.xs) - 1, len(res.mesh.ys) - 1, len(res.mesh.zs) - 1],
-                 "model_extent": {"x": [res.mesh.xs[0], res.mesh.xs[-1]],
-                                  "y": [res.mesh.ys[0], res.mesh.ys[-1]],
-                                  "z": [res.mesh.zs[0], res.mesh.zs[-1]]},
-                 "size": res.mesh.spacing.size, "edge_size": res.mesh.spacing.edge_size},
+        "mesh": mesh_summary(res),
         "boundary_conditions": boundary_text(res.mesh),
         "solver": res.solver.to_dict(),
         "timings": {k: round(v, 3) for k, v in res.timings.items()},
@@ -136,10 +156,10 @@ def _mark_singular(summary: dict) -> dict:
     whether it lies within two elements of a singular place; the flag follows it to
     ``layer_figures`` (``max_von_mises_singular``) for the terminal table and the report.
     """
-    peaks = {e["index"]: (e.get("peaks") or {}).get("von_mises") or {}
-             for e in (summary.get("readouts") or {}).get("layers", [])}
-    for lf in summary.get("layer_figures", []):
-        pk = peaks.get(lf["index"], {})
+    peaks = {name: (e.get("peaks") or {}).get("von_mises") or {}
+             for name, e in (summary.get("readouts") or {}).get("layers", {}).items()}
+    for name, lf in summary.get("layer_figures", {}).items():
+        pk = peaks.get(name, {})
         if pk and abs(pk.get("value", float("nan")) - lf["max_von_mises"]) <= (
                 1e-6 * max(1.0, abs(lf["max_von_mises"]))):
             lf["max_von_mises_singular"] = bool(pk.get("singular"))
@@ -158,7 +178,11 @@ def _probes_with_derived(res: Result) -> list:
 
 
 def vtu_data(res: Result) -> tuple[dict, dict]:
-    """Point and cell data written to ``fields.vtu``: ``layer`` and ``[output] fields``.
+    """Point and cell data written to ``fields.vtu``: ``region`` and ``[output] fields``.
+
+    ``region`` is the integer region id per element (0 the substrate, i the i-th layer);
+    the names belong to the ids through the file's field data (:func:`region_table`) and
+    ``summary.json`` ``layers`` (``name``, ``region``).
 
     The default set (displacement, nodal and element stress, nodal strain and
     von Mises, single precision) keeps the file near 80 bytes per node once compressed;
@@ -174,7 +198,7 @@ def vtu_data(res: Result) -> tuple[dict, dict]:
 
     layer = res.mesh.layer
     pd: dict = {}
-    cd: dict = {"layer": layer.astype(np.int32)}
+    cd: dict = {"region": layer.astype(np.int32)}
     if "displacement" in want:
         pd["displacement"] = f(fl.displacement)
     if "stress" in want:
@@ -203,6 +227,11 @@ def vtu_data(res: Result) -> tuple[dict, dict]:
             cd.update({k: f(v) if np.issubdtype(np.asarray(v).dtype, np.floating) else v
                        for k, v in d.cell_data.items()})
     return pd, cd
+
+
+def region_table(res: Result) -> dict:
+    """Field data of ``fields.vtu``: one integer per region, named ``region <name>``."""
+    return {f"region {lm.name}": np.array([lm.index], dtype=np.int32) for lm in res.layers}
 
 
 def _timed(res: Result, key: str, progress, what: str):
@@ -323,7 +352,8 @@ def write_result(res: Result, out, overwrite: bool = False, quick: bool = False,
         if o.vtu:
             with _timed(res, "write_fields", progress, "writing fields.vtu"):
                 pd, cd = vtu_data(res)
-                write_vtu(tmp / "fields.vtu", res.mesh.mesh, pd, cd)
+                write_vtu(tmp / "fields.vtu", res.mesh.mesh, pd, cd,
+                          field_data=region_table(res))
         files = [(n, w) for d in res.derived for n, w in d.files.items()]
         with _timed(res, "write_tables", progress, "writing tables"):
             for name, writer in files:

@@ -42,3 +42,18 @@ def gl_library() -> str | None:
 def no_gl_note(what: str) -> str:
     """One line: what was skipped and which system packages enable it."""
     return f"{what} skipped: no OpenGL library (EGL/GL) on this machine; install {GL_PACKAGES}"
+
+
+def quiet_vtk() -> None:
+    """Keep VTK's own messages (e.g. "bad X server connection", with ANSI colours) off stderr.
+
+    VTK prints warnings and errors through its output window and logger; a headless run
+    has nothing to gain from them (a picture that cannot be drawn is reported in one
+    line by the caller). Call after importing pyvista; harmless when VTK is missing.
+    """
+    try:
+        from vtkmodules.vtkCommonCore import vtkLogger, vtkObject
+    except ImportError:
+        return
+    vtkObject.GlobalWarningDisplayOff()
+    vtkLogger.SetStderrVerbosity(vtkLogger.VERBOSITY_OFF)

@@ -102,7 +102,7 @@ class FieldSource:
         for q in ("stress", "strain"):
             if q not in cells and q in points:      # nodal only: average to the elements
                 cells[q] = points[q][t[:4 if t.shape[0] < 8 else 8]].mean(axis=0)
-        region = cells.pop("layer").astype(int)
+        region = cells.pop("region" if "region" in cells else "layer").astype(int)
         return cls(np.asarray(m.points, dtype=float).T, t, region, np.ones(t.shape[1]),
                    points, cells)
 

@@ -7,6 +7,8 @@ import html
 import math
 from pathlib import Path
 
+from mesastrain.units import fmt
+
 __all__ = ["esc", "image", "mpa", "num", "table"]
 
 
@@ -22,7 +24,7 @@ def num(v, digits: int = 4, unit: str = "") -> str:
     if isinstance(v, bool):
         return "yes" if v else "no"
     if isinstance(v, (int, float)):
-        s = f"{v:.{digits}g}"
+        s = fmt(v, f".{digits}g")
         if "e" in s:
             m, e = s.split("e")
             s = f"{m}&times;10<sup>{int(e)}</sup>"

@@ -68,14 +68,18 @@ def render_section(vtu: Path, png: Path, quantity: str = "stress", component: st
     """
     import pyvista as pv
 
+    from mesastrain.io.gl import quiet_vtk
+
+    quiet_vtk()
+
     pv.OFF_SCREEN = True
-    mesh = pv.read(str(vtu))
+    mesh = load(vtu)
     values, comp = _component(mesh, quantity, component, "cell")
     q = describe(f"{quantity}_{comp.lower()}" if comp and len(comp) == 2 else quantity)
     values = values * (q.scale if not comp else 1.0)
     label, unit = q.words, q.unit
     mesh.cell_data["_shown"] = values
-    layer = np.asarray(mesh.cell_data["layer"])
+    layer = np.asarray(mesh.cell_data["region"])
     grown = mesh.extract_cells(np.flatnonzero(layer > 0)) if np.any(layer > 0) else mesh
     gb = np.array(grown.bounds).reshape(3, 2)
     top = gb[2, 1]
@@ -100,7 +104,7 @@ def render_section(vtu: Path, png: Path, quantity: str = "stress", component: st
                                      "height": 0.6, "width": 0.05, "title_font_size": 16,
                                      "label_font_size": 14})
     for k in np.unique(layer):
-        part = section.threshold((k - 0.5, k + 0.5), scalars="layer")
+        part = section.threshold((k - 0.5, k + 0.5), scalars="region")
         if part.n_cells:
             _ = pl.add_mesh(part.extract_feature_edges(boundary_edges=True, feature_edges=False,
                                                        manifold_edges=False, non_manifold_edges=False),
@@ -132,8 +136,14 @@ def load(vtu) -> pyvista.UnstructuredGrid:  # noqa: F821
     """Read a result's ``fields.vtu`` (or pass a pyvista mesh through)."""
     import pyvista as pv
 
+    from mesastrain.io.gl import quiet_vtk
+
+    quiet_vtk()
+
     if isinstance(vtu, (str, Path)):
-        return pv.read(str(vtu))
+        vtu = pv.read(str(vtu))
+    if "region" not in vtu.cell_data and "layer" in vtu.cell_data:   # results of earlier versions
+        vtu.cell_data["region"] = vtu.cell_data["layer"]
     return vtu
 
 
@@ -193,7 +203,7 @@ def map_values(mesh, name: str):
 
 def _layout(mesh):
     """Top of the stack, grown-layer extent, etch floor and layer interfaces (nm)."""
-    layer = np.asarray(mesh.cell_data["layer"])
+    layer = np.asarray(mesh.cell_data["region"])
     grown = mesh.extract_cells(np.flatnonzero(layer > 0)) if np.any(layer > 0) else mesh
     gb = np.array(grown.bounds).reshape(3, 2)
     mb = np.array(mesh.bounds).reshape(3, 2)
@@ -266,6 +276,10 @@ def render_map(vtu, png: Path, name: str = "stress_xx", view: str = "section",
     """
     import pyvista as pv
 
+    from mesastrain.io.gl import quiet_vtk
+
+    quiet_vtk()
+
     pv.OFF_SCREEN = True
     mesh = load(vtu).copy(deep=False)
     values, where, label, signed = map_values(mesh, name)
@@ -274,7 +288,7 @@ def render_map(vtu, png: Path, name: str = "stress_xx", view: str = "section",
         mesh.cell_data["_shown"] = values
     else:
         mesh.point_data["_shown"] = values
-    layer = np.asarray(mesh.cell_data["layer"])
+    layer = np.asarray(mesh.cell_data["region"])
     top, gb = lay["top"], lay["grown"]
     half_w = max(abs(gb[0, 0]), abs(gb[0, 1]))
     half_l = max(abs(gb[1, 0]), abs(gb[1, 1]))
@@ -318,8 +332,8 @@ def render_map(vtu, png: Path, name: str = "stress_xx", view: str = "section",
                                      "vertical": True, "position_x": 0.84, "position_y": 0.12,
                                      "height": 0.7, "width": 0.05, "title_font_size": 18,
                                      "label_font_size": 15, "n_labels": 5})
-    for k in np.unique(np.asarray(plane.cell_data["layer"])):
-        part = plane.threshold((k - 0.5, k + 0.5), scalars="layer")
+    for k in np.unique(np.asarray(plane.cell_data["region"])):
+        part = plane.threshold((k - 0.5, k + 0.5), scalars="region")
         if part.n_cells:
             edges = part.extract_feature_edges(boundary_edges=True, feature_edges=False,
                                                manifold_edges=False, non_manifold_edges=False)
@@ -441,6 +455,10 @@ def render_warped(vtu, png: Path, name: str = "von_mises", scale: float | None =
     """
     import pyvista as pv
 
+    from mesastrain.io.gl import quiet_vtk
+
+    quiet_vtk()
+
     pv.OFF_SCREEN = True
     mesh = load(vtu).copy(deep=False)
     values, where, label, signed = map_values(mesh, name)
@@ -458,7 +476,7 @@ def render_warped(vtu, png: Path, name: str = "von_mises", scale: float | None =
     half = mesh.clip_box(box, invert=False).warp_by_vector("_u", factor=scale)
     pl = pv.Plotter(off_screen=True, window_size=list(window_size))
     pl.set_background("white")
-    clim = _limits(values, np.asarray(mesh.cell_data["layer"]), signed, 99.0)
+    clim = _limits(values, np.asarray(mesh.cell_data["region"]), signed, 99.0)
     _three_d(pl, half, "_shown", clim, "RdBu_r" if signed else "viridis", label, where)
     pl.add_text(f"{label} on the body cut open at y = 0 (y <= 0 shown, substrate to three "
                 f"stack heights), displacement magnified {scale:.3g} x"
@@ -477,19 +495,26 @@ def render_layer(vtu, png: Path, layer: int, name: str = "stress_xx",
     """One region (``layer`` id: 0 substrate, 1.. grown layers) in 3-D, offscreen."""
     import pyvista as pv
 
+    from mesastrain.io.gl import quiet_vtk
+
+    quiet_vtk()
+
     pv.OFF_SCREEN = True
     mesh = load(vtu).copy(deep=False)
     values, where, label, signed = map_values(mesh, name)
     (mesh.cell_data if where == "cell" else mesh.point_data)["_shown"] = values
-    part = mesh.threshold((layer - 0.5, layer + 0.5), scalars="layer")
+    part = mesh.threshold((layer - 0.5, layer + 0.5), scalars="region")
     if part.n_cells == 0:
-        raise ValueError(f"no cells with layer = {layer}")
+        raise ValueError(f"no cells with region = {layer}")
     pl = pv.Plotter(off_screen=True, window_size=list(window_size))
     pl.set_background("white")
     sel = np.asarray(part["_shown"])
     clim = _limits(sel, np.ones(len(sel)), signed, 99.0)
     _three_d(pl, part, "_shown", clim, "RdBu_r" if signed else "viridis", label, where)
-    pl.add_text(f"{label} in region {layer} only; colour limits at the 99th percentile",
+    names = {int(np.asarray(mesh.field_data[k]).ravel()[0]): k.removeprefix("region ")
+             for k in mesh.field_data.keys() if k.startswith("region ")}
+    pl.add_text(f"{label} in {names.get(layer, f'region {layer}')} only; colour limits at "
+                f"the 99th percentile",
                 font_size=9, color="black", position="upper_left")
     pl.show_bounds(xtitle="x (nm)", ytitle="y (nm)", ztitle="z (nm)", color="black",
                    font_size=10, fmt="%.4g")

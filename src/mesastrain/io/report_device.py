@@ -13,6 +13,7 @@ from pathlib import Path
 
 from mesastrain.io.markup import esc, image, num, table
 from mesastrain.physics.quantities import describe, parameter_words, pdp_words, valley_words
+from mesastrain.units import fmt
 
 __all__ = ["parameter_rows", "report_text", "section_device"]
 
@@ -20,11 +21,6 @@ __all__ = ["parameter_rows", "report_text", "section_device"]
 FLAGS = {"C": "confirmed in a public source",
          "M": "from memory of the cited publication: check the decimals against the original",
          "D": "derived by computation from other entries or published formulas"}
-
-
-def _region(entry: dict) -> str:
-    """A region in words: its name (its material when the run predates names)."""
-    return str(entry.get("name") or entry.get("label") or entry.get("index"))
 
 
 def _limit(summary: dict) -> float:
@@ -59,15 +55,16 @@ def report_text(summary: dict, folder) -> str:
     lines = ["Device readouts (band edges eV, Raman shift cm⁻¹, piezoresistance % = "
              "100 Δρ/ρ; element averages: mean [min, max] per region; 'beyond' = outside "
              "the linear range of the piezoresistance model)"]
-    figs = {f["index"]: f for f in dev.get("layer_figures", [])}
-    for reg in dev["regions"]:
-        f = figs.get(reg["index"], {})
-        head = f"  {_region(reg)} ({reg['label']}):"
+    figs = dev.get("layer_figures", {})
+    for name, reg in dev["regions"].items():
+        f = figs.get(name, {})
+        head = f"  {name} ({reg['label']}):"
         parts = []
         if "raman_shift" in f:
             r, rm = f["raman_shift"], reg["raman"]
             factor = rm.get("stress_per_shift_biaxial")
-            parts.append(f"Raman {r['mean']:+.2f} [{r['min']:+.2f}, {r['max']:+.2f}] cm⁻¹ "
+            parts.append(f"Raman {fmt(r['mean'], '+.2f')} [{fmt(r['min'], '+.2f')}, "
+                         f"{fmt(r['max'], '+.2f')}] cm⁻¹ "
                          f"(phonon deformation potentials: {pdp_words(rm['pdp_set'])}"
                          + (f"; {factor:.0f} MPa per cm⁻¹ if equi-biaxial)" if factor else ")"))
         if "band_gap_shift" in f:
@@ -135,11 +132,11 @@ def _stat(f: dict, key: str, scale: float = 1.0, digits: str = ".3g",
 
     def one(k):
         nonlocal beyond
-        v = scale * r[k] + 0
+        v = scale * r[k]
         if limit is not None and abs(v) > limit:
             beyond = True
             return f"&lt;&minus;{limit:g}" if v < 0 else f"&gt;+{limit:g}"
-        return esc(f"{v:{digits}}")
+        return esc(fmt(v, digits))
     text = f"{one('mean')} [{one('min')}, {one('max')}]"
     return f'<span class="oor">{text}&nbsp;&dagger;</span>' if beyond else text
 
@@ -214,15 +211,15 @@ def section_device(summary: dict, folder) -> str | None:
         return None
     folder = Path(folder)
     lim = _limit(summary)
-    figs = {f["index"]: f for f in dev.get("layer_figures", [])}
+    figs = dev.get("layer_figures", {})
     rows = []
-    for reg in dev["regions"]:
-        f = figs.get(reg["index"], {})
+    for name, reg in dev["regions"].items():
+        f = figs.get(name, {})
         rm = reg.get("raman") or {}
         split = "-"
         if "band_shift_delta_z" in f and "band_shift_delta_x" in f:
             split = _mev(f["band_shift_delta_z"]["mean"] - f["band_shift_delta_x"]["mean"])
-        rows.append([esc(_region(reg)), esc(reg["label"]),
+        rows.append([esc(name), esc(reg["label"]),
                      _stat(f, "raman_shift", 1.0, "+.2f"),
                      esc(pdp_words(rm["pdp_set"])) if rm.get("pdp_set") else "-",
                      num(rm.get("stress_per_shift_uniaxial_x"), 4),
@@ -244,15 +241,15 @@ def section_device(summary: dict, folder) -> str | None:
              'band, strained minus unstrained.</p>']
     chan_rows = []
     for ch in dev.get("channels", []):
-        for reg in dev["regions"]:
+        for name, reg in dev["regions"].items():
             c = (reg.get("piezo") or {}).get(ch["name"])
             if not c:
                 continue
-            f = figs.get(reg["index"], {})
+            f = figs.get(name, {})
             d = ch["direction_sample"]
             chan_rows.append([esc(ch["name"]) + (" (default)" if ch.get("default") else ""),
                               esc(f"{ch['carrier']}-type"), esc(f"{d[0]:.3g}, {d[1]:.3g}"),
-                              esc(f"{_region(reg)} ({reg['label']})"),
+                              esc(f"{name} ({reg['label']})"),
                               esc(c["direction_crystal"]), num(c["pi_l"], 4), num(c["pi_t"], 4),
                               _stat(f, f"piezo_{ch['field']}_long", 1.0, "+.1f", lim),
                               _stat(f, f"piezo_{ch['field']}_trans", 1.0, "+.1f", lim)])

@@ -12,6 +12,7 @@ from pathlib import Path
 
 from mesastrain.io.markup import esc, image, mpa, num, table
 from mesastrain.physics.quantities import describe
+from mesastrain.units import fmt
 
 log = logging.getLogger(__name__)
 
@@ -67,7 +68,7 @@ def draw_stack(summary: dict, path: Path) -> Path:
     from matplotlib.patches import Rectangle
 
     case = summary["case"]
-    layers = [lay for lay in summary["layers"] if lay["index"] > 0 and not lay.get("liner")]
+    layers = [lay for lay in summary["layers"] if lay["region"] > 0 and not lay.get("liner")]
     liners = [lay for lay in summary["layers"] if lay.get("liner")]
     top = max(lay["z_top"] for lay in layers)
     pat = case.get("pattern", {"shape": "none"})
@@ -87,9 +88,9 @@ def draw_stack(summary: dict, path: Path) -> Path:
                                edgecolor="k", lw=0.8))
     sub = summary["layers"][0]
     ax.annotate(f"{sub['name']}: {sub['label']} {sub['normal']}, x = {sub['x_axis']}, "
-                f"{case['substrate']['thickness'] / 1e3:g} µm (cut)",
-                (xo + 0.05, 0.5 * (min(floor, 0.0) - sub_show)), fontsize=9, va="center",
-                annotation_clip=False)
+                f"{_written(summary, 'substrate.thickness', case['substrate']['thickness'])} "
+                f"(cut)", (xo + 0.05, 0.5 * (min(floor, 0.0) - sub_show)), fontsize=9,
+                va="center", annotation_clip=False)
     for i, lay in enumerate(layers):
         zb, zt = lay["z_bottom"], lay["z_top"]
         colour = f"C{i}"
@@ -156,6 +157,21 @@ def draw_liners(ax, liners: list, tables: list, top: float, floor: float, xf: fl
         t, f, s = t2, f2, s2
 
 
+def _written(summary: dict, path: str, value) -> str:
+    """An input as its author wrote it (``summary.json`` ``case_as_written``), else in nm.
+
+    Lengths without a written form are shown in nm, temperatures (strings in K) as given.
+    """
+    text = (summary.get("case_as_written") or {}).get(path)
+    if text:
+        return text
+    if isinstance(value, (int, float)):
+        return f"{fmt(value, 'g')} nm"
+    if isinstance(value, list):
+        return ", ".join(f"{fmt(v, 'g')} nm" for v in value)
+    return "-" if value is None else str(value)
+
+
 # --------------------------------------------------------------------------
 # sections
 # --------------------------------------------------------------------------
@@ -163,12 +179,15 @@ def section_inputs(summary: dict, folder: Path) -> str:
     """Inputs: substrate, layers, pattern, thermal history, mesh and solver."""
     case = summary["case"]
     sub = summary["layers"][0]
-    rows = [[esc(sub["name"]), esc(sub["label"]), num(case["substrate"]["thickness"], 6, "nm"),
+    rows = [[esc(sub["name"]), esc(sub["label"]),
+             esc(_written(summary, "substrate.thickness", case["substrate"]["thickness"])),
              esc(sub["normal"]), esc(sub["x_axis"]), "-", "-", "-"]]
-    for lay in summary["layers"][1:]:
+    for i, lay in enumerate(summary["layers"][1:]):
         th = lay.get("thermal_eigenstrain")
-        rows.append([esc(lay["name"]), esc(lay["label"]), num(lay["z_top"] - lay["z_bottom"], 6,
-                                                              "nm"),
+        rows.append([esc(lay["name"]), esc(lay["label"]),
+                     esc(_written(summary, f"liner[{lay['liner'] - 1}].thickness"
+                                  if lay.get("liner") else f"layer[{i}].thickness",
+                                  lay["z_top"] - lay["z_bottom"])),
                      esc(lay["normal"]), esc(lay["x_axis"]), num(lay["relaxed"], 3),
                      num(100 * lay["misfit"], 4, "%"),
                      num(-100 * th[0][0], 4, "%") if th else "-"])
@@ -180,19 +199,27 @@ def section_inputs(summary: dict, folder: Path) -> str:
     for k in ("width", "length", "diameter", "etch_depth", "margin", "corner_radius",
               "sidewall_angle", "pitch"):
         if pat.get(k) is not None:
-            bits.append(f"{esc(k.replace('_', ' '))} {esc(pat[k])}"
-                        + ("" if k in ("sidewall_angle", "pitch") else " nm"))
+            shown = (f"{pat[k]:g}°" if k == "sidewall_angle"
+                     else _written(summary, f"pattern.{k}", pat[k]))
+            bits.append(f"{esc(k.replace('_', ' '))} {esc(shown)}")
     out.append(f"<p><b>Pattern:</b> {', '.join(bits)}.</p>")
     th = case.get("thermal")
     if th:
-        out.append(f"<p><b>Thermal history:</b> grown at {esc(th['growth_temperature'])}, "
-                   f"used at {esc(th['final_temperature'])}; the thermal eigenstrain "
+        grown = _written(summary, "thermal.growth_temperature", th.get("growth_temperature"))
+        used = _written(summary, "thermal.final_temperature", th["final_temperature"])
+        out.append(f"<p><b>Thermal history:</b> grown at {esc(grown)}, "
+                   f"used at {esc(used)}; the thermal eigenstrain "
                    f"(integrated expansion mismatch) is added to the lattice mismatch.</p>")
     mesh, solver = summary.get("mesh", {}), summary.get("solver", {})
     sym = summary.get("model") or {}
-    out.append(f"<p><b>Model:</b> elements of order {esc(mesh.get('order'))}, "
-               f"{num(solver.get('unknowns') or mesh.get('unknowns'), 8)} unknowns solved"
-               + (f", {esc(sym.get('model'))} model" if sym.get("model") else "")
+    solved, exported = mesh.get("solved", {}), mesh.get("exported", {})
+    out.append(f"<p><b>Model:</b> {esc(solved.get('element_type'))}, order "
+               f"{esc(solved.get('order'))}; solved system: "
+               f"{num(solved.get('unknowns'), 8)} unknowns on {num(solved.get('nodes'), 8)} "
+               f"nodes" + (f" ({esc(sym.get('symmetry'))} model)"
+                           if sym.get("symmetry") not in (None, "full") else "")
+               + f"; exported body: {num(exported.get('nodes'), 8)} nodes, "
+               f"{num(exported.get('elements'), 8)} elements"
                + f"; solver {esc(solver.get('method'))}, relative residual "
                f"{num(solver.get('relative_residual'), 2)}; total time "
                f"{num(sum(summary.get('timings', {}).values()), 3, 's')}.</p>")
@@ -219,8 +246,8 @@ def section_headline(summary: dict, folder: Path) -> str | None:
     if not ro:
         return None
     rows = []
-    for e in ro["layers"]:
-        if e["index"] == 0:
+    for name, e in ro["layers"].items():
+        if e["region"] == 0:
             continue
         rl = e.get("relaxation") or {}
 
@@ -244,7 +271,7 @@ def section_headline(summary: dict, folder: Path) -> str | None:
             flag = ' <span class="sing">exceeded</span>'
         vm = (e.get("peaks") or {}).get("von_mises", {})
         rows.append([
-            f"{esc(e['name'])}: {esc(e['label'])}",
+            f"{esc(name)}: {esc(e['label'])}",
             _stress_pair(e.get("blanket_stress")),
             _stress_pair(e.get("centre_stress")),
             num((e.get("centre_over_blanket") or {}).get("xx"), 3),
@@ -351,9 +378,9 @@ def section_bow(summary: dict, folder: Path) -> str | None:
                          num(e["bow_height"], 4)])
     return ("<h2>Wafer bow of the blanket stack</h2>"
             + table(["estimate", "curvature (1/m)", "radius (m)",
-                     f"bow over {num(wb['wafer_diameter_mm'], 4)} mm (&micro;m)"], rows)
-            + f'<p class="note">{esc(wb["notes"])}. Substrate {num(wb["substrate_thickness_nm"] / 1e3, 5)} '
-              f'&micro;m, films {num(wb["film_thickness_nm"], 4)} nm in total.</p>')
+                     f"bow over {num(wb['wafer_diameter'], 4)} mm (&micro;m)"], rows)
+            + f'<p class="note">{esc(wb["notes"])}. Substrate {num(wb["substrate_thickness"] / 1e3, 5)} '
+              f'&micro;m, films {num(wb["film_thickness"], 4)} nm in total.</p>')
 
 
 def section_probes(summary: dict, folder: Path) -> str | None:

@@ -52,7 +52,10 @@ def pattern_pitch(case: Case) -> tuple:
 
 def auto_mirrors(case: Case) -> tuple:
     """Mirror axes chosen automatically (:func:`mesastrain.model.symmetry.decide`)."""
-    return decide(case, build_layers(case)).mirrors
+    # misfit dislocations need not share the mirror planes: the run then solves the whole
+    # feature (run.pipeline.run_case), and so must the estimate
+    return decide(case, build_layers(case),
+                  extra_eigenstrain=bool(getattr(case, "dislocations", ()))).mirrors
 
 
 def film_reaches_side(case: Case) -> bool:

@@ -305,9 +305,8 @@ def handles(pattern) -> bool:
     return pattern.shape == "stripe"
 
 
-def estimate_section(case) -> Estimate:
-    """Exact node, element and unknown counts of a stripe's section (no meshing)."""
-    geom, spacing, xs, zs = section_coordinates(case, whole=True)
+def _section_counts(geom, xs, zs, order: int) -> tuple[int, int, int]:
+    """Vertices, elements and scalar dofs of the section on grid lines ``xs``, ``zs``."""
     keep = _keep(geom, xs, zs)
     nx, nz = keep.shape
     k2 = np.zeros((2 * nx + 1, 2 * nz + 1), dtype=bool)
@@ -315,8 +314,23 @@ def estimate_section(case) -> Estimate:
         for dz in (0, 1, 2):
             k2[dx:dx + 2 * nx:2, dz:dz + 2 * nz:2] |= keep
     vertices = int(k2[::2, ::2].sum())
+    return vertices, int(keep.sum()), vertices if order == 1 else int(k2.sum())
+
+
+def estimate_section(case) -> Estimate:
+    """Exact node, element and unknown counts of a stripe's section (no meshing).
+
+    ``unknowns``, memory and time are those of the whole section; ``solved_*`` the part
+    that is solved (x >= 0 when the mirror x = 0 is used); ``nodes`` the exported slab
+    (one layer of hexahedra: twice the section's vertices).
+    """
     order = case.mesh.order
-    scalar = vertices if order == 1 else int(k2.sum())
+    geom, spacing, xs, zs = section_coordinates(case, whole=True)
+    vertices, elements, scalar = _section_counts(geom, xs, zs, order)
     nloc = 4 if order == 1 else 9
-    return estimate_from_counts(case, vertices, int(keep.sum()), scalar, nloc,
-                                18 if order == 1 else 45)
+    est = estimate_from_counts(case, vertices, elements, scalar, nloc,
+                               18 if order == 1 else 45, shape="quadrilaterals", section=True)
+    _, _, half, _ = section_coordinates(case)
+    sv, se, ss = _section_counts(geom, half, zs, order)
+    return replace(est, nodes=2 * vertices, solved_nodes=sv, solved_elements=se,
+                   solved_unknowns=3 * ss, symmetry="half" if 0 in geom.mirrors else "full")

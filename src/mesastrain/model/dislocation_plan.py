@@ -1,6 +1,6 @@
 """Misfit dislocations of a case planned into the finite-element model.
 
-Each ``[[dislocations]]`` entry of a case becomes a :class:`LineFamily`: a
+Each ``[[dislocation]]`` entry of a case becomes a :class:`LineFamily`: a
 set of straight lines in one interface, each put into the model as a
 :class:`mesastrain.model.volterra.VolterraLine` (an eigenstrain sheet).
 :func:`dislocation_eigenstrain` is the per-element eigenstrain the pipeline
@@ -58,13 +58,13 @@ __all__ = [
 # --------------------------------------------------------------------------
 @dataclass(frozen=True, eq=False)
 class LineFamily:
-    """One ``[[dislocations]]`` entry of a case, resolved in the model.
+    """One ``[[dislocation]]`` entry of a case, resolved in the model.
 
     Attributes
     ----------
     name : str
     key : str
-        Case-file key path, e.g. ``"dislocations[0]"``.
+        Case-file key path, e.g. ``"dislocation[0]"``.
     region : int
         The region (layer index, 1 = first grown layer) just above the
         interface that holds the lines.
@@ -160,7 +160,7 @@ class LineFamily:
 
 
 def case_families(case) -> tuple:
-    """The case's ``[[dislocations]]`` entries (empty tuple without any)."""
+    """The case's ``[[dislocation]]`` entries (empty tuple without any)."""
     return tuple(getattr(case, "dislocations", ()) or ())
 
 
@@ -196,7 +196,7 @@ def _periodic_along(boundary, e: np.ndarray):
 
 
 def resolve_families(case, layers, group, lo, hi, boundary=None) -> list[LineFamily]:
-    """Turn the case's ``[[dislocations]]`` entries into lines in a model.
+    """Turn the case's ``[[dislocation]]`` entries into lines in a model.
 
     Parameters
     ----------
@@ -224,7 +224,7 @@ def resolve_families(case, layers, group, lo, hi, boundary=None) -> list[LineFam
     """
     out = []
     for i, ds in enumerate(case_families(case)):
-        key = f"dislocations[{i}]"
+        key = f"dislocation[{i}]"
         region = ds.interface + 1
         if region >= len(layers):
             raise CaseError(f"{key}.interface", f"{ds.interface} is not an interface under a "
@@ -261,10 +261,10 @@ def resolve_families(case, layers, group, lo, hi, boundary=None) -> list[LineFam
         spacing = ds.spacing
         if ds.relaxation is not None:
             if misfit == 0.0:
-                raise CaseError(f"{key}.relaxation", f"layer[{ds.interface}] has no mismatch "
+                raise CaseError(f"{key}.relaxed", f"layer[{ds.interface}] has no mismatch "
                                                      "to relax; give spacing or positions")
             if abs(b_e) < 1e-9 * np.linalg.norm(b):
-                raise CaseError(f"{key}.relaxation", "the Burgers vector has no edge component "
+                raise CaseError(f"{key}.relaxed", "the Burgers vector has no edge component "
                                                      "normal to the line in the interface, so "
                                                      "the lines relax nothing; give spacing or "
                                                      "positions")
@@ -304,7 +304,7 @@ def resolve_families(case, layers, group, lo, hi, boundary=None) -> list[LineFam
                 lines.append(VolterraLine(template.shifted((p + s) * e), half_plane=(0.0, 0.0, 1.0),
                                      width=w, label=f"{ds.name} at {p:.6g} nm"))
         if not kept:
-            which = "relaxation" if ds.relaxation is not None else "spacing"
+            which = "relaxed" if ds.relaxation is not None else "spacing"
             raise CaseError(f"{key}.{which}", f"a spacing of {spacing:.6g} nm places no line "
                                               f"inside the "
                                               f"interface (from {lo_e:.6g} to {hi_e:.6g} nm "
@@ -364,7 +364,7 @@ def families_of(case, layers, sm):
 
 
 def dislocation_eigenstrain(case, layers, sm):
-    """The eigenstrain sheets of every ``[[dislocations]]`` line of a case in a model.
+    """The eigenstrain sheets of every ``[[dislocation]]`` line of a case in a model.
 
     :func:`mesastrain.run.pipeline.run_case` adds it to the regions' own
     eigenstrain. Returns None for a case without dislocations. A mirrored
@@ -404,7 +404,7 @@ def _planned_spacings(case) -> list:
     layers = build_layers(case)
     out = []
     for i, ds in enumerate(case_families(case)):
-        key = f"dislocations[{i}]"
+        key = f"dislocation[{i}]"
         lm = layers[ds.interface + 1]
         d = dislocation_from_crystal(ds.line, ds.burgers, lm.material.a, lm.frame,
                                      burgers_fraction=ds.burgers_fraction,
@@ -439,7 +439,7 @@ def blanket_cell(case, lateral_size: float) -> tuple:
     Parameters
     ----------
     case : Case
-        A blanket case (pattern "none") with ``[[dislocations]]``.
+        A blanket case (pattern "none") with ``[[dislocation]]``.
     lateral_size : float
         Lateral element size the mesher would use otherwise, nm.
 

@@ -34,6 +34,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from mesastrain.case.names import SUBSTRATE, region_names
 from mesastrain.case.types import Case
 from mesastrain.errors import CaseError, MaterialError
 from mesastrain.physics.crystal import INDEX_SYSTEMS, Frame, miscut_rotation, sample_frame
@@ -80,8 +81,9 @@ class LayerModel:
     liner : int
         0 for the substrate and the grown layers; k for the k-th ``[[liner]]``
         (then ``z_bottom``, ``z_top`` are the liner's extent over the feature top).
-    title : str or None
-        The liner's name (``[[liner]] name``).
+    name : str
+        The region's name in every output: ``"substrate"``, the layer's or the liner's
+        ``name`` (:mod:`mesastrain.case.names`). The one source of region names downstream.
     """
 
     index: int
@@ -100,13 +102,12 @@ class LayerModel:
     builtin_stress: float | None = None
     deposition_temperature: float | None = None
     liner: int = 0
-    title: str | None = None
+    name: str = ""
 
-    @property
-    def name(self) -> str:
-        if self.liner:
-            return self.title or f"liner {self.liner}"
-        return "substrate" if self.index == 0 else f"layer {self.index}"
+    def __post_init__(self):
+        if not self.name:       # built by hand (tests, the API): the default names
+            object.__setattr__(self, "name", SUBSTRATE if self.index == 0 else
+                               f"liner {self.liner}" if self.liner else f"layer {self.index}")
 
 
 def stack_of(layers: list) -> list:
@@ -173,6 +174,9 @@ def build_layers(case: Case, material=None) -> list[LayerModel]:
                       np.zeros((3, 3)))]
     below_lat, below_sys = (smat.a, smat.c), smat.system
     q_below = np.zeros((3, 3))    # thermal lattice shift of the layer below (sample frame)
+    taken: dict = {}
+    names = region_names("layer", [(lay.name, lay.material) for lay in case.layers], taken)
+    liner_names = region_names("liner", [(lin.name, lin.material) for lin in case.liners], taken)
     z = 0.0
     for i, lay in enumerate(case.layers, start=1):
         key = f"layer[{i - 1}]"
@@ -212,11 +216,13 @@ def build_layers(case: Case, material=None) -> list[LayerModel]:
         out.append(LayerModel(i, mat, frame, z, z + lay.thickness, r, (a_eff, c_eff),
                               frame.to_crystal(eig_s), misfit, stiff, eig_s, thermal_c,
                               epitaxial=epitaxial, builtin_stress=lay.stress,
-                              deposition_temperature=_deposition_temperature(case, lay)))
+                              deposition_temperature=_deposition_temperature(case, lay),
+                              name=names[i - 1]))
         z += lay.thickness
         below_lat, below_sys = (a_eff, c_eff), mat.system
     for k, lin in enumerate(case.liners, start=1):
-        out.append(_liner_model(case, lin, k, len(out), z, smat, sframe, tilt, resolve))
+        out.append(_liner_model(case, lin, k, len(out), z, smat, sframe, tilt, resolve,
+                                liner_names[k - 1]))
         z += lin.thickness
     return out
 
@@ -238,7 +244,7 @@ def liner_eigenstrain(stiffness_sample: np.ndarray, stress: float) -> np.ndarray
 
 
 def _liner_model(case: Case, lin, k: int, index: int, z: float, smat: Material,
-                 sframe: Frame, tilt, resolve=None) -> LayerModel:
+                 sframe: Frame, tilt, resolve=None, name: str = "") -> LayerModel:
     """The region of the k-th liner: a deposited film (no lattice mismatch)."""
     key = f"liner[{k - 1}]"
     sub = case.substrate
@@ -262,7 +268,7 @@ def _liner_model(case: Case, lin, k: int, index: int, z: float, smat: Material,
                       frame.to_crystal(eig_s), 0.0, stiff, eig_s, thermal_c, epitaxial=False,
                       builtin_stress=lin.stress,
                       deposition_temperature=_deposition_temperature(case, lin), liner=k,
-                      title=lin.name)
+                      name=name)
 
 
 def _deposition_temperature(case: Case, lay) -> float | None:

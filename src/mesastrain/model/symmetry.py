@@ -60,7 +60,7 @@ class Symmetry:
         return {0: "full", 1: "half", 2: "quarter"}[len(self.mirrors)]
 
     def to_dict(self) -> dict:
-        return {"model": self.name,
+        return {"symmetry": self.name,
                 "mirror_planes": [f"{AXIS_NAMES[a]} = 0" for a in self.mirrors],
                 "requested": self.requested, "reason": self.reason}
 

@@ -42,6 +42,7 @@ from mesastrain.mesh.planning import refinement_of
 from mesastrain.run.pipeline import run_case
 from mesastrain.run.resources import available_memory_gb, estimate
 from mesastrain.run.result import Derived
+from mesastrain.units import fmt
 
 #: Element sizes are divided by this per refinement level.
 DEFAULT_RATIO = 1.5
@@ -158,15 +159,21 @@ def study(case, levels: int = DEFAULT_LEVELS, ratio: float = DEFAULT_RATIO, prog
                          f"needs about {est.memory_gb:.1f} GB, {limit:.1f} GB allowed"})
             say(f"convergence: level {k} skipped ({est.memory_gb:.1f} GB needed)")
             break
-        say(f"convergence: level {k}, element sizes / {ratio ** k:.3g}")
+        say(f"convergence: level {k + 1} of {levels} running: element sizes / "
+            f"{ratio ** k:.3g}, {est.solved_unknowns or est.unknowns:,} unknowns, about "
+            f"{est.seconds:.0f} s")
         t = time.perf_counter()
-        res = run_case(c, progress=progress if k == 0 else None, max_memory_gb=max_memory_gb,
+        inner = progress if k == 0 or progress is None else (
+            lambda msg, k=k: progress(f"  level {k + 1}: {msg}"))
+        res = run_case(c, progress=inner, max_memory_gb=max_memory_gb,
                        providers=providers if k == 0 else ())
         if first is None:
             first = res
-        info.append({"level": k, "refine": ratio ** k, "unknowns": int(res.u.size),
-                     "elements": int(res.mesh.nelems),
+        solved = res.solved or {"unknowns": int(res.u.size), "elements": int(res.mesh.nelems)}
+        info.append({"level": k, "refine": ratio ** k, "unknowns": solved["unknowns"],
+                     "elements": solved["elements"],
                      "seconds": round(time.perf_counter() - t, 2)})
+        say(f"convergence: level {k + 1} of {levels} done in {info[-1]['seconds']:.1f} s")
         results.append(headline_figures(res))
         del res
     if first is None:
@@ -204,10 +211,10 @@ def write_csv(path, report: dict) -> None:
                    + [f"change{k}" for k in range(1, n)]
                    + ["observed_order", "error_estimate", "verdict"])
         for f in report["figures"]:
-            order = "" if f["observed_order"] is None else f"{f['observed_order']:.3g}"
-            err = "" if f["error_estimate"] is None else f"{f['error_estimate']:.4g}"
-            w.writerow([f["name"], f["unit"]] + [f"{v:.6g}" for v in f["values"]]
-                       + [f"{c:.4g}" for c in f["changes"]] + [order, err, f["verdict"]])
+            order = "" if f["observed_order"] is None else fmt(f['observed_order'], ".3g")
+            err = "" if f["error_estimate"] is None else fmt(f['error_estimate'], ".4g")
+            w.writerow([f["name"], f["unit"]] + [fmt(v, ".6g") for v in f["values"]]
+                       + [fmt(c, ".4g") for c in f["changes"]] + [order, err, f["verdict"]])
 
 
 def table(report: dict) -> str:
@@ -219,7 +226,7 @@ def table(report: dict) -> str:
             + ", ".join(f"{x['unknowns']:,}" for x in done) + ")")
     lines = [head, f"{'figure':<34}{'value':>11}{'last change':>13}{'order':>7}  verdict"]
     for f in report["figures"]:
-        order = "" if f["observed_order"] is None else f"{f['observed_order']:.2f}"
+        order = "" if f["observed_order"] is None else fmt(f['observed_order'], ".2f")
         change = f"{100 * f['relative_changes'][-1]:+.2f} %" if f["relative_changes"] else ""
         lines.append(f"{f['name'][:33]:<34}{f['values'][0]:>11.1f}{change:>13}{order:>7}  "
                      f"{f['verdict']}")

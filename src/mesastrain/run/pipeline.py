@@ -32,6 +32,7 @@ from mesastrain.case.types import Case
 from mesastrain.errors import ResourceError, SolverError
 from mesastrain.fem.assembly import SymbolicCache, assemble
 from mesastrain.fem.constraints import Boundary
+from mesastrain.fem.cost import element_type
 from mesastrain.fem.discretisation import Discretisation
 from mesastrain.fem.fields import hydrostatic, principal, recover, von_mises
 from mesastrain.fem.solve import solve_model
@@ -110,8 +111,9 @@ def run_case(case: Case, progress=None, max_memory_gb: float | None = None,
         extra = _cell_eigenstrain(case, layers, sm, extra_eigenstrain)
     disc = sm.discretise(case.mesh.order)
     timings["mesh"] = time.perf_counter() - t
-    say(f"mesh: {sm.nnodes:,} nodes, {sm.nelems:,} {sm.element_name}, order {disc.order}, "
-        f"{disc.ndofs:,} unknowns; {sym.name} model")
+    solved = solved_system(sm, sym, disc)
+    say(f"mesh: {solved['unknowns']:,} unknowns, {solved['nodes']:,} nodes, "
+        f"{solved['elements']:,} {solved['element_type']}; {sym.name} model")
     t = time.perf_counter()
     cache = SymbolicCache(disc)
     K, f = assemble(disc, sm.region, stiff, eig, extra, cache=cache)
@@ -147,14 +149,16 @@ def run_case(case: Case, progress=None, max_memory_gb: float | None = None,
     if not (np.all(np.isfinite(fl.cell_stress)) and np.all(np.isfinite(fl.displacement))):
         raise SolverError("the recovered fields contain NaN or Inf; nothing was written")
     res = Result(case=case, layers=layers, mesh=sm, disc=disc, u=u, fields=fl,
-                 cell_eigenstrain=extra, solver=rep, timings=timings, sensitivities=du,
-                 scatter_groups=tuple(sens.groups) if sens is not None else ())
+                 cell_eigenstrain=extra, solver=rep, timings=timings, solved=solved,
+                 sensitivities=du, scatter_groups=tuple(sens.groups) if sens is not None else ())
     res.derived.append(Derived(summary={"model": model}))
     res.probes.extend(evaluate_probes(res))
     timings["recovery"] = time.perf_counter() - t
     if providers:
         t = time.perf_counter()
-        for provider in providers:
+        for i, provider in enumerate(providers, 1):
+            name = getattr(provider, "__module__", "").rsplit(".", 1)[-1] or "derived"
+            say(f"derived quantities {i} of {len(providers)}: {name}")
             d = provider(res)
             res.derived.append(d)
             res.warnings.extend(d.warnings)
@@ -177,6 +181,25 @@ def _cell_eigenstrain(case, layers, sm, extra_eigenstrain=None):
     if not parts:
         return None
     return parts[0] if len(parts) == 1 else parts[0] + parts[1]
+
+
+def solved_system(sm, sym: Symmetry, disc: Discretisation) -> dict:
+    """The system that is solved (before a half/quarter model is unfolded).
+
+    Returns
+    -------
+    dict
+        ``unknowns`` (displacement degrees of freedom), ``nodes`` (mesh vertices),
+        ``elements``, ``element_type`` in words (``"27-node hexahedra"``), ``order``
+        and ``symmetry`` (``"full"``, ``"half"``, ``"quarter"``).
+    """
+    m = sm.solve_mesh
+    shape = {(3, 8): "hexahedra", (3, 4): "tetrahedra", (2, 4): "quadrilaterals",
+             (2, 3): "triangles"}.get((m.p.shape[0], m.t.shape[0]), sm.element_name)
+    return {"unknowns": int(disc.ndofs), "nodes": int(sm.solve_nnodes),
+            "elements": int(m.t.shape[1]),
+            "element_type": element_type(shape, disc.order, section=m.p.shape[0] == 2),
+            "order": int(disc.order), "symmetry": sym.name}
 
 
 def model_summary(sm, sym: Symmetry, disc: Discretisation) -> dict:
@@ -215,7 +238,7 @@ def evaluate_probes(res: Result) -> list[dict]:
         lay: LayerModel = res.layers[int(region[0])]
         s, e = stress[0], strain[0]
         out.append({
-            "name": p.name, "at": list(p.at), "layer": int(lay.index),
+            "name": p.name, "at": list(p.at), "region": lay.name,
             "material": lay.material.label,
             "displacement": disp[0],
             "stress": s, "strain": e,

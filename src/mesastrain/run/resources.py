@@ -52,6 +52,16 @@ def estimate_other_kind(case: Case, kind: str) -> Estimate:
     return KINDS[kind].estimate(case)
 
 
+def usable_cores() -> int:
+    """Cores this process may run on (its CPU affinity; ``os.cpu_count()`` where unknown)."""
+    import os
+
+    try:
+        return max(1, len(os.sched_getaffinity(0)))
+    except (AttributeError, OSError):
+        return max(1, os.cpu_count() or 1)
+
+
 def available_memory_gb() -> float:
     """Memory the operating system reports as available, GB."""
     try:

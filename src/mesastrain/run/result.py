@@ -86,6 +86,10 @@ class Result:
         when ``[uncertainty]`` is off (:mod:`mesastrain.run.sensitivity`).
     scatter_groups : tuple of Group
         The constant groups of ``sensitivities``.
+    solved : dict
+        The system that was solved, before unfolding
+        (:func:`mesastrain.run.pipeline.solved_system`): unknowns, nodes, elements,
+        element_type, order, symmetry.
     """
 
     case: Case
@@ -102,6 +106,7 @@ class Result:
     derived: list = field(default_factory=list)
     sensitivities: dict = field(default_factory=dict, repr=False)
     scatter_groups: tuple = ()
+    solved: dict = field(default_factory=dict)
 
     @property
     def order(self) -> int:

@@ -130,8 +130,8 @@ def test_good_mesa_values():
     assert (s.material, s.x, s.thickness, s.normal, s.x_axis) == \
         ("Si", None, 500000.0, (0, 0, 1), (1, 1, 0))
     assert case.layers == (
-        Layer("SiGe", 0.25, 40.0, 0.0, (0, 0, 1), (1, 1, 0)),   # orientation inherited
-        Layer("Si", None, 100.0, 0.0, (0, 0, 1), (1, 1, 0)),
+        Layer("SiGe", 0.25, 40.0, 0.0, (0, 0, 1), (1, 1, 0), name="SiGe"),   # inherited
+        Layer("Si", None, 100.0, 0.0, (0, 0, 1), (1, 1, 0), name="Si"),           # orientation
     )
     assert case.pattern == Pattern("rectangle", 2000.0, 1500.0, 200.0, 1000.0)
     assert case.thermal.growth_temperature == 973.15   # "700 C"
@@ -157,7 +157,10 @@ def test_good_blanket_defaults():
     case = load_case(DATA / "good_blanket.toml")
     assert case.title == "good_blanket"            # file stem when no title is given
     assert case.substrate.normal == (0, 0, 0, 1)
-    assert case.layers == (Layer("AlGaN", 0.3, 25.0, 0.1, (0, 0, 0, 1), (2, -1, -1, 0)),)
+    assert case.layers == (Layer("AlGaN", 0.3, 25.0, 0.1, (0, 0, 0, 1), (2, -1, -1, 0),
+                                 name="AlGaN"),)
+    # good_blanket.toml keeps the old spelling x of the alloy composition: read, with a note
+    assert any("layer[0].x" in n and "composition" in n for n in case.notes)
     assert case.pattern == Pattern("none", None, None, None, None)
     assert not case.pattern.patterned
     assert case.thermal is None
@@ -407,7 +410,7 @@ def test_growth_range_accepted(growth):
 def test_layer_x_bool_rejected():
     d = _base()
     d["layer"][0]["x"] = True
-    assert _raises(d).key == "layer[0].x"
+    assert _raises(d).key == "layer[0].composition"
 
 
 def test_probe_and_cut_names_default_in_order():

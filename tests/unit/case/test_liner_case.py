@@ -27,7 +27,7 @@ def test_defaults_names_and_echo():
                              {"material": "SiN-PECVD", "thickness": 10, "name": "stressor",
                               "sidewall_thickness": 8, "stress": "-1 GPa"}]))
     a, b = case.liners
-    assert (a.name, a.side, a.floor, a.stress) == ("liner 1", 5.0, 5.0, None)
+    assert (a.name, a.side, a.floor, a.stress) == ("SiO2 liner", 5.0, 5.0, None)
     assert (b.name, b.side, b.floor, b.stress) == ("stressor", 8.0, 10.0, -1000.0)
     again = parse_case(case.to_dict())
     assert again.liners == case.liners

@@ -21,6 +21,7 @@ import pytest
 
 from mesastrain.case import types
 from mesastrain.case.parse import load_case, parse_case
+from mesastrain.case.renames import RENAMED_TABLES
 from mesastrain.case.schema import SCHEMA_FILE, TABLES, TOP_KEYS, json_schema, json_schema_text
 from mesastrain.errors import CaseError
 
@@ -94,7 +95,10 @@ def test_every_table_is_declared_once_with_its_dataclass():
         cls = types.TABLE_TYPES[tab.name]
         assert {f.name for f in dataclasses.fields(cls)} == {k.field for k in tab.keys}
         assert tab.attr in {f.name for f in dataclasses.fields(types.Case)}
-    assert set(TOP_KEYS) == set(json_schema()["properties"])
+    # the schema also accepts the old table names, marked deprecated
+    props = json_schema()["properties"]
+    assert set(TOP_KEYS) == {k for k, v in props.items() if not v.get("deprecated")}
+    assert {k for k, v in props.items() if v.get("deprecated")} == set(RENAMED_TABLES)
 
 
 def test_dataclass_defaults_are_the_declared_ones():

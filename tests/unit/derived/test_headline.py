@@ -18,11 +18,12 @@ def test_figures_come_from_the_readouts_and_probes(small_mesa_result):
     assert len(names) == len(set(names)), "figure names must be unique"
     by = {f.name: f for f in figs}
     s = merged_summary(res)
-    layer = s["readouts"]["layers"][1]
+    name = res.layers[1].name
+    layer = s["readouts"]["layers"][name]
     # the centre stress figure is the readout's centre stress, not a copy of another number
     c = np.asarray(layer["centre_stress"])
-    assert by[f"{layer['name']} centre sxx"].value == float(c[0, 0])
-    assert by[f"{layer['name']} centre sxx"].unit == "MPa"
+    assert by[f"{name} centre sxx"].value == float(c[0, 0])
+    assert by[f"{name} centre sxx"].unit == "MPa"
     # each probe's normal stresses in sample axes
     p = res.probes[0]
     assert by[f"probe {p['name']} szz"].value == float(np.asarray(p["stress"])[2, 2])

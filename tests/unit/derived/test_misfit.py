@@ -327,7 +327,7 @@ def test_sige_array_relaxes_film_by_b_edge_over_spacing():
 def _case(dislocations, pattern=None, layers=None, **extra):
     data = {"substrate": dict(SIGE_CASE["substrate"]),
             "layer": layers or [dict(SIGE_CASE["layer"][0])], "mesh": {"order": 1},
-            "dislocations": dislocations, **extra}
+            "dislocation": dislocations, **extra}
     if pattern is not None:
         data["pattern"] = pattern
     return parse_case(data)
@@ -337,7 +337,7 @@ SIXTY = {"interface": 0, "line": [1, -1, 0], "burgers": [1, 0, 1], "burgers_frac
 
 
 def test_case_keys_round_trip():
-    case = _case([{**SIXTY, "relaxation": 0.5, "name": "md"},
+    case = _case([{**SIXTY, "relaxed": 0.5, "name": "md"},
                   {**SIXTY, "line": [1, 1, 0], "burgers": [1, 0, -1], "spacing": "40 nm",
                    "offset": "5 nm"}], pattern={"shape": "rectangle", "width": "300 nm"})
     a, b = case.dislocations
@@ -347,21 +347,21 @@ def test_case_keys_round_trip():
 
 
 @pytest.mark.parametrize("entry, pattern, key, words", [
-    ({**SIXTY}, None, "dislocations[0].spacing", "one of positions"),
-    ({**SIXTY, "spacing": 10, "relaxation": 0.5}, None, "dislocations[0].relaxation",
+    ({**SIXTY}, None, "dislocation[0].spacing", "one of positions"),
+    ({**SIXTY, "spacing": 10, "relaxed": 0.5}, None, "dislocation[0].relaxed",
      "only one"),
     ({**SIXTY, "positions": [0.0], "offset": 3}, {"shape": "rectangle", "width": "200 nm"},
-     "dislocations[0].offset", "only with spacing"),
-    ({**SIXTY, "interface": 1, "spacing": 10}, None, "dislocations[0].interface", "allowed: 0"),
-    ({**SIXTY, "line": [1, 0, 1], "spacing": 10}, None, "dislocations[0].line",
+     "dislocation[0].offset", "only with spacing"),
+    ({**SIXTY, "interface": 1, "spacing": 10}, None, "dislocation[0].interface", "allowed: 0"),
+    ({**SIXTY, "line": [1, 0, 1], "spacing": 10}, None, "dislocation[0].line",
      "interface plane"),
-    ({**SIXTY, "relaxation": 0.0}, None, "dislocations[0].relaxation", "> 0"),
-    ({**SIXTY, "positions": [0.0]}, None, "dislocations[0].positions", "periodic cell"),
-    ({**SIXTY, "spacing": 10}, {"shape": "disk", "diameter": "200 nm"}, "dislocations[0]",
+    ({**SIXTY, "relaxed": 0.0}, None, "dislocation[0].relaxed", "> 0"),
+    ({**SIXTY, "positions": [0.0]}, None, "dislocation[0].positions", "periodic cell"),
+    ({**SIXTY, "spacing": 10}, {"shape": "disk", "diameter": "200 nm"}, "dislocation[0]",
      "axis-aligned bricks"),
     ({**SIXTY, "line": [1, 1, 0], "spacing": 10}, {"shape": "stripe", "width": "200 nm"},
-     "dislocations[0].line", "along the stripe"),
-    ({**SIXTY, "spacing": 10, "colour": 1}, None, "dislocations[0].colour", "unknown key"),
+     "dislocation[0].line", "along the stripe"),
+    ({**SIXTY, "spacing": 10, "colour": 1}, None, "dislocation[0].colour", "unknown key"),
 ])
 def test_case_errors_name_the_key(entry, pattern, key, words):
     with pytest.raises(CaseError) as err:
@@ -373,7 +373,7 @@ def test_case_errors_name_the_key(entry, pattern, key, words):
 def _blanket_run(relaxation, size="2 nm", probes=()):
     from mesastrain.derived import solve_and_derive
 
-    case = _case([{**SIXTY, "relaxation": relaxation}], mesh={"order": 1, "size": size},
+    case = _case([{**SIXTY, "relaxed": relaxation}], mesh={"order": 1, "size": size},
                  probe=list(probes))
     return case, solve_and_derive(case)
 
@@ -460,7 +460,7 @@ def test_output_folder_and_report(tmp_path):
     from mesastrain.derived import solve_and_derive
     from mesastrain.io.folder import write_result
 
-    case = _case([{**SIXTY, "relaxation": 0.3}], mesh={"order": 1, "size": "3 nm"},
+    case = _case([{**SIXTY, "relaxed": 0.3}], mesh={"order": 1, "size": "3 nm"},
                  probe=[{"name": "p", "at": [3.0, 0.0, 25.0]}],
                  cut=[{"name": "c", "from": [-20, 0, 25], "to": [20, 0, 25], "points": 41}],
                  device={"bands": False, "raman": False, "piezo": False, "maps": False},
@@ -485,11 +485,11 @@ def test_relaxation_needs_a_mismatch():
     # Si on Si has no mismatch: a relaxation target cannot set a spacing.
     from mesastrain.derived import solve_and_derive
 
-    case = _case([{**SIXTY, "relaxation": 0.5}], layers=[{"material": "Si",
+    case = _case([{**SIXTY, "relaxed": 0.5}], layers=[{"material": "Si",
                                                          "thickness": "20 nm"}])
     with pytest.raises(CaseError) as err:
         solve_and_derive(case)
-    assert err.value.key == "dislocations[0].relaxation"
+    assert err.value.key == "dislocation[0].relaxed"
 
 
 def test_mirrored_model_asks_for_the_whole_feature():
@@ -504,7 +504,7 @@ def test_mirrored_model_asks_for_the_whole_feature():
 
     out = plan.dislocation_eigenstrain(case, layers, Half())
     assert out.shape == (7, 3, 3) and not out.any()
-    plain = parse_case({k: v for k, v in case.to_dict().items() if k != "dislocations"})
+    plain = parse_case({k: v for k, v in case.to_dict().items() if k != "dislocation"})
     assert plan.dislocation_eigenstrain(plain, layers, Half()) is None
 
 

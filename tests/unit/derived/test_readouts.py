@@ -45,8 +45,8 @@ def test_relaxation_length_scales_with_film_thickness():
     # (here W/h >= 150, etch depth 2h), the edge field depends on the film thickness alone, so
     # doubling the film doubles the relaxation length (dimensional analysis, common practice).
     # The mesh (edge size 2 nm), the width and the substrate depth are NOT scaled with h.
-    thin = _readouts(_stripe(10.0))["layers"][1]["relaxation"]["+x"]["length"]
-    thick = _readouts(_stripe(20.0))["layers"][1]["relaxation"]["+x"]["length"]
+    thin = _readouts(_stripe(10.0))["layers"]["SiGe"]["relaxation"]["+x"]["length"]
+    thick = _readouts(_stripe(20.0))["layers"]["SiGe"]["relaxation"]["+x"]["length"]
     assert thin > 2 * 10.0          # several film thicknesses, not a mesh artefact
     assert thick / thin == pytest.approx(2.0, rel=0.10)
 
@@ -79,13 +79,13 @@ def test_summary_flags_singular_peaks_and_piezoresistance_out_of_range(small_mes
     from mesastrain.io.folder import summary_of
 
     s = json.loads(json.dumps(summary_of(small_mesa_result), default=lambda o: o.tolist()))
-    peaks = {e["index"]: e["peaks"]["von_mises"] for e in s["readouts"]["layers"]}
-    for lf in s["layer_figures"]:
-        assert lf["max_von_mises_singular"] == peaks[lf["index"]]["singular"]
-    assert s["layer_figures"][0]["max_von_mises_singular"]     # the etch-floor corner
+    peaks = {n: e["peaks"]["von_mises"] for n, e in s["readouts"]["layers"].items()}
+    for n, lf in s["layer_figures"].items():
+        assert lf["max_von_mises_singular"] == peaks[n]["singular"]
+    assert s["layer_figures"]["substrate"]["max_von_mises_singular"]  # the etch-floor corner
     lim = s["device"]["piezo_linear_limit"]["percent"]
     assert lim == 20.0 and "Smith 1954" in s["device"]["piezo_linear_limit"]["reason"]
-    for f in s["device"]["layer_figures"]:
+    for f in s["device"]["layer_figures"].values():
         for k, v in f.items():
             if k.startswith("piezo_"):
                 beyond = [q for q in ("mean", "min", "max") if abs(v[q]) > lim]
@@ -137,7 +137,7 @@ def test_corner_and_edge_standoff_values(mesa):
     r = _readouts(mesa)
     assert r["standoff"] == pytest.approx(2.5)          # default: half the thinnest layer
     names = {f["name"] for f in r["edges"]}
-    assert "layer 1/substrate edge +x" in names and "etch-floor corner +x" in names
+    assert "SiGe/substrate edge +x" in names and "etch-floor corner +x" in names
     assert "etch-floor vertex (+x,+y)" in names
     for f in r["edges"]:
         assert f["singular"]                              # every edge here is a sharp one
@@ -146,13 +146,13 @@ def test_corner_and_edge_standoff_values(mesa):
             assert np.isfinite(v["von_mises"]) and v["element_size"] > 0
     # the square <110>-edged mesa on (001) is four-fold symmetric: same values on all sides
     vm = {f["name"]: next(iter(f["values"].values()))["von_mises"] for f in r["edges"]}
-    assert vm["layer 1/substrate edge +x"] == pytest.approx(vm["layer 1/substrate edge -y"],
+    assert vm["SiGe/substrate edge +x"] == pytest.approx(vm["SiGe/substrate edge -y"],
                                                             rel=1e-6)
 
 
 def test_peaks_sit_at_singular_edges(mesa):
     r = _readouts(mesa)
-    film = r["layers"][1]
+    film = r["layers"]["SiGe"]
     vm = film["peaks"]["von_mises"]
     assert vm["value"] > 1000.0
     # the peak element touches an edge or corner: its centre is within two elements of it
@@ -162,13 +162,13 @@ def test_peaks_sit_at_singular_edges(mesa):
 
 
 def test_centre_keeps_most_of_the_blanket_stress_and_energy_drops(mesa):
-    film = _readouts(mesa)["layers"][1]
+    film = _readouts(mesa)["layers"]["SiGe"]
     c, b = film["centre_stress"], film["blanket_stress"]
     assert b[0][0] < 0 and c[0][0] < 0
     assert 0.3 < film["centre_over_blanket"]["xx"] < 1.0
     e = film["energy_per_area"]
     assert 0 < e["patterned"] < e["blanket"]
-    assert e["plan_area_nm2"] == pytest.approx(80.0 * 80.0, rel=1e-9)
+    assert e["plan_area"] == pytest.approx(80.0 * 80.0, rel=1e-9)
 
 
 # --------------------------------------------------------------------------
@@ -180,7 +180,7 @@ def test_blanket_stress_on_110_matches_closed_form():
     res = _run({"substrate": {"material": "Si", "thickness": "100 um", "normal": [1, 1, 0],
                               "x_axis": [1, -1, 0]},
                 "layer": [{"material": "SiGe", "x": 0.2, "thickness": 20}]})
-    film = _readouts(res)["layers"][1]
+    film = _readouts(res)["layers"]["SiGe"]
     lm = res.layers[1]
     c = lm.material.constants
     m1, m2 = biaxial_stress_ratios_110(c["C11"], c["C12"], c["C44"])
@@ -218,7 +218,7 @@ def test_critical_thickness_sige_on_si(x, mb_ref, pb_ref):
     # alpha = lambda = 60 deg; People-Bean with b = 0.4 nm, a = a_Si = 0.5431 nm (their
     # choice). Reference values: REFERENCES.md 5d, set A (derived from the same formulas).
     res = _run({"substrate": SI, "layer": [{"material": "SiGe", "x": x, "thickness": 5}]})
-    ct = _readouts(res)["layers"][1]["critical_thickness"]
+    ct = _readouts(res)["layers"]["SiGe"]["critical_thickness"]
     sige, si = get_material("SiGe", x), get_material("Si")
     f = (sige.a - si.a) / sige.a
     nu = sige.constants["C12"] / (sige.constants["C11"] + sige.constants["C12"])
@@ -304,8 +304,8 @@ def test_convergence_figures(mesa):
 
     f = convergence_figures(mesa)
     names = list(f)
-    assert any(n.startswith("layer 1/substrate edge +x in layer 1: von_mises at 2.5 nm")
+    assert any(n.startswith("SiGe/substrate edge +x in SiGe: von_mises at 2.5 nm")
                for n in names)
-    assert f["layer 1 relaxation length +x (nm)"] == pytest.approx(
-        _readouts(mesa)["layers"][1]["relaxation"]["+x"]["length"], rel=1e-9)
+    assert f["SiGe relaxation length +x (nm)"] == pytest.approx(
+        _readouts(mesa)["layers"]["SiGe"]["relaxation"]["+x"]["length"], rel=1e-9)
     assert "interface z=0 +x: peak shear" in f and all(np.isfinite(v) for v in f.values())

@@ -72,7 +72,7 @@ def test_lattice_law_band_scales_the_whole_field(small_mesa_result, summary):
             assert change == pytest.approx(row["value"] * ratio, rel=1e-4), row["name"]
             n += 1
     assert n >= 10
-    centre = figs["layer 1 centre sxx"]
+    centre = figs["SiGe centre sxx"]
     assert centre["dominant"] == "SiGe lattice law"
     # about 10 % of the misfit at x = 0.2 (Dismukes 0.00754 vs Vegard 0.00836 relative to a_Si,
     # REFERENCES.md 1c)
@@ -88,12 +88,12 @@ def test_report_section_and_terminal_table(small_mesa_result):
     text = headline_table(s)
     lines = text.splitlines()
     assert lines[0].startswith("headline figure")
-    centre = next(ln for ln in lines if ln.startswith("layer 1 centre sxx"))
+    centre = next(ln for ln in lines if ln.startswith("SiGe centre sxx"))
     assert "MPa" in centre and "\u00b1" in centre and "(mostly SiGe lattice law)" in centre
     assert any("interface" in ln and "singular" in ln for ln in lines)
-    row = next(r for r in s["headline"] if r["name"] == "layer 1 centre sxx")
+    row = next(r for r in s["headline"] if r["name"] == "SiGe centre sxx")
     t = figure_texts(row)
-    assert t["line"].startswith("layer 1 centre sxx -") and "mostly SiGe lattice law" in t["line"]
+    assert t["line"].startswith("SiGe centre sxx -") and "mostly SiGe lattice law" in t["line"]
     assert section_headline_errors({"headline": []}, None) is None
 
 

@@ -72,11 +72,11 @@ def test_vtu_round_trip_and_vtk_order(tmp_path):
     meshio = pytest.importorskip("meshio")
     m = _box("hex")
     pd = {"stress": np.random.default_rng(0).random((m.nvertices, 6)).astype(np.float32)}
-    cd = {"layer": np.arange(m.nelements, dtype=np.int32) % 2}
+    cd = {"region": np.arange(m.nelements, dtype=np.int32) % 2}
     write_vtu(tmp_path / "f.vtu", m, pd, cd)
     r = meshio.read(tmp_path / "f.vtu")
     assert np.array_equal(r.point_data["stress"], pd["stress"])
-    assert r.cell_data["layer"][0].shape == (m.nelements,)
+    assert r.cell_data["region"][0].shape == (m.nelements,)
     # VTK hexahedron order: the first four vertices are one face, counter-clockwise seen
     # from the last four, which lie opposite (vertex i + 4 above vertex i)
     c = r.points[r.cells[0].data[0]]
@@ -104,7 +104,7 @@ def test_default_vtu_is_lean_and_quick_writes_no_pictures(small_mesa_toml, tmp_p
     assert "write_fields" in s["timings"] and "write_pictures" not in s["timings"]
     m = meshio.read(out / "fields.vtu")
     assert set(m.point_data) == {"displacement", "stress", "strain", "von_mises"}
-    assert set(m.cell_data) == {"layer", "stress"}
+    assert set(m.cell_data) == {"region", "stress"}
     assert m.point_data["stress"].dtype == np.float32
     assert (out / "fields.vtu").stat().st_size / len(m.points) < 100
 

@@ -83,9 +83,9 @@ def test_postprocess_scripts_work_on_a_result_folder(folder, tmp_path):
     import pyvista as pv
 
     part = pv.read(str(tmp_path / "layer_1.vtu"))
-    assert set(np.unique(part.cell_data["layer"])) == {1}
+    assert set(np.unique(part.cell_data["region"])) == {1}
     lines = (tmp_path / "cut_line.csv").read_text().splitlines()
     assert len(lines) == 42 and lines[0].startswith("distance_nm,")
     # inside the compressed SiGe layer the interpolated stress is compressive
-    sxx = [float(r.split(",")[6]) for r in lines[1:] if r.split(",")[4] == "1"]
+    sxx = [float(r.split(",")[6]) for r in lines[1:] if r.split(",")[4] == "SiGe"]
     assert sxx and max(sxx) < 0

@@ -104,7 +104,7 @@ def test_c_plane_disk_is_axisymmetric():
                    material=("GaN", "AlGaN"), normal=(0, 0, 0, 1), x_axis=(2, -1, -1, 0),
                    probes=probes, mesh={"size": 10, "edge_size": 5})
     res = run_case(case)
-    assert res.derived[0].summary["model"]["model"] == "quarter"
+    assert res.derived[0].summary["model"]["symmetry"] == "quarter"
     s_x, s_d, s_c = (p["stress"] for p in res.probes)
     d = np.array([1.0, 1.0, 0.0]) / np.sqrt(2.0)
     srr_x, srr_d = s_x[0, 0], d @ s_d @ d

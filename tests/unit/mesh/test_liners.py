@@ -138,7 +138,7 @@ def test_liner_over_a_wide_mesa_keeps_its_blanket_stress_at_the_centre():
                  mesh={"order": 1, "size": 150, "edge_size": 5})
     res = run_case(case)
     lm = res.layers[-1]
-    assert lm.liner == 1 and lm.name == "liner 1"
+    assert lm.liner == 1 and lm.name == "SiN-PECVD liner"
     _, sig, _, reg = sample_inside(res, [[0.0, 0.0, 45.0]])
     assert reg[0] == 2
     assert sig[0, 0, 0] == pytest.approx(SIGMA, rel=0.02)
@@ -201,7 +201,7 @@ def test_fin_horizontal_force_is_the_same_on_every_vertical_cut(fin):
 
 def test_liner_regions_and_summary_names(fin):
     names = [lm.name for lm in fin.layers]
-    assert names == ["substrate", "layer 1", "liner 1"]
+    assert names == ["substrate", "Si", "SiN-PECVD liner"]
     assert set(np.unique(fin.mesh.region).tolist()) == {0, 1, 2}
 
 

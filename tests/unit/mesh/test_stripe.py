@@ -53,7 +53,7 @@ def test_wide_stripe_centre_is_blanket(wide):
     assert centre[0, 0] == pytest.approx(blanket[0, 0], rel=0.01)
     assert centre[1, 1] == pytest.approx(blanket[1, 1], rel=0.01)
     assert abs(centre[2, 2]) < 0.01 * abs(blanket[0, 0])
-    assert wide.derived[0].summary["model"]["model"] == "half"     # mirror x = 0 used
+    assert wide.derived[0].summary["model"]["symmetry"] == "half"     # mirror x = 0 used
 
 
 def test_sidewall_is_traction_free(wide):
@@ -85,7 +85,7 @@ def test_rotated_crystal_couples_out_of_plane_shear():
     # x along [310] on (001): no mirror plane x = 0, so the whole section is solved, and the
     # anisotropy couples the in-plane problem to the along-line displacement u_y
     res = run_case(stripe_case(20 * H, x_axis=(3, 1, 0), order=1))
-    assert res.derived[0].summary["model"]["model"] == "full"
+    assert res.derived[0].summary["model"]["symmetry"] == "full"
     uy = res.fields.displacement[:, 1]
     ux = res.fields.displacement[:, 0]
     assert np.max(np.abs(uy)) > 0.02 * np.max(np.abs(ux))

@@ -84,8 +84,8 @@ def test_decision_follows_geometry_and_crystal():
 def test_quarter_model_matches_full_model():
     quarter = run_case(mesa([1, 1, 0]))
     full = run_case(mesa([1, 1, 0], symmetry="full"))
-    assert quarter.derived[0].summary["model"]["model"] == "quarter"
-    assert full.derived[0].summary["model"]["model"] == "full"
+    assert quarter.derived[0].summary["model"]["symmetry"] == "quarter"
+    assert full.derived[0].summary["model"]["symmetry"] == "full"
     # the unfolded quarter covers the whole body
     assert quarter.fields.cell_volume.sum() == pytest.approx(full.fields.cell_volume.sum(),
                                                              rel=1e-9)
@@ -100,7 +100,7 @@ def test_quarter_model_matches_full_model():
 
 def test_orientation_without_mirror_is_solved_whole():
     res = run_case(mesa([3, 1, 0]))
-    assert res.derived[0].summary["model"]["model"] == "full"
+    assert res.derived[0].summary["model"]["symmetry"] == "full"
     a, b = res.probes[1]["stress"], res.probes[2]["stress"]
     # the field is not mirror symmetric: a half model would have forced it to be
     scale = abs(res.probes[0]["stress"][0, 0])
@@ -110,7 +110,7 @@ def test_orientation_without_mirror_is_solved_whole():
 def test_half_model_on_111():
     half = run_case(mesa([1, -1, 0], normal=[1, 1, 1]))
     full = run_case(mesa([1, -1, 0], normal=[1, 1, 1], symmetry="full"))
-    assert half.derived[0].summary["model"]["model"] == "half"
+    assert half.derived[0].summary["model"]["symmetry"] == "half"
     scale = abs(full.probes[0]["stress"][0, 0])
     for ph, pf in zip(half.probes, full.probes):
         assert np.max(np.abs(ph["stress"] - pf["stress"])) < 5e-3 * scale

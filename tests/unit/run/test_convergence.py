@@ -59,10 +59,10 @@ def test_cli_convergence_writes_the_study(tmp_path, capsys):
     assert conv["levels"][0]["unknowns"] < conv["levels"][1]["unknowns"] \
         < conv["levels"][2]["unknowns"]
     # the written result is the case's own mesh (level 0)
-    assert summary["mesh"]["unknowns"] == conv["levels"][0]["unknowns"]
+    assert summary["mesh"]["solved"]["unknowns"] == conv["levels"][0]["unknowns"]
     rows = list(csv.DictReader(open(out / "convergence.csv")))
     names = {r["figure"] for r in rows}
-    assert "probe centre sxx" in names and "layer 1 peak von_mises" in names
+    assert "probe centre sxx" in names and "SiGe peak von_mises" in names
     assert {r["verdict"] for r in rows} <= {"converged", "converging", "not converging",
                                             "oscillating"}
 
@@ -84,4 +84,4 @@ def test_square_mesa_centre_stress_is_converged_on_the_default_mesh():
         f = fig[f"probe centre {c}"]
         assert abs(f["relative_changes"][0]) < 5e-3
         assert f["values"][0] < -1000.0           # a strongly compressed film (MPa)
-    assert np.isfinite(fig["layer 1 peak von_mises"]["values"]).all()
+    assert np.isfinite(fig["SiGe peak von_mises"]["values"]).all()

@@ -50,6 +50,15 @@ def _sigterm_as_interrupt():
         signal.signal(signal.SIGTERM, old)
 
 
+def _duration(seconds: float) -> str:
+    """``42 s``, ``3 min``, ``1.5 h``."""
+    if seconds < 90:
+        return f"{seconds:.0f} s"
+    if seconds < 5400:
+        return f"{seconds / 60:.0f} min"
+    return f"{seconds / 3600:.1f} h"
+
+
 class _Progress:
     """One progress line on stderr: rewritten in place on a terminal, a line per case otherwise."""
 
@@ -83,8 +92,11 @@ class _Progress:
         n = self.done + self.failed
         frac = n / self.total if self.total else 1.0
         bar = "#" * int(round(24 * frac))
-        line = (f"[{time.perf_counter() - self.t0:6.1f} s] [{bar:<24}] {n}/{self.total} "
+        elapsed = time.perf_counter() - self.t0
+        line = (f"[{elapsed:6.1f} s] [{bar:<24}] {n} of {self.total} cases done "
                 f"({self.failed} failed)")
+        if 0 < n < self.total:      # the mean time per case so far, times the cases left
+            line += f", about {_duration(elapsed / n * (self.total - n))} left"
         if last:
             line += f"  {last}"
         if self.tty:

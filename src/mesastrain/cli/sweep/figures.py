@@ -35,9 +35,9 @@ _FIGURE_UNITS = {
     "strain": "1", "strain_crystal": "1", "eigenstrain": "1", "eigenstrain_sample": "1",
     "misfit": "1", "total_strain": "1",
     "displacement": "nm", "at": "nm", "max_von_mises_at": "nm", "z_bottom": "nm", "z_top": "nm",
-    "volume_nm3": "nm^3", "lattice": "Angstrom", "lattice_in_plane": "Angstrom",
+    "volume": "nm^3", "lattice": "Angstrom", "lattice_in_plane": "Angstrom",
     "constants": "GPa", "stiffness_sample": "GPa",
-    "timings": "s", "setup_seconds": "s", "solve_seconds": "s",
+    "timings": "s", "setup_time": "s", "solve_time": "s",
 }
 _UNIT_SUFFIXES = (("_nm3", "nm^3"), ("_nm", "nm"), ("_um", "um"), ("_mpa", "MPa"),
                   ("_gpa", "GPa"), ("_mev", "meV"), ("_ev", "eV"), ("_k", "K"),
@@ -156,7 +156,7 @@ def figure_unit(path: str, given: dict | None = None, summary: dict | None = Non
 
     In order: the unit given in ``[collect] units``; a ``units`` table met on
     the way down ``summary`` that names one of the path's segments (e.g.
-    ``readouts.units.length`` for ``readouts.layers[1].relaxation.+x.length``,
+    ``readouts.units.length`` for ``readouts.layers.SiGe.relaxation.+x.length``,
     ``summary.json``'s own ``units.stress``); the known quantities of
     ``summary.json`` (``stress`` MPa, ``strain`` dimensionless,
     ``displacement`` nm, ...); names ending in ``_nm``, ``_mpa``, ``_mev``,

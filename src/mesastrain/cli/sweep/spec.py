@@ -22,7 +22,7 @@ figures to collect from each result's ``summary.json``::
     values = [0.2, 0.3]               # ... or a list of values as the case file takes them
 
     [collect]
-    figures = ["probes.centre.stress.xx", "layer_figures[1].mean_stress.xx"]
+    figures = ["probes.centre.stress.xx", "layer_figures.SiGe.mean_stress.xx"]
 
 Key paths
 ---------
@@ -40,12 +40,14 @@ from __future__ import annotations
 import copy
 import math
 import re
+import sys
 from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
 
 from mesastrain.case.parse import parse_case, read_toml
+from mesastrain.case.renames import current_path, modernise
 from mesastrain.errors import CaseError
 from mesastrain.units import finite_float, is_number, parse_length, parse_temperature, show_value
 
@@ -66,8 +68,10 @@ KEY_UNITS = {
     "size": "nm", "edge_size": "nm", "substrate_depth": "nm", "at": "nm", "from": "nm",
     "to": "nm", "standoff": "nm", "wafer_diameter": "nm",
     "growth_temperature": "K", "final_temperature": "K",
-    "x": "1", "relaxed": "1", "growth": "1", "tolerance": "1",
+    "x": "1", "composition": "1", "relaxed": "1", "growth": "1", "tolerance": "1",
 }
+#: Old-name notes already printed (once per path and process).
+_NOTED: set = set()
 
 
 _NAME = r"[^.\[\]\s](?:[^.\[\]]*[^.\[\]\s])?"
@@ -121,7 +125,18 @@ def set_path(data: dict, segs: tuple, value, key: str) -> None:
     CaseError
         Named ``key``: an index into something that is not a list or past
         its end, or a name inside something that is not a table.
+
+    Old key names (:mod:`mesastrain.case.renames`, ``layer[0].x``) are set under their
+    current names, in a case written either way, with one note on stderr.
     """
+    segs, note = current_path(tuple(segs))
+    if note is not None and str(note) not in _NOTED:
+        _NOTED.add(str(note))
+        print(f"note: {note}", file=sys.stderr)
+    fresh, _ = modernise(data)      # the base case may still use the old names
+    if fresh is not data:
+        data.clear()
+        data.update(fresh)
     cur = data
     for i, seg in enumerate(segs):
         last = i == len(segs) - 1

@@ -27,7 +27,7 @@ from mesastrain.cli.sweep.store import (
     read_json,
 )
 from mesastrain.errors import CaseError
-from mesastrain.units import is_number
+from mesastrain.units import fmt, is_number
 
 
 def _label(name: str, unit: str) -> str:
@@ -112,7 +112,7 @@ def write_table(sweep: Sweep, out: Path, outcomes) -> list[str]:
     w = csv.writer(buf, lineterminator="\n")
     w.writerow(cols)
     for r in rows:
-        w.writerow(["" if v is None else (f"{v:.10g}" if isinstance(v, float) else v)
+        w.writerow(["" if v is None else (fmt(v, ".10g") if isinstance(v, float) else v)
                     for v in r])
     atomic_write(out / TABLE_CSV, buf.getvalue())
     files = [TABLE_CSV]
@@ -325,13 +325,13 @@ def summary_text(sweep: Sweep, meta: dict, outcomes, max_rows: int = 40) -> str:
     for oc in outcomes[:max_rows]:
         res = oc.case.resolved()
         cells = [str(oc.case.index)]
-        cells += [(f"{res[ax.key]:.6g}" if is_number(res[ax.key]) else str(res[ax.key]))
+        cells += [(fmt(res[ax.key], ".6g") if is_number(res[ax.key]) else str(res[ax.key]))
                   for ax in sweep.axes]
         cells.append(oc.status + ("" if oc.ran_now or oc.status != "ok" else "*"))
-        cells.append("" if oc.seconds is None else f"{oc.seconds:.1f}")
+        cells.append("" if oc.seconds is None else fmt(oc.seconds, ".1f"))
         for f in sweep.figures:
             v = oc.figures.get(f)
-            cells.append("" if v is None else f"{v:.6g}")
+            cells.append("" if v is None else fmt(v, ".6g"))
         body.append(cells)
     widths = [max(len(h), *(len(r[j]) for r in body)) if body else len(h)
               for j, h in enumerate(head)]
