@@ -6,7 +6,7 @@ command line, the sweep workers and the convergence study. Add a provider by wri
 its module here and appending its ``derive`` to :data:`PROVIDERS`.
 """
 
-from mesastrain.derived import bow, cuts, device, headline, misfit, readouts, tilt
+from mesastrain.derived import bow, cuts, device, discretisation, headline, misfit, readouts, tilt
 from mesastrain.run.pipeline import run_case
 
 #: The standard derived-quantity providers, in run order (the order of the entries in
@@ -18,6 +18,7 @@ PROVIDERS = (
     cuts.derive,        # [[cut]] -> CSV + PNG
     misfit.derive,      # dislocation contribution, overlay, relaxation
     tilt.derive,        # layer tilt against the substrate lattice (arcsec)
+    discretisation.derive,  # discretisation error of each headline figure (before headline)
     headline.derive,    # the headline figures with their error contributions (last)
 )
 

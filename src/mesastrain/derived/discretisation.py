@@ -1,0 +1,296 @@
+"""Discretisation error of the run: an energy-norm estimate and an error bar per headline figure.
+
+Two estimates, both a-posteriori (from the run itself, no reference solution):
+
+1. **Energy norm, recovery based** (Zienkiewicz & Zhu, Int. J. Numer. Meth. Eng.
+   24, 337 (1987); superconvergent patch recovery: Zienkiewicz & Zhu, Int. J.
+   Numer. Meth. Eng. 33, 1331 (1992)). With sigma_h the finite-element stress and
+   sigma* the recovered one (:mod:`mesastrain.fem.recovery`, per region, never
+   averaged across an interface), the error of element e is
+
+       eta_e^2 = int_e (sigma* - sigma_h) : S : (sigma* - sigma_h) dV,
+
+   S the compliance of the element's material, integrated with a Gauss rule of
+   degree 2 x order. The global relative error is
+
+       eta = sqrt(sum eta_e^2 / (sum ||sigma_h||_e^2 + sum eta_e^2))
+
+   (the percentage error of Zienkiewicz & Zhu 1987). ``eta_e^2 / V_e`` goes to
+   ``fields.vtu`` as ``error_energy_density`` (MPa, i.e. MJ/m^3): where the mesh
+   should be finer. It measures the whole stress field, including the
+   singular edges and corners, and is no error bar for a single figure.
+
+2. **Per figure: one coarser solve and one-level Richardson extrapolation**
+   (Richardson, Phil. Trans. R. Soc. A 210, 307 (1911); Roache, Verification
+   and Validation in Computational Science and Engineering, 1998, from memory).
+   The case is solved again with every element size multiplied by
+   :data:`COARSENING` = r (``mesh.refine`` divided by r: about 1/r^3 of the
+   unknowns, 1/r^2 for a stripe section) and the headline figures are read
+   from it the same way. For a figure f converging as C h^p,
+
+       f - f_h ~ (f_h - f_H) / (r^p - 1),
+
+   with p the *nominal* rate of the element order k (:func:`nominal_rate`):
+   p = k for point stresses and everything linear in them (centre and probe
+   stresses, von Mises, Raman and band-gap shifts, the stand-off values and the
+   relaxation length read from stress profiles). A dual-weighted-residual
+   estimate (Becker & Rannacher, Acta Numerica 10, 1 (2001); Oden & Prudhomme,
+   Comput. Math. Appl. 41, 735 (2001)) would need one adjoint solve per
+   figure (tens of figures per run); the coarse solve serves all figures at a
+   fraction of one solve. The wafer bow comes from its own plate model
+   (:func:`mesastrain.derived.bow.free_plate_curvature`, 27-node bricks); its
+   bar is the same extrapolation with that plate model solved on half as many
+   elements across, rate k + 1 = 3 (a displacement-based quantity).
+
+The stand-off values are finite by construction but sit near a singular edge
+whose field pollutes the convergence (the rate can fall below k); the bar
+there is therefore the larger of the extrapolation and the recovery
+difference |f(sigma*) - f(sigma_h)| the readouts already give
+(``error_estimate``). Singular figures (peaks at sharp edges) get
+``{"singular": true}`` and no bar. The effectivity of these bars (estimate /
+error against a solve refined 3x) is measured in
+``tests/unit/derived/test_discretisation_validation.py`` and README.md.
+
+Units: each error in its figure's unit.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import time
+
+import numpy as np
+
+from mesastrain.derived import device, readouts
+from mesastrain.derived.bow import (
+    PLATE_ELEMENTS,
+    SUBSTRATE_ELEMENTS,
+    blanket_stack,
+    free_plate_curvature,
+)
+from mesastrain.derived.headline import headline_figures, merged_summary
+from mesastrain.derived.sampling import stress_sampler
+from mesastrain.fem.recovery import recover_at
+from mesastrain.mesh.planning import refinement_of
+from mesastrain.physics.thinfilm import bow_height
+from mesastrain.run.pipeline import run_case
+from mesastrain.run.result import Derived
+
+__all__ = ["COARSENING", "coarse_case", "derive", "energy_norm", "estimate", "nominal_rate"]
+
+#: Element sizes of the extra solve are multiplied by this.
+COARSENING = 2.0
+
+#: The providers the coarse solve runs: those whose summaries the headline figures read.
+COARSE_PROVIDERS = (device.derive, readouts.derive)
+
+METHOD = ("energy norm: superconvergent patch recovery, Zienkiewicz & Zhu 1987/1992; "
+          "per figure: one extra solve with element sizes x2 and one-level Richardson "
+          "extrapolation with the element order's nominal rate (stand-off values: the larger "
+          "of that and the recovery difference)")
+
+
+def nominal_rate(kind: str, order: int) -> int:
+    """Nominal convergence rate p of a headline figure of ``kind`` for elements of ``order``.
+
+    Point stresses and anything linear in them converge as h^k for elements of
+    order k in a smooth region (Strang & Fix, An Analysis of the Finite Element
+    Method, 1973, from memory); the bow (from the plate model's displacement,
+    27-node bricks) as h^(k+1) with k = 2.
+    """
+    if kind == "bow":
+        return 3
+    return int(order)
+
+
+def coarse_case(case, ratio: float = COARSENING):
+    """The case with every element size multiplied by ``ratio`` (no further studies)."""
+    mesh = dataclasses.replace(case.mesh, refine=refinement_of(case) / ratio,
+                               convergence=False, error_estimate=False)
+    return dataclasses.replace(case, mesh=mesh)
+
+
+# --------------------------------------------------------------------------
+# energy norm (Zienkiewicz & Zhu)
+# --------------------------------------------------------------------------
+_REFDOM = {"hex": "RefHex", "quad": "RefQuad", "tet": "RefTet", "tri": "RefTri"}
+
+#: Elements per batch of the energy-norm integration (bounds the temporaries).
+CHUNK = 20000
+
+
+def _voigt(s: np.ndarray) -> np.ndarray:
+    """(..., 3, 3) -> (..., 6) in the order 11, 22, 33, 23, 13, 12."""
+    return np.stack([s[..., 0, 0], s[..., 1, 1], s[..., 2, 2],
+                     s[..., 1, 2], s[..., 0, 2], s[..., 0, 1]], axis=-1)
+
+
+def energy_norm(res) -> dict:
+    """Recovery-based energy-norm error of the whole stress field.
+
+    Returns
+    -------
+    dict
+        ``relative`` (eta, a fraction), ``elements`` (eta_e^2 per element,
+        MPa nm^3), ``volume`` (nm^3, the element volumes the integrals used; per
+        unit thickness on a cross-section), ``energy`` (sum of ||sigma_h||_e^2,
+        MPa nm^3), ``seconds``.
+    """
+    import skfem.refdom as refdom
+    from skfem.quadrature import get_quadrature
+
+    t0 = time.perf_counter()
+    sm = stress_sampler(res)
+    m = sm.mesh
+    nel = m.t.shape[1]
+    region = np.asarray(res.mesh.region)
+    X, W = get_quadrature(getattr(refdom, _REFDOM[sm.kind]), 2 * res.order)
+    nq = W.size
+    # compliance per region, 1/MPa, engineering shear (Voigt)
+    S = np.linalg.inv(np.asarray(res.stiffness, dtype=float) * 1e3)
+    err = np.zeros(nel)
+    nrm = np.zeros(nel)
+    vol = np.zeros(nel)
+    for start in range(0, nel, CHUNK):
+        el = np.arange(start, min(start + CHUNK, nel))
+        Xr = np.repeat(X[:, None, :], el.size, axis=1)                  # (dim, n, nq)
+        _, sig = sm.sample(el, Xr)                                       # (n, nq, 9)
+        e_q = np.repeat(el, nq)
+        X_q = np.tile(X, (1, el.size))                                   # (dim, n*nq)
+        rec, _ = recover_at(m.p, m.t[:len(sm.vertex_ref)], region, e_q, X_q, sm.kind,
+                            res.order, sm.vertex_ref, sm.sample)
+        dw = np.abs(sm.mapping.detDF(Xr, tind=el)) * W[None, :]          # (n, nq)
+        s6 = _voigt(sig.reshape(-1, 3, 3))
+        d6 = _voigt(rec.reshape(-1, 3, 3)) - s6
+        Sq = S[region[e_q]]
+        err[el] = (np.einsum("qi,qij,qj->q", d6, Sq, d6).reshape(el.size, nq) * dw).sum(axis=1)
+        nrm[el] = (np.einsum("qi,qij,qj->q", s6, Sq, s6).reshape(el.size, nq) * dw).sum(axis=1)
+        vol[el] = dw.sum(axis=1)
+    total = float(err.sum() + nrm.sum())
+    rel = float(np.sqrt(err.sum() / total)) if total > 0 else 0.0
+    return {"relative": rel, "elements": err, "volume": vol, "energy": float(nrm.sum()),
+            "seconds": time.perf_counter() - t0}
+
+
+# --------------------------------------------------------------------------
+# per figure: one coarser solve
+# --------------------------------------------------------------------------
+def _coarse_values(res, ratio: float) -> tuple[dict, dict]:
+    """Headline figure values of the coarser solve, and what it cost."""
+    t0 = time.perf_counter()
+    coarse = run_case(coarse_case(res.case, ratio), providers=COARSE_PROVIDERS,
+                      max_memory_gb=float("inf"))
+    vals = {f.name: f.value for f in headline_figures(coarse)}
+    info = {"unknowns": int(coarse.u.size), "elements": int(coarse.mesh.nelems),
+            "seconds": time.perf_counter() - t0}
+    return vals, info
+
+
+def _bow_values(res, ratio: float) -> tuple[float, float] | None:
+    """Bow height (um) of the plate model on its own mesh and on one coarsened by ``ratio``."""
+    s = merged_summary(res)
+    fe = (s.get("wafer_bow") or {}).get("finite_element")
+    if not fe:
+        return None
+    stiff, eig, zb, zt = blanket_stack(res)
+    r = free_plate_curvature(stiff, eig, zb, zt, n_xy=max(2, int(round(PLATE_ELEMENTS / ratio))),
+                             n_sub=max(1, int(round(SUBSTRATE_ELEMENTS / ratio))))
+    coarse = float(bow_height(r["mean"], res.case.readouts.wafer_diameter)) * 1e-3
+    return float(fe["bow_height"]), coarse
+
+
+def estimate(res, ratio: float = COARSENING) -> dict:
+    """The ``discretisation_error`` summary entry of a result (see the module text).
+
+    Parameters
+    ----------
+    res : Result
+        With the readout, device and bow providers already run.
+    ratio : float
+        Element-size ratio of the extra solve (> 1).
+
+    Returns
+    -------
+    dict
+        ``method``, ``energy_norm`` (``relative`` and how it was obtained),
+        ``coarse_solve`` (unknowns, elements, seconds, ratio) and ``figures``:
+        name -> ``{"error", "relative", "basis", "rate"}`` for every non-singular
+        headline figure, ``{"singular": true}`` for singular ones.
+    """
+    figs = headline_figures(res)
+    coarse, info = _coarse_values(res, ratio)
+    info["ratio"] = ratio
+    t = time.perf_counter()
+    bows = _bow_values(res, ratio) if any(f.kind == "bow" for f in figs) else None
+    info["bow_seconds"] = time.perf_counter() - t
+    recovery = _standoff_recovery_errors(res)
+    out = {}
+    for f in figs:
+        if f.singular:
+            out[f.name] = {"singular": True}
+            continue
+        p = nominal_rate(f.kind, res.order)
+        if f.kind == "bow":
+            if bows is None:
+                continue
+            fine, crude = bows
+            basis = (f"plate model with {ratio:g}x coarser elements, Richardson, rate {p}")
+        else:
+            crude = coarse.get(f.name)
+            if crude is None:
+                continue
+            fine = f.value
+            basis = f"solve with {ratio:g}x coarser elements, Richardson, rate {p}"
+        err = abs(fine - crude) / (ratio ** p - 1.0)
+        if f.kind == "standoff" and recovery.get(f.name) is not None:
+            if recovery[f.name] > err:
+                basis = "recovered minus finite-element value at the point (larger than " \
+                        "the coarse-solve extrapolation)"
+            err = max(err, recovery[f.name])
+        out[f.name] = {"error": float(err), "relative": float(err / abs(f.value))
+                       if f.value else None, "basis": basis, "rate": p}
+    return {"method": METHOD, "coarse_solve": info, "figures": out}
+
+
+def _standoff_recovery_errors(res) -> dict:
+    """The readouts' recovery-based bars of the stand-off figures, by headline name."""
+    s = merged_summary(res)
+    figs = {f.name: f for f in headline_figures(res) if f.kind == "standoff"}
+    out = {}
+    for edge in (s.get("readouts") or {}).get("edges", []):
+        for region, v in (edge.get("values") or {}).items():
+            for q in ("von_mises", "peel"):
+                for name, f in figs.items():
+                    if (f.region == region and name.endswith(f" {q}") and v.get(q) is not None
+                            and f.value == float(v[q])):
+                        e = (v.get("error_estimate") or {})
+                        e = e.get(q) if isinstance(e, dict) else None
+                        if e is not None:
+                            out[name] = float(e)
+    return out
+
+
+def derive(res) -> Derived:
+    """``summary["discretisation_error"]`` (with ``mesh.error_estimate``; default on).
+
+    Also the cell array ``error_energy_density`` (eta_e^2 / V_e, MPa) in ``fields.vtu``.
+    """
+    if not getattr(res.case.mesh, "error_estimate", True):
+        return Derived()
+    t0 = time.perf_counter()
+    en = energy_norm(res)
+    summary = estimate(res)
+    density = np.divide(en["elements"], en["volume"], out=np.zeros_like(en["volume"]),
+                        where=en["volume"] > 0)
+    summary["energy_norm"] = {
+        "relative": en["relative"],
+        "definition": "sqrt(sum eta_e^2 / (sum ||sigma_h||^2 + sum eta_e^2)), eta_e the "
+                      "energy norm of sigma* - sigma_h in element e, sigma* recovered by "
+                      "superconvergent patch recovery per region (Zienkiewicz & Zhu 1987, "
+                      "1992); it includes the singular edges and corners",
+        "seconds": en["seconds"]}
+    summary["seconds"] = time.perf_counter() - t0
+    cell = {}
+    if density.size == res.mesh.nelems:
+        cell["error_energy_density"] = density
+    return Derived(summary={"discretisation_error": summary}, cell_data=cell)
