@@ -14,8 +14,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from mesastrain.fem.fields import reference_coordinates
+from mesastrain.fem.fields import evaluate_at_reference, reference_coordinates
 from mesastrain.fem.recovery import recover_at
+from mesastrain.mesh.base import ModelMesh
 from mesastrain.model.symmetry import reflect_points, reflect_tensors
 
 __all__ = [
@@ -154,10 +155,19 @@ def stress_sampler(res) -> StressSampler:
                                 res.cell_eigenstrain)
         return sig
 
+    # the default evaluation of a 3-D mesh needs no point location at reference points
+    direct = dim == 3 and type(mm).evaluate is ModelMesh.evaluate
+
     def sample(el, Xref):                                    # Xref (dim, n, nq)
         x = np.moveaxis(mapping.F(Xref, tind=el), 0, -1)     # (n, nq, dim)
         nq = x.shape[1]
-        sig = stress(np.repeat(el, nq), to3(x).reshape(-1, 3))
+        e = np.repeat(el, nq)
+        if direct:
+            _, sig, _ = evaluate_at_reference(disc, res.u, e, Xref.reshape(dim, -1), mm.region,
+                                              res.stiffness, res.eigenstrain,
+                                              res.cell_eigenstrain)
+        else:
+            sig = stress(e, to3(x).reshape(-1, 3))
         return x, sig.reshape(len(el), nq, 9)
 
     return StressSampler(m, kind, vref, mapping, cols, stress, sample)

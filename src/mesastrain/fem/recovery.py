@@ -106,10 +106,12 @@ def _fit(rows: np.ndarray, elems: np.ndarray, centre: np.ndarray, scale: np.ndar
     xi = (xs.reshape(-1, xs.shape[-1])[s] - centre[k]) / scale[k, None]
     P = _monomials(xi, degree)                                   # (npairs, m)
     m = P.shape[1]
-    A = np.zeros((npatch, m, m))
-    np.add.at(A, k, P[:, :, None] * P[:, None, :])
-    b = np.zeros((npatch, m, vals.shape[-1]))
-    np.add.at(b, k, P[:, :, None] * vals.reshape(-1, vals.shape[-1])[s][:, None, :])
+    c = vals.shape[-1]
+    G = sp.csr_matrix((np.ones(k.size), (k, np.arange(k.size))), shape=(npatch, k.size))
+    A = np.asarray(G @ (P[:, :, None] * P[:, None, :]).reshape(k.size, m * m))
+    A = A.reshape(npatch, m, m)
+    b = np.asarray(G @ (P[:, :, None] * vals.reshape(-1, c)[s][:, None, :]).reshape(k.size, m * c))
+    b = b.reshape(npatch, m, c)
     w = np.linalg.eigvalsh(A)
     ok = w[:, 0] > 1e-8 * np.maximum(w[:, -1], 1e-300)
     A[~ok] += np.eye(m)                                          # keep the batch solvable
