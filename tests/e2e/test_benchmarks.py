@@ -39,3 +39,11 @@ def test_time_to_accuracy_runs_tiny():
     out = run("time_to_accuracy.py", "--tiny")
     assert "reference" in out and "centre err" in out
     assert out.count("\n    1 ") == 1 and out.count("\n    2 ") == 1
+
+
+@pytest.mark.slow
+def test_discretisation_cost_runs_tiny():
+    out = run("discretisation_cost.py", "--tiny", timeout=300)
+    assert "extra %" in out and "eta %" in out
+    row = out.strip().splitlines()[-1].split()
+    assert int(row[0].replace(",", "")) > 0
