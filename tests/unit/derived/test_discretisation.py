@@ -84,7 +84,13 @@ def test_richardson_bar_from_the_coarse_solve(small_mesa_result):
             r = (discretisation._local_size(coarse, pt, 3)
                  / discretisation._local_size(res, pt, 3))[0]
             assert 1.5 < r < 3.0
-            assert de[f.name]["error"] == pytest.approx(abs(f.value - f2h[f.name]) / (r ** p - 1))
+            own = abs(f.value - f2h[f.name]) / (r ** p - 1)
+            if f.kind in ("raman", "band"):
+                assert de[f.name]["error"] == pytest.approx(own)
+            else:       # stress components at a point share the largest bar
+                assert de[f.name]["error"] >= own * (1 - 1e-12)
+                same = [g for g in headline_figures(res) if g.at == f.at and g.kind == f.kind]
+                assert len({de[g.name]["error"] for g in same}) == 1
             checked += 1
     assert checked >= 6
 

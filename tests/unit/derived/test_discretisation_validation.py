@@ -1,0 +1,73 @@
+"""Effectivity of the discretisation-error bars: estimate / error against a refined solve (slow).
+
+For small cases of each mesh kind the run's bars (derived.discretisation.estimate) are
+compared with the actual error |f_h - f_ref|, f_ref from a solve with every element size
+divided by 3 (the reference keeps an error of its own, about 1/3 (order 1) or 1/9 (order 2)
+of f_h's). Single-level Richardson extrapolation is a rough tool for individual figures on
+coarse meshes (measured per figure: 0.1 to 50, benchmarks/discretisation_validation.py and
+README.md); what is checked is the bulk: the median effectivity per case lies in
+[0.3, 5] (measured 0.9 to 1.9 for the mesa and the stripe), and at most one figure in four has
+a bar below a fifth of its error (the dangerous side). The bars also shrink when the mesh is
+refined. The bow (its own plate model) is checked in test_discretisation.py.
+"""
+
+import dataclasses
+import tomllib
+
+import numpy as np
+import pytest
+
+from mesastrain.case.parse import parse_case
+from mesastrain.derived import device, readouts
+from mesastrain.derived.discretisation import estimate
+from mesastrain.derived.headline import headline_figures
+from mesastrain.run.pipeline import run_case
+from small_cases import sige_on_si
+
+pytestmark = pytest.mark.slow
+
+PROBE = '[[probe]]\nname = "centre"\nat = [0, 0, 10]\n'
+CASES = {
+    "mesa hex1": sige_on_si("mesa", 'shape = "rectangle"\nwidth = "200 nm"\nlength = "300 nm"',
+                            "order = 1\nsize = 40\nedge_size = 12", extra=PROBE),
+    "stripe quad2": sige_on_si("stripe", 'shape = "stripe"\nwidth = "200 nm"',
+                               "order = 2\nsize = 40\nedge_size = 12", extra=PROBE),
+}
+PROVIDERS = (device.derive, readouts.derive)
+
+
+def solve(text, refine, providers=PROVIDERS):
+    case = parse_case(tomllib.loads(text))
+    case = dataclasses.replace(case, mesh=dataclasses.replace(case.mesh, refine=refine,
+                                                              error_estimate=False))
+    return run_case(case, providers=providers, max_memory_gb=float("inf"))
+
+
+@pytest.mark.parametrize("name", list(CASES))
+def test_effectivity_against_a_solve_refined_three_times(name):
+    res = solve(CASES[name], 1.0)
+    est = estimate(res)["figures"]
+    ref = {f.name: f.value for f in headline_figures(solve(CASES[name], 3.0))}
+    eff = []
+    for f in headline_figures(res):
+        if f.singular or f.kind == "bow" or f.name not in ref:
+            continue
+        true = abs(f.value - ref[f.name])
+        if true < 1e-9 * max(abs(f.value), 1.0):
+            continue
+        eff.append(est[f.name]["error"] / true)
+    eff = np.array(eff)
+    assert eff.size >= 10
+    assert 0.3 <= np.median(eff) <= 5.0, eff
+    assert np.mean(eff < 0.2) <= 0.25, eff
+
+
+def test_bars_shrink_under_refinement():
+    """Stripe section, order 2: element sizes / 2 should divide the bars by about 4."""
+    text = CASES["stripe quad2"]
+    e1 = estimate(solve(text, 1.0))["figures"]
+    e2 = estimate(solve(text, 2.0))["figures"]
+    ratios = [e2[n]["error"] / e1[n]["error"] for n in e1
+              if "error" in e1[n] and n in e2 and e1[n]["error"] > 0 and "bow" not in n]
+    assert len(ratios) >= 10
+    assert np.median(ratios) < 0.6, ratios
