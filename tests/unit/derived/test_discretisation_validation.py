@@ -8,7 +8,7 @@ coarse meshes (measured per figure: 0.1 to 50, benchmarks/discretisation_validat
 README.md); what is checked is the bulk: the median effectivity per case lies in
 [0.3, 5] (measured 0.9 to 1.9 for the mesa and the stripe), and at most one figure in four has
 a bar below a fifth of its error (the dangerous side). The bars also shrink when the mesh is
-refined. The bow (its own plate model) is checked in test_discretisation.py.
+refined. The bow (its own plate model) is measured by the benchmark script.
 """
 
 import dataclasses
@@ -63,11 +63,19 @@ def test_effectivity_against_a_solve_refined_three_times(name):
 
 
 def test_bars_shrink_under_refinement():
-    """Stripe section, order 2: element sizes / 2 should divide the bars by about 4."""
+    """Stripe section, order 2, element sizes / 2 (refine 2 -> 4): the bars of the stress and
+    length figures fall by about 2^2 (measured 0.20-0.21 for the centre, probe and relaxation
+    length), those of the stand-off values more slowly (0.2-0.6: the nearby singular edge
+    lowers the rate). On the coarsest meshes (refine 1 -> 2) they did not yet fall
+    reliably (median 0.76): the single-level extrapolation wants the asymptotic range."""
     text = CASES["stripe quad2"]
-    e1 = estimate(solve(text, 1.0))["figures"]
-    e2 = estimate(solve(text, 2.0))["figures"]
-    ratios = [e2[n]["error"] / e1[n]["error"] for n in e1
-              if "error" in e1[n] and n in e2 and e1[n]["error"] > 0 and "bow" not in n]
+    e1 = estimate(solve(text, 2.0))["figures"]
+    e2 = estimate(solve(text, 4.0))["figures"]
+    kinds = {f.name: f.kind for f in headline_figures(solve(text, 2.0))}
+    ratios = {n: e2[n]["error"] / e1[n]["error"] for n in e1
+              if "error" in e1[n] and n in e2
+              and kinds.get(n) in ("centre", "probe", "relaxation", "standoff")}
     assert len(ratios) >= 10
-    assert np.median(ratios) < 0.6, ratios
+    assert max(ratios.values()) < 0.7, ratios
+    smooth = [r for n, r in ratios.items() if kinds[n] != "standoff"]
+    assert max(smooth) < 0.35, ratios
