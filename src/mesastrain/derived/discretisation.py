@@ -217,8 +217,9 @@ def energy_norm(res, closed_form: bool = True, use_mirrors: bool = True) -> dict
             dw = np.abs(sm.mapping.detDF(Xr, tind=el)) * W[None, :]      # (n, nq)
         e_q = np.repeat(el, nq)
         X_q = np.tile(X, (1, el.size))                                   # (dim, n*nq)
+        xq = np.moveaxis(sm.mapping.F(Xr, tind=el), 0, -1).reshape(-1, X.shape[0])
         rec, _ = recover_at(m.p, m.t[:len(sm.vertex_ref)], region, e_q, X_q, sm.kind,
-                            res.order, sm.vertex_ref, sm.sample)
+                            res.order, sm.vertex_ref, sm.sample, coords=xq)
         s6 = _voigt(sig.reshape(-1, 3, 3))
         d6 = _voigt(rec.reshape(-1, 3, 3)) - s6
         Sq = S[region[e_q]]

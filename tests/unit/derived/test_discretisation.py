@@ -135,3 +135,21 @@ def test_switch_off_leaves_no_entry():
     assert "discretisation_error" not in s
     assert all("discretisation_error" not in r for r in s["headline"])
     assert headline.derive(res).summary["headline"]
+
+
+def test_mirrored_model_integrates_the_solved_part_only():
+    """A quarter model (the demo mesa): the energy norm from the solved part, copied to the
+    images, equals the one integrated over the whole unfolded body."""
+    from pathlib import Path
+
+    from mesastrain.case.parse import load_case
+
+    case = load_case(Path(__file__).resolve().parents[3] / "cases" / "sige_stressor_mesa.toml")
+    case = dataclasses.replace(case, mesh=dataclasses.replace(case.mesh, refine=0.3), probes=())
+    res = run_case(case)
+    assert getattr(res.disc, "elem_map", None) is not None       # it was mirrored
+    a = discretisation.energy_norm(res)
+    b = discretisation.energy_norm(res, use_mirrors=False)
+    assert a["relative"] == pytest.approx(b["relative"], rel=1e-10)
+    np.testing.assert_allclose(a["elements"], b["elements"], rtol=1e-8,
+                               atol=1e-12 * b["elements"].max())
