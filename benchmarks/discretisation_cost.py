@@ -16,7 +16,7 @@ solved       unknowns of the solved (quarter) model; whole = after unfolding
 plain        the plain run
 energy       the recovery-based energy norm (solved part of a mirrored model only)
 coarse       the extra solve with element sizes x2 (mesh, assembly, solve, readouts)
-bow          the wafer-bow plate model with 1.5x more elements across
+bow          the wafer-bow plate model with half the elements through the substrate
 extra %      (energy + coarse + bow) / plain
 """
 

@@ -11,7 +11,7 @@ import numpy as np
 import pytest
 
 from mesastrain.case.parse import parse_case
-from mesastrain.derived import PROVIDERS, discretisation, headline
+from mesastrain.derived import PROVIDERS, discretisation, headline, readouts
 from mesastrain.derived.headline import headline_figures, merged_summary
 from mesastrain.run.pipeline import run_case
 from small_cases import sige_on_si
@@ -67,10 +67,24 @@ def test_standoff_bar_is_never_below_the_recovery_difference(small_mesa_result):
         assert s["discretisation_error"]["figures"][name]["error"] >= r
 
 
+def test_coarse_readouts_agree_with_the_full_provider(small_mesa_result):
+    """The light readouts of the coarse solve give the headline figures readouts.derive gives."""
+    res = small_mesa_result
+    light = dataclasses.replace(res, derived=[discretisation.figure_readouts(res)])
+    full = dataclasses.replace(res, derived=[readouts.derive(res)])
+    a = {f.name: f for f in headline_figures(light)}
+    b = {f.name: f for f in headline_figures(full)}
+    assert set(a) == {n for n, f in b.items() if f.kind in ("centre", "relaxation", "standoff")
+                      } | {n for n, f in b.items() if f.kind == "probe"}
+    for n, f in a.items():
+        assert f.value == b[n].value and f.at == b[n].at, n
+
+
 def test_richardson_bar_from_the_coarse_solve(small_mesa_result):
     """The bar of a centre stress is |f_h - f_2h| / (2^p - 1), f_2h from the coarsened case."""
     res = small_mesa_result
-    coarse = run_case(discretisation.coarse_case(res.case), providers=PROVIDERS[:2])
+    coarse = run_case(discretisation.coarse_case(res.case),
+                      providers=discretisation.COARSE_PROVIDERS)
     assert coarse.case.mesh.refine == pytest.approx(0.5)
     f2h = {f.name: f.value for f in headline_figures(coarse)}
     de = merged_summary(res)["discretisation_error"]["figures"]
