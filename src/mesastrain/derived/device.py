@@ -101,6 +101,7 @@ __all__ = [
     "derive",
     "evaluate",
     "plan_of",
+    "probe_readouts",
     "valley_names",
 ]
 
@@ -372,3 +373,18 @@ def derive(res):
     return Derived(summary=summary, probe_entries=probe_entries, cell_data=cell_data,
                    warnings=_warnings(plan, values, region), files=files,
                    section_maps=section_maps(case, plan))
+
+
+def probe_readouts(res):
+    """Only the per-probe device entries of :func:`derive` (Raman and band-edge shifts, ...).
+
+    What a second solve needs for the probes' headline figures (see
+    :mod:`mesastrain.derived.discretisation`), without the cell fields and maps.
+    """
+    plan = plan_of(res.case, res.layers)
+    if not plan.any or not res.probes:
+        return Derived()
+    pts = np.array([p["strain"] for p in res.probes])
+    sig = np.array([p["stress"] for p in res.probes])
+    reg = np.array([p["layer"] for p in res.probes])
+    return Derived(probe_entries=_probe_entries(plan, evaluate(plan, reg, pts, sig), res.probes))

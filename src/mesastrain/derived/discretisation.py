@@ -122,7 +122,7 @@ def figure_readouts(res) -> Derived:
 
 
 #: The providers the coarse solve runs: those whose summaries the headline figures read.
-COARSE_PROVIDERS = (device.derive, figure_readouts)
+COARSE_PROVIDERS = (device.probe_readouts, figure_readouts)
 
 METHOD = ("energy norm: superconvergent patch recovery, Zienkiewicz & Zhu 1987/1992; "
           "per figure: one extra solve with element sizes x2 and one-level Richardson "

@@ -11,7 +11,7 @@ import numpy as np
 import pytest
 
 from mesastrain.case.parse import parse_case
-from mesastrain.derived import PROVIDERS, discretisation, headline, readouts
+from mesastrain.derived import PROVIDERS, device, discretisation, headline, readouts
 from mesastrain.derived.headline import headline_figures, merged_summary
 from mesastrain.run.pipeline import run_case
 from small_cases import sige_on_si
@@ -70,12 +70,14 @@ def test_standoff_bar_is_never_below_the_recovery_difference(small_mesa_result):
 def test_coarse_readouts_agree_with_the_full_provider(small_mesa_result):
     """The light readouts of the coarse solve give the headline figures readouts.derive gives."""
     res = small_mesa_result
-    light = dataclasses.replace(res, derived=[discretisation.figure_readouts(res)])
-    full = dataclasses.replace(res, derived=[readouts.derive(res)])
+    light = dataclasses.replace(res, derived=[discretisation.figure_readouts(res),
+                                              device.probe_readouts(res)])
+    full = dataclasses.replace(res, derived=[readouts.derive(res), device.derive(res)])
     a = {f.name: f for f in headline_figures(light)}
     b = {f.name: f for f in headline_figures(full)}
-    assert set(a) == {n for n, f in b.items() if f.kind in ("centre", "relaxation", "standoff")
-                      } | {n for n, f in b.items() if f.kind == "probe"}
+    assert set(a) == {n for n, f in b.items()
+                      if f.kind in ("centre", "relaxation", "standoff", "probe", "raman", "band")}
+    assert {"raman", "band"} <= {f.kind for f in a.values()}
     for n, f in a.items():
         assert f.value == b[n].value and f.at == b[n].at, n
 
