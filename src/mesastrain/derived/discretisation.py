@@ -26,11 +26,15 @@ Two estimates, both a-posteriori (from the run itself, no reference solution):
    The case is solved again with every element size multiplied by
    :data:`COARSENING` = r (``mesh.refine`` divided by r: about 1/r^3 of the
    unknowns, 1/r^2 for a stripe section) and the headline figures are read
-   from it the same way. For a figure f converging as C h^p,
+   from it the same way (:data:`COARSE_PROVIDERS`: only what the figures read).
+   For a figure f converging as C h^p,
 
        f - f_h ~ (f_h - f_H) / (r^p - 1),
 
-   with p the *nominal* rate of the element order k (:func:`nominal_rate`):
+   with r the element-size ratio actually achieved at the figure's point (h_H /
+   h_h of the elements holding it; an unstructured mesher need not coarsen a
+   thin layer by r; Celik et al., J. Fluids Eng. 130, 078001 (2008)) and p the
+   *nominal* rate of the element order k (:func:`nominal_rate`):
    p = k for point stresses and everything linear in them (centre and probe
    stresses, von Mises, Raman and band-gap shifts, the stand-off values and the
    relaxation length read from stress profiles). A dual-weighted-residual
@@ -49,10 +53,11 @@ there is therefore the larger of the extrapolation and the recovery
 difference |f(sigma*) - f(sigma_h)| the readouts already give
 (``error_estimate``). The stress components at one point (centre, probe) share
 one error tensor: each gets the largest of their bars, since one component's
-change between the two meshes can vanish by accident. Singular figures (peaks at sharp edges) get
-``{"singular": true}`` and no bar. The effectivity of these bars (estimate /
-error against a solve refined 3x) is measured in
-``tests/unit/derived/test_discretisation_validation.py`` and README.md.
+change between the two meshes can vanish by accident. Singular figures (peaks
+at sharp edges) get ``{"singular": true}`` and no bar. The effectivity of these bars (estimate /
+error against a solve refined 3x) is measured by
+``benchmarks/discretisation_validation.py`` (table in README.md) and checked in
+``tests/unit/derived/test_discretisation_validation.py``.
 
 Units: each error in its figure's unit.
 """
@@ -75,13 +80,15 @@ from mesastrain.derived.corners import default_standoff, edge_features, standoff
 from mesastrain.derived.headline import headline_figures, merged_summary
 from mesastrain.derived.relaxation import edge_relaxation
 from mesastrain.derived.sampling import etch_floor, locate, sample_inside, stress_sampler
+from mesastrain.fem.fields import elastic_state
 from mesastrain.fem.recovery import recover_at
 from mesastrain.mesh.planning import refinement_of
 from mesastrain.physics.thinfilm import bow_height
 from mesastrain.run.pipeline import run_case
 from mesastrain.run.result import Derived
 
-__all__ = ["COARSENING", "coarse_case", "derive", "energy_norm", "estimate", "nominal_rate"]
+__all__ = ["COARSENING", "COARSE_PROVIDERS", "coarse_case", "derive", "energy_norm", "estimate",
+           "figure_readouts", "nominal_rate"]
 
 #: Element sizes of the extra solve are multiplied by this.
 COARSENING = 2.0
@@ -93,6 +100,7 @@ MIN_RATIO = 1.1
 #: The wafer-bow plate model is small and independent of the case's mesh: its bar comes
 #: from one solve with this many times fewer elements through the substrate.
 BOW_COARSENING = 2
+
 
 def figure_readouts(res) -> Derived:
     """The part of :func:`mesastrain.derived.readouts.derive` the headline figures read.
@@ -181,8 +189,6 @@ def _brick_rule(disc):
 
 def _brick_stress(res, el: np.ndarray) -> np.ndarray:
     """Finite-element stress (n, nq, 9), MPa, at the Gauss points of brick elements."""
-    from mesastrain.fem.fields import elastic_state
-
     disc = res.disc
     g = disc.gradients(el)                                               # (n, nq, a, 3)
     ue = res.u.reshape(-1, 3)[disc.element_dofs[:, el].T]                 # (n, a, 3)
