@@ -80,6 +80,7 @@ from mesastrain.derived.corners import default_standoff, edge_features, standoff
 from mesastrain.derived.headline import headline_figures, merged_summary
 from mesastrain.derived.relaxation import edge_relaxation
 from mesastrain.derived.sampling import etch_floor, locate, sample_inside, stress_sampler
+from mesastrain.errors import MesastrainError
 from mesastrain.fem.fields import elastic_state
 from mesastrain.fem.recovery import recover_at
 from mesastrain.mesh.planning import refinement_of
@@ -341,7 +342,8 @@ def estimate(res, ratio: float = COARSENING) -> dict:
         ``method``, ``energy_norm`` (``relative`` and how it was obtained),
         ``coarse_solve`` (unknowns, elements, seconds, ratio) and ``figures``:
         name -> ``{"error", "relative", "basis", "rate"}`` for every non-singular
-        headline figure, ``{"singular": true}`` for singular ones.
+        headline figure, ``{"singular": true}`` for singular ones; the names of
+        figures the coarser solve did not give under ``not_on_coarse_mesh``.
     """
     figs = headline_figures(res)
     coarse, ratios, info = _coarse_values(res, ratio)
@@ -350,7 +352,7 @@ def estimate(res, ratio: float = COARSENING) -> dict:
     bows = _bow_values(res) if any(f.kind == "bow" for f in figs) else None
     info["bow_seconds"] = time.perf_counter() - t
     recovery = _standoff_recovery_errors(res)
-    out = {}
+    out, missing = {}, []
     for f in figs:
         if f.singular:
             out[f.name] = {"singular": True}
@@ -366,6 +368,7 @@ def estimate(res, ratio: float = COARSENING) -> dict:
         else:
             crude = coarse.get(f.name)
             if crude is None:
+                missing.append(f.name)
                 continue
             r = max(ratios.get(f.name, info["effective_ratio"]), MIN_RATIO)
             basis = (f"solve with coarser elements (size ratio {r:.2g} there), Richardson, "
@@ -379,7 +382,10 @@ def estimate(res, ratio: float = COARSENING) -> dict:
         out[f.name] = {"error": float(err), "relative": float(err / abs(f.value))
                        if f.value else None, "basis": basis, "rate": p}
     _share_within_tensors(figs, out)
-    return {"method": METHOD, "coarse_solve": info, "figures": out}
+    out_ = {"method": METHOD, "coarse_solve": info, "figures": out}
+    if missing:       # e.g. a relaxation length the coarser mesh does not resolve
+        out_["not_on_coarse_mesh"] = missing
+    return out_
 
 
 #: Figure kinds whose figures at one point are components of one stress tensor.
@@ -434,7 +440,13 @@ def derive(res) -> Derived:
         return Derived()
     t0 = time.perf_counter()
     en = energy_norm(res)
-    summary = estimate(res)
+    warnings = []
+    try:
+        summary = estimate(res)
+    except (MesastrainError, np.linalg.LinAlgError) as exc:   # the run itself stands
+        summary = {"method": METHOD, "figures": {}, "coarse_solve": {"failed": str(exc)}}
+        warnings.append(f"discretisation error: the coarser solve failed ({exc}); only the "
+                        f"energy norm is given")
     density = np.divide(en["elements"], en["volume"], out=np.zeros_like(en["volume"]),
                         where=en["volume"] > 0)
     summary["energy_norm"] = {
@@ -448,4 +460,4 @@ def derive(res) -> Derived:
     cell = {}
     if density.size == res.mesh.nelems:
         cell["error_energy_density"] = density
-    return Derived(summary={"discretisation_error": summary}, cell_data=cell)
+    return Derived(summary={"discretisation_error": summary}, cell_data=cell, warnings=warnings)

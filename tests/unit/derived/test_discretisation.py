@@ -169,3 +169,16 @@ def test_mirrored_model_integrates_the_solved_part_only():
     assert a["relative"] == pytest.approx(b["relative"], rel=1e-10)
     np.testing.assert_allclose(a["elements"], b["elements"], rtol=1e-8,
                                atol=1e-12 * b["elements"].max())
+
+
+def test_a_failed_coarse_solve_leaves_the_run_standing(small_mesa_result, monkeypatch):
+    from mesastrain.errors import ResourceError
+
+    def refuse(*args, **kwargs):
+        raise ResourceError("no memory for the coarse solve")
+
+    monkeypatch.setattr(discretisation, "_coarse_values", refuse)
+    d = discretisation.derive(small_mesa_result)
+    de = d.summary["discretisation_error"]
+    assert de["figures"] == {} and 0 < de["energy_norm"]["relative"] < 1
+    assert len(d.warnings) == 1 and "coarser solve failed" in d.warnings[0]
