@@ -167,8 +167,9 @@ def coarse_case(case, ratio: float = COARSENING):
 # --------------------------------------------------------------------------
 _REFDOM = {"hex": "RefHex", "quad": "RefQuad", "tet": "RefTet", "tri": "RefTri"}
 
-#: Elements per batch of the energy-norm integration (bounds the temporaries).
-CHUNK = 20000
+#: Elements per batch of the energy-norm integration (bounds the temporaries, about 1 kB
+#: per element; each batch also builds the vertex-element incidence of the whole mesh).
+CHUNK = 100000
 
 
 def _voigt(s: np.ndarray) -> np.ndarray:
@@ -258,9 +259,14 @@ def energy_norm(res, closed_form: bool = True, use_mirrors: bool = True) -> dict
                             res.order, sm.vertex_ref, sm.sample, coords=xq)
         s6 = _voigt(sig.reshape(-1, 3, 3))
         d6 = _voigt(rec.reshape(-1, 3, 3)) - s6
-        Sq = S[region[e_q]]
-        err[el] = (np.einsum("qi,qij,qj->q", d6, Sq, d6).reshape(el.size, nq) * dw).sum(axis=1)
-        nrm[el] = (np.einsum("qi,qij,qj->q", s6, Sq, s6).reshape(el.size, nq) * dw).sum(axis=1)
+        ed, en = np.empty(len(e_q)), np.empty(len(e_q))
+        rq = region[e_q]
+        for r in np.unique(rq):                  # sigma : S : sigma, one compliance per region
+            m = rq == r
+            ed[m] = np.einsum("qi,qi->q", d6[m] @ S[r], d6[m])
+            en[m] = np.einsum("qi,qi->q", s6[m] @ S[r], s6[m])
+        err[el] = (ed.reshape(el.size, nq) * dw).sum(axis=1)
+        nrm[el] = (en.reshape(el.size, nq) * dw).sum(axis=1)
         vol[el] = dw.sum(axis=1)
     if n_own < nel:
         err, nrm, vol = err[emap], nrm[emap], vol[emap]
