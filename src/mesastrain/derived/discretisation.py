@@ -262,9 +262,9 @@ def energy_norm(res, closed_form: bool = True, use_mirrors: bool = True) -> dict
         ed, en = np.empty(len(e_q)), np.empty(len(e_q))
         rq = region[e_q]
         for r in np.unique(rq):                  # sigma : S : sigma, one compliance per region
-            m = rq == r
-            ed[m] = np.einsum("qi,qi->q", d6[m] @ S[r], d6[m])
-            en[m] = np.einsum("qi,qi->q", s6[m] @ S[r], s6[m])
+            sel = rq == r
+            ed[sel] = np.einsum("qi,qi->q", d6[sel] @ S[r], d6[sel])
+            en[sel] = np.einsum("qi,qi->q", s6[sel] @ S[r], s6[sel])
         err[el] = (ed.reshape(el.size, nq) * dw).sum(axis=1)
         nrm[el] = (en.reshape(el.size, nq) * dw).sum(axis=1)
         vol[el] = dw.sum(axis=1)
