@@ -52,3 +52,8 @@ def test_uncertainty_cost_runs_tiny(tmp_path):
     assert row["default"]["groups"] == ["Si C_ij", "SiGe C_ij", "SiGe lattice law",
                                         "Raman PDP set", "deformation potentials"]
     assert row["ratio"] > 0 and row["default"]["solves_s"] > 0
+def test_discretisation_cost_runs_tiny():
+    out = run("discretisation_cost.py", "--tiny", timeout=300)
+    assert "extra %" in out and "eta %" in out
+    row = out.strip().splitlines()[-1].split()
+    assert int(row[0].replace(",", "")) > 0

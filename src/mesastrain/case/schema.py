@@ -365,6 +365,9 @@ MESH = Table("mesh", "mesh", "Mesh requests.", (
         "Divides every element size (default 1)."),
     Key("convergence", BOOL, "Repeat the solve on two refinements and report how the "
                              "headline figures move."),
+    Key("error_estimate", BOOL, "Estimate the discretisation error of every headline "
+                                "figure (recovery-based energy norm and one extra solve on "
+                                "a mesh coarsened by 2).", default=True),
 ))
 
 _TOLERANCE = Kind(rd.tolerance, _number(exclusiveMinimum=0, maximum=1e-2))

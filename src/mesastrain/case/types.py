@@ -298,6 +298,9 @@ class MeshSettings:
     convergence : bool or None
         Repeat the solve on two refinements and report how the headline
         figures move (as ``mesastrain run --convergence``).
+    error_estimate : bool
+        Estimate the discretisation error of every non-singular headline figure
+        (:mod:`mesastrain.derived.discretisation`); default true.
     """
 
     size: float | None
@@ -307,6 +310,7 @@ class MeshSettings:
     substrate_depth: float | None
     refine: float | None = MESH.default("refine")
     convergence: bool | None = MESH.default("convergence")
+    error_estimate: bool = MESH.default("error_estimate")
 
 
 @dataclass(frozen=True)

@@ -6,7 +6,17 @@ command line, the sweep workers and the convergence study. Add a provider by wri
 its module here and appending its ``derive`` to :data:`PROVIDERS`.
 """
 
-from mesastrain.derived import bow, cuts, device, headline, misfit, readouts, scatter, tilt
+from mesastrain.derived import (
+    bow,
+    cuts,
+    device,
+    discretisation,
+    headline,
+    misfit,
+    readouts,
+    scatter,
+    tilt,
+)
 from mesastrain.run.pipeline import run_case
 
 #: The standard derived-quantity providers, in run order (the order of the entries in
@@ -19,6 +29,7 @@ PROVIDERS = (
     misfit.derive,      # dislocation contribution, overlay, relaxation
     tilt.derive,        # layer tilt against the substrate lattice (arcsec)
     scatter.derive,     # material-data scatter of the headline figures (before headline)
+    discretisation.derive,  # discretisation error of each headline figure (before headline)
     headline.derive,    # the headline figures with their error contributions (last)
 )
 

@@ -106,6 +106,7 @@ __all__ = [
     "derive",
     "evaluate",
     "plan_of",
+    "probe_readouts",
     "valley_names",
 ]
 
@@ -377,15 +378,30 @@ def derive(res):
         "piezo_linear_limit": {"percent": PIEZO_WARN_PERCENT, "reason": LINEAR_LIMIT_REASON},
         "sources": _sources(plan),
     }}
-    probe_entries = {}
-    if res.probes:
-        pts = np.array([p["strain"] for p in res.probes])
-        sig = np.array([p["stress"] for p in res.probes])
-        index = {lm.name: lm.index for lm in res.layers}
-        reg = np.array([index[p["region"]] for p in res.probes])
-        probe_entries = _probe_entries(plan, evaluate(plan, reg, pts, sig), res.probes)
+    probe_entries = _probe_values(res, plan) if res.probes else {}
     files = {f"cut_{safe_name(cut.name)}_device.csv": cut_writer(res, plan, cut)
              for cut in getattr(case, "cuts", ())}
     return Derived(summary=summary, probe_entries=probe_entries, cell_data=cell_data,
                    warnings=_warnings(plan, values, region, names), files=files,
                    section_maps=section_maps(case, plan))
+
+
+def probe_readouts(res):
+    """Only the per-probe device entries of :func:`derive` (Raman and band-edge shifts, ...).
+
+    What a second solve needs for the probes' headline figures (see
+    :mod:`mesastrain.derived.discretisation`), without the cell fields and maps.
+    """
+    plan = plan_of(res.case, res.layers)
+    if not plan.any or not res.probes:
+        return Derived()
+    return Derived(probe_entries=_probe_values(res, plan))
+
+
+def _probe_values(res, plan: Plan) -> dict:
+    """Every device readout at the probes (``probe_entries`` of :class:`Derived`)."""
+    pts = np.array([p["strain"] for p in res.probes])
+    sig = np.array([p["stress"] for p in res.probes])
+    index = {lm.name: lm.index for lm in res.layers}
+    reg = np.array([index[p["region"]] for p in res.probes])
+    return _probe_entries(plan, evaluate(plan, reg, pts, sig), res.probes)

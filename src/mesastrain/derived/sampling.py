@@ -10,10 +10,13 @@ Units: lengths nm, stress MPa, sample frame.
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 import numpy as np
 
-from mesastrain.fem.fields import reference_coordinates
+from mesastrain.fem.fields import evaluate_at_reference, reference_coordinates
 from mesastrain.fem.recovery import recover_at
+from mesastrain.mesh.base import ModelMesh
 from mesastrain.model.symmetry import reflect_points, reflect_tensors
 
 __all__ = [
@@ -30,6 +33,8 @@ __all__ = [
     "recovered_stress",
     "sample_inside",
     "sidewall_distance",
+    "stress_sampler",
+    "StressSampler",
 ]
 
 
@@ -97,6 +102,77 @@ def _element_kind(mesh) -> str:
     raise TypeError(f"no recovery for elements of {type(mesh).__name__}")
 
 
+@dataclass(frozen=True)
+class StressSampler:
+    """The finite-element stress of a result at reference points of its elements.
+
+    Attributes
+    ----------
+    mesh : skfem mesh
+        The mesh the discretisation lives on (2-D for a cross-section).
+    kind : str
+        ``'hex'``, ``'quad'``, ``'tet'`` or ``'tri'``.
+    vertex_ref : ndarray (nv, dim)
+        Reference coordinates of the element vertices, in connectivity order.
+    mapping : skfem mapping
+    cols : list of int
+        The sample axes of the mesh coordinates ([0, 1, 2], or [0, 2] for a section).
+    stress : callable (elements (n,), points (n, 3) nm) -> (n, 3, 3) MPa
+    sample : callable (elements (n,), Xref (dim, n, nq)) -> (x (n, nq, dim), values (n, nq, 9))
+        Physical coordinates and stress (MPa, 9 components) at reference points,
+        the form :func:`mesastrain.fem.recovery.recover_at` takes.
+    """
+
+    mesh: object
+    kind: str
+    vertex_ref: np.ndarray
+    mapping: object
+    cols: list
+    stress: object
+    sample: object
+
+
+def stress_sampler(res) -> StressSampler:
+    """A :class:`StressSampler` of a solved result (exact element stresses, MPa)."""
+    from skfem import ElementHex1, ElementQuad1, ElementTetP1, ElementTriP1
+
+    disc, mm = res.disc, res.mesh
+    m = disc.basis.mesh
+    dim = m.p.shape[0]
+    kind = _element_kind(m)
+    vref = {"hex": ElementHex1, "quad": ElementQuad1, "tet": ElementTetP1,
+            "tri": ElementTriP1}[kind]().doflocs
+    mapping = m.mapping()
+    cols = [0, 1, 2] if dim == 3 else [0, 2]
+
+    def to3(x):                                              # (..., dim) -> (..., 3)
+        if dim == 3:
+            return x
+        return np.stack([x[..., 0], np.zeros_like(x[..., 0]), x[..., 1]], axis=-1)
+
+    def stress(el, x3):
+        _, sig, _ = mm.evaluate(disc, res.u, el, x3, mm.region, res.stiffness, res.eigenstrain,
+                                res.cell_eigenstrain)
+        return sig
+
+    # the default evaluation of a 3-D mesh needs no point location at reference points
+    direct = dim == 3 and type(mm).evaluate is ModelMesh.evaluate
+
+    def sample(el, Xref):                                    # Xref (dim, n, nq)
+        x = np.moveaxis(mapping.F(Xref, tind=el), 0, -1)     # (n, nq, dim)
+        nq = x.shape[1]
+        e = np.repeat(el, nq)
+        if direct:
+            _, sig, _ = evaluate_at_reference(disc, res.u, e, Xref.reshape(dim, -1), mm.region,
+                                              res.stiffness, res.eigenstrain,
+                                              res.cell_eigenstrain)
+        else:
+            sig = stress(e, to3(x).reshape(-1, 3))
+        return x, sig.reshape(len(el), nq, 9)
+
+    return StressSampler(m, kind, vref, mapping, cols, stress, sample)
+
+
 def recovered_stress(res, points: np.ndarray, regions=None):
     """Stress at points from superconvergent patch recovery, one-sided per region.
 
@@ -125,8 +201,6 @@ def recovered_stress(res, points: np.ndarray, regions=None):
         Lowest patch polynomial degree used (below the element order where the
         patches near a corner had too few samples; -1 where not evaluated).
     """
-    from skfem import ElementHex1, ElementQuad1, ElementTetP1, ElementTriP1
-
     pts = np.atleast_2d(np.asarray(points, dtype=float))
     q, signs = reflect_points(pts, tuple(mirrors_of(res)))
     n = len(q)
@@ -137,31 +211,10 @@ def recovered_stress(res, points: np.ndarray, regions=None):
     ok = np.flatnonzero(elems >= 0)
     if ok.size == 0:
         return rec, fe, elems, deg
-    disc, mm = res.disc, res.mesh
-    m = disc.basis.mesh
-    dim = m.p.shape[0]
-    kind = _element_kind(m)
-    vref = {"hex": ElementHex1, "quad": ElementQuad1, "tet": ElementTetP1,
-            "tri": ElementTriP1}[kind]().doflocs
-    mapping = m.mapping()
-    cols = [0, 1, 2] if dim == 3 else [0, 2]
-
-    def to3(x):                                              # (..., dim) -> (..., 3)
-        if dim == 3:
-            return x
-        return np.stack([x[..., 0], np.zeros_like(x[..., 0]), x[..., 1]], axis=-1)
-
-    def stress(el, x3):
-        _, sig, _ = mm.evaluate(disc, res.u, el, x3, mm.region, res.stiffness, res.eigenstrain,
-                                res.cell_eigenstrain)
-        return sig
-
-    def sample(el, Xref):                                    # Xref (dim, n, nq)
-        x = np.moveaxis(mapping.F(Xref, tind=el), 0, -1)     # (n, nq, dim)
-        nq = x.shape[1]
-        sig = stress(np.repeat(el, nq), to3(x).reshape(-1, 3))
-        return x, sig.reshape(len(el), nq, 9)
-
+    sm = stress_sampler(res)
+    m, kind, vref, mapping, cols, stress, sample = (sm.mesh, sm.kind, sm.vertex_ref, sm.mapping,
+                                                    sm.cols, sm.stress, sm.sample)
+    mm = res.mesh
     e = elems[ok]
     X = reference_coordinates(mapping, q[ok][:, cols].T[:, :, None], e)[:, :, 0]
     r, d = recover_at(m.p, m.t[:len(vref)], mm.region, e, X, kind, res.order, vref, sample)

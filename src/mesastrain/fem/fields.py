@@ -112,9 +112,10 @@ def nodal_average_matrix(element_vertices: np.ndarray, volume: np.ndarray,
 def _stress_of(C: np.ndarray, region: np.ndarray, el: np.ndarray) -> np.ndarray:
     """sigma = C[region] : el, one contraction per region (GPa)."""
     sig = np.empty_like(el)
+    flat = el.reshape(-1, 9)
     for r in np.unique(region):
         m = region == r
-        sig[m] = np.einsum("ijkl,nkl->nij", C[r], el[m])
+        sig[m] = (flat[m] @ C[r].reshape(9, 9).T).reshape(-1, 3, 3)
     return sig
 
 
@@ -193,13 +194,27 @@ def evaluate_at_points(disc: Discretisation, u: np.ndarray, elements: np.ndarray
     displacement : ndarray (npts, 3)
         nm.
     """
+    mapping = disc.basis.mesh.mapping()
+    x = np.asarray(points, dtype=float).T[:, :, None]            # (3, npts, 1)
+    X = reference_coordinates(mapping, x, elements)               # (3, npts, 1)
+    return evaluate_at_reference(disc, u, elements, X[:, :, 0], region, stiffness, eigenstrain,
+                                 cell_eigenstrain)
+
+
+def evaluate_at_reference(disc: Discretisation, u: np.ndarray, elements: np.ndarray,
+                          X: np.ndarray, region: np.ndarray, stiffness: np.ndarray,
+                          eigenstrain: np.ndarray, cell_eigenstrain: np.ndarray | None = None
+                          ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """As :func:`evaluate_at_points`, at reference coordinates X (3, npts) of the elements.
+
+    No point location: the cheap form when the reference points are known
+    (quadrature and sampling points of a 3-D mesh).
+    """
     mesh = disc.basis.mesh
     elem = disc.basis.elem
     mapping = mesh.mapping()
-    x = np.asarray(points, dtype=float).T[:, :, None]            # (3, npts, 1)
-    X = reference_coordinates(mapping, x, elements)               # (3, npts, 1)
-    invDF = mapping.invDF(X, tind=elements)                       # (3,3,npts,1)
-    Xf = X[:, :, 0]
+    Xf = np.asarray(X, dtype=float)
+    invDF = mapping.invDF(Xf[:, :, None], tind=elements)          # (3,3,npts,1)
     U = u.reshape(-1, 3)
     ue = U[disc.element_dofs[:, elements].T]                      # (npts, a, 3)
     grad = np.zeros((len(elements), 3, 3))
@@ -243,7 +258,8 @@ def elastic_state(total_strain, elements, region, stiffness, eigenstrain,
     el = total_strain - np.asarray(eigenstrain)[region[elements]]
     if cell_eigenstrain is not None:
         el = el - cell_eigenstrain[elements]
-    sig = np.einsum("nijkl,nkl->nij", C[region[elements]], el) * GPA_TO_MPA
+    sig = _stress_of(C, region[elements], el)
+    sig *= GPA_TO_MPA
     return el, sig
 
 

@@ -106,10 +106,12 @@ def _fit(rows: np.ndarray, elems: np.ndarray, centre: np.ndarray, scale: np.ndar
     xi = (xs.reshape(-1, xs.shape[-1])[s] - centre[k]) / scale[k, None]
     P = _monomials(xi, degree)                                   # (npairs, m)
     m = P.shape[1]
-    A = np.zeros((npatch, m, m))
-    np.add.at(A, k, P[:, :, None] * P[:, None, :])
-    b = np.zeros((npatch, m, vals.shape[-1]))
-    np.add.at(b, k, P[:, :, None] * vals.reshape(-1, vals.shape[-1])[s][:, None, :])
+    c = vals.shape[-1]
+    G = sp.csr_matrix((np.ones(k.size), (k, np.arange(k.size))), shape=(npatch, k.size))
+    A = np.asarray(G @ (P[:, :, None] * P[:, None, :]).reshape(k.size, m * m))
+    A = A.reshape(npatch, m, m)
+    b = np.asarray(G @ (P[:, :, None] * vals.reshape(-1, c)[s][:, None, :]).reshape(k.size, m * c))
+    b = b.reshape(npatch, m, c)
     w = np.linalg.eigvalsh(A)
     ok = w[:, 0] > 1e-8 * np.maximum(w[:, -1], 1e-300)
     A[~ok] += np.eye(m)                                          # keep the batch solvable
@@ -117,7 +119,8 @@ def _fit(rows: np.ndarray, elems: np.ndarray, centre: np.ndarray, scale: np.ndar
 
 
 def recover_at(p: np.ndarray, t: np.ndarray, region: np.ndarray, elements: np.ndarray,
-               X: np.ndarray, kind: str, order: int, vertex_ref: np.ndarray, sample):
+               X: np.ndarray, kind: str, order: int, vertex_ref: np.ndarray, sample,
+               coords: np.ndarray | None = None):
     """Recovered field at points given by their element and reference coordinates.
 
     Parameters
@@ -141,6 +144,9 @@ def recover_at(p: np.ndarray, t: np.ndarray, region: np.ndarray, elements: np.nd
     sample : callable (elements (n,), Xref (dim, n, nq)) -> (x (n, nq, dim), values (n, nq, c))
         Physical coordinates and finite-element values of a field (e.g. the
         stress as 9 components) at reference points of elements.
+    coords : ndarray (npts, dim), optional
+        Physical coordinates of the query points, nm, when the caller has them
+        (otherwise ``sample`` is asked, which also evaluates the field there).
 
     Returns
     -------
@@ -157,12 +163,12 @@ def recover_at(p: np.ndarray, t: np.ndarray, region: np.ndarray, elements: np.nd
     nv, nel = t.shape
     nn = p.shape[1]
     dim = p.shape[0]
-    reg_q = region[elements]
-    # --- patches: one per (vertex, region) of the query elements
-    pv = t[:, elements].T                                            # (npts, nv)
-    key = pv.astype(np.int64) * (int(region.max()) + 1) + reg_q[:, None]
+    # --- patches: one per (vertex, region) of the query elements (keyed per element)
+    uel, e_inv = np.unique(elements, return_inverse=True)
+    pv = t[:, uel].T                                                 # (nuel, nv)
+    key = pv.astype(np.int64) * (int(region.max()) + 1) + region[uel][:, None]
     ukey, inv = np.unique(key.ravel(), return_inverse=True)
-    inv = inv.reshape(pv.shape)
+    inv = inv.reshape(pv.shape)[e_inv.ravel()]                       # (npts, nv)
     nreg = int(region.max()) + 1
     pvert, preg = ukey // nreg, ukey % nreg
     npatch = ukey.size
@@ -227,7 +233,10 @@ def recover_at(p: np.ndarray, t: np.ndarray, region: np.ndarray, elements: np.nd
         todo = todo[~ok]
     # --- blend the patch polynomials at the query points
     N = vertex_shape(kind, vertex_ref, X)                            # (npts, nv)
-    from_ref = sample(elements, np.asarray(X, dtype=float)[:, :, None])[0][:, 0, :]  # (npts, dim)
+    if coords is None:
+        from_ref = sample(elements, np.asarray(X, dtype=float)[:, :, None])[0][:, 0, :]
+    else:
+        from_ref = np.asarray(coords, dtype=float)                   # (npts, dim)
     out = np.zeros((len(elements), coef.shape[-1]))
     for a in range(nv):
         k = inv[:, a]

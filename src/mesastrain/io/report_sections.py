@@ -329,8 +329,10 @@ def section_headline(summary: dict, folder: Path) -> str | None:
                           "net shear force / &int;|&tau;|"], rows))
         out.append(f'<p class="note">{esc(ro["traction_definition"])}. Peaks sit at the '
                    f'sidewall, where the traction of a sharp edge is singular. A free feature '
-                   f'carries no net force across an interface, so the last two columns measure '
-                   f'the discretisation error.</p>')
+                   f'carries no net force across an interface; the last two columns are an '
+                   f'equilibrium check of the solve (on brick meshes they vanish whatever the '
+                   f'mesh), not an estimate of the discretisation error, which the run gives '
+                   f'per headline figure (summary.json, discretisation_error).</p>')
     return "\n".join(out)
 
 
