@@ -13,6 +13,7 @@ from __future__ import annotations
 import numpy as np
 
 from mesastrain.fem.fields import reference_coordinates
+from mesastrain.fem.mapping import fast_mapping
 from mesastrain.fem.recovery import recover_at
 from mesastrain.model.symmetry import reflect_points, reflect_tensors
 
@@ -143,7 +144,7 @@ def recovered_stress(res, points: np.ndarray, regions=None):
     kind = _element_kind(m)
     vref = {"hex": ElementHex1, "quad": ElementQuad1, "tet": ElementTetP1,
             "tri": ElementTriP1}[kind]().doflocs
-    mapping = m.mapping()
+    mapping = fast_mapping(m)
     cols = [0, 1, 2] if dim == 3 else [0, 2]
 
     def to3(x):                                              # (..., dim) -> (..., 3)
