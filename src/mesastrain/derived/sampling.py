@@ -183,10 +183,11 @@ def element_size_at(res, points: np.ndarray) -> np.ndarray:
     return out
 
 
-def cell_centres(res) -> np.ndarray:
-    """(nelems, 3) element centroids (mean of the vertices), nm."""
+def cell_centres(res, elements=None) -> np.ndarray:
+    """(nelems, 3) element centroids (mean of the vertices), nm; of ``elements`` if given."""
     m = res.mesh.mesh
-    return m.p[:, m.t].mean(axis=1).T
+    t = m.t if elements is None else m.t[:, elements]
+    return m.p[:, t].mean(axis=1).T
 
 
 def feature_bounds(res) -> np.ndarray:
@@ -286,7 +287,7 @@ def column_profile(res, d: np.ndarray, ext: float, z: float, side: int = 0):
     pts, el = pts[ok], el[ok]
     first = np.concatenate([[True], el[1:] != el[:-1]])
     el = el[first]
-    cen = cell_centres(res)[el]
+    cen = cell_centres(res, el)
     along = np.abs(cen[:, 0] * d[0]) + np.abs(cen[:, 1] * d[1])   # mirror-safe |coordinate|
     s = ext - along
     order = np.argsort(s)

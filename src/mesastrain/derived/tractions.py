@@ -105,9 +105,13 @@ def _facet_points(res, z: float):
     3-point rule exact for quadratics. Returns (points (n, 3), weights (n,)).
     """
     m = res.mesh.mesh
-    f = m.facets
-    pz = m.p[2, f]
     span = float(np.ptp(m.p[2])) or 1.0
+    # the faces of the elements with a vertex on the plane (not every face of the mesh)
+    touch = np.any(np.abs(m.p[2, m.t] - z) <= 1e-9 * span, axis=0)
+    if not np.any(touch):
+        return np.zeros((0, 3)), np.zeros(0)
+    f = type(m)(m.p, m.t[:, touch]).facets
+    pz = m.p[2, f]
     on = np.all(np.abs(pz - z) <= 1e-9 * span, axis=0)
     if not np.any(on):
         return np.zeros((0, 3)), np.zeros(0)
