@@ -231,6 +231,45 @@ class Hierarchy:
             tot += M.data.nbytes + M.indices.nbytes + M.indptr.nbytes
         return tot
 
+    def traffic(self) -> dict:
+        """Bytes one V-cycle moves through memory (a streaming model, for benchmarks).
+
+        Every pass over a matrix reads its values, column indices and row
+        pointers and the vector entries it touches once, and writes its
+        result once. Per level with s sweeps: the forward Gauss-Seidel sweep
+        (lower triangle), s - 1 further sweeps (upper product + lower sweep),
+        the residual (upper product), restriction and prolongation, and s
+        backward sweeps (lower product + upper sweep). The coarsest level's
+        direct solve is not counted (a few thousand unknowns).
+
+        Returns
+        -------
+        dict
+            ``bytes`` of one V-cycle, ``single_bytes`` of them in arrays of the
+            cycle's precision when that is single (else 0), ``levels`` a list
+            of bytes per level.
+        """
+        item = self.dtype.itemsize
+
+        def passes(M):
+            vec = (M.shape[0] + M.shape[1]) * item
+            return M.data.nbytes + M.indices.nbytes + M.indptr.nbytes + vec, M.data.nbytes + vec
+
+        total = single = 0
+        per_level = []
+        for lev in range(len(self.LD)):
+            s = self.sweeps[lev] if lev < len(self.sweeps) else 1
+            lo, lo_v = passes(self.LD[lev])
+            up, up_v = passes(self.DU[lev])
+            r, r_v = passes(self.R[lev])
+            pr, pr_v = passes(self.P[lev])
+            b = lo + (s - 1) * (up + lo) + up + r + pr + s * (lo + up)
+            v = lo_v + (s - 1) * (up_v + lo_v) + up_v + r_v + pr_v + s * (lo_v + up_v)
+            per_level.append(b)
+            total += b
+            single += v if item == 4 else 0
+        return {"bytes": total, "single_bytes": single, "levels": per_level}
+
     def _cycle(self, lev: int, b: np.ndarray) -> np.ndarray:
         from pyamg import amg_core
 
