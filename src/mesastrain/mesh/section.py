@@ -319,4 +319,4 @@ def estimate_section(case) -> Estimate:
     scalar = vertices if order == 1 else int(k2.sum())
     nloc = 4 if order == 1 else 9
     return estimate_from_counts(case, vertices, int(keep.sum()), scalar, nloc,
-                                18 if order == 1 else 45)
+                                18 if order == 1 else 45, dimension=2)

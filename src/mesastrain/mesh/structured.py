@@ -18,7 +18,13 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 
 from mesastrain.fem.constraints import Boundary
-from mesastrain.fem.cost import Estimate, count_unknowns, pattern_nonzeros, resources
+from mesastrain.fem.cost import (
+    Estimate,
+    count_unknowns,
+    output_seconds,
+    pattern_nonzeros,
+    resources,
+)
 from mesastrain.fem.discretisation import Discretisation, discretise
 from mesastrain.fem.solve import choose_method
 from mesastrain.mesh.base import ModelMesh
@@ -307,4 +313,5 @@ def estimate_structured(case) -> Estimate:
     method = choose_method(case.solver.method, n, case.solver.direct_limit)
     mem, secs = resources(n, nnz, nel, 8 if order == 1 else 27, order, method,
                           whole_unknowns=whole[2])
+    secs += output_seconds(whole[2], case.output.pictures and case.output.report)
     return Estimate(*whole, order, method, mem, secs, solved_unknowns=n)
