@@ -110,7 +110,7 @@ def _facet_points(res, z: float):
     touch = np.any(np.abs(m.p[2, m.t] - z) <= 1e-9 * span, axis=0)
     if not np.any(touch):
         return np.zeros((0, 3)), np.zeros(0)
-    f = type(m)(m.p, m.t[:, touch]).facets
+    f = type(m)(m.p, np.ascontiguousarray(m.t[:, touch])).facets
     pz = m.p[2, f]
     on = np.all(np.abs(pz - z) <= 1e-9 * span, axis=0)
     if not np.any(on):

@@ -49,9 +49,9 @@ class Estimate:
 #: the coarse levels ~8 and the transient Galerkin products), per unknown, and the base.
 BYTES_PER_NONZERO = 36.0
 BYTES_PER_UNKNOWN = 60.0
-BASE_BYTES = 1.0e8
+BASE_BYTES = 1.8e8
 #: Seconds per stored nonzero: assembly (symbolic pattern, element matrices, scatter).
-ASSEMBLY_S_PER_NONZERO = 1.0e-7
+ASSEMBLY_S_PER_NONZERO = 7.0e-8
 #: Seconds per nonzero for the multigrid setup (Galerkin products, triangle split).
 SETUP_S_PER_NONZERO = 1.2e-7
 #: Seconds per nonzero and iteration, and iterations, per element order (geometric multigrid).
@@ -69,19 +69,23 @@ PMG_ITERATIONS = 24
 #: Seconds per solved unknown (mesh, supports) and per unknown of the whole body
 #: (unfolding a mirrored model, recovery, probes).
 MESH_S_PER_UNKNOWN = 1.2e-6
-RECOVERY_S_PER_UNKNOWN = 1.5e-6
+RECOVERY_S_PER_UNKNOWN = 2.2e-6
 #: Everything after the solve that every run pays: start-up (imports), derived quantities,
 #: fields.vtu, tables, and (``pictures``) the pictures and report.html. Seconds =
 #: OUTPUT_BASE_S + OUTPUT_S_PER_UNKNOWN n_whole, plus PICTURES_BASE_S +
 #: PICTURES_S_PER_UNKNOWN n_whole when pictures are drawn (benchmarks/estimate_accuracy.py).
-OUTPUT_BASE_S = 1.0
+OUTPUT_BASE_S = 2.0
 OUTPUT_S_PER_UNKNOWN = 6.0e-6
-PICTURES_BASE_S = 2.5
-PICTURES_S_PER_UNKNOWN = 5.0e-7
+PICTURES_BASE_S = 2.3
+PICTURES_S_PER_UNKNOWN = 8.0e-7
+#: Tetrahedral meshes: peak bytes per element beyond the matrix and multigrid (the mesher's
+#: own copy, the mesh's edges and facets; linear tetrahedra at 135k unknowns peaked at
+#: 0.86 GB against 0.34 GB of matrix-based estimate, for about 250k elements).
+TET_BYTES_PER_ELEMENT = 2.0e3
 #: Direct solver on a 2-D cross-section (SuperLU, generalized plane strain): seconds =
 #: DIRECT2D_S n^DIRECT2D_EXP, bytes = DIRECT2D_BYTES n^DIRECT2D_MEM_EXP.
 DIRECT2D_S, DIRECT2D_EXP = 1.0e-6, 1.2
-DIRECT2D_BYTES, DIRECT2D_MEM_EXP = 1.0e3, 1.1
+DIRECT2D_BYTES, DIRECT2D_MEM_EXP = 5.7e2, 1.1
 #: Direct solver (SuperLU on the condensed system, 3-D elasticity, measured from 30k to
 #: 127k unknowns): seconds = DIRECT_S n^DIRECT_EXP, bytes = DIRECT_BYTES n^DIRECT_MEM_EXP.
 DIRECT_S, DIRECT_EXP = 2.4e-7, 1.73
@@ -244,5 +248,7 @@ def estimate_from_counts(case, nodes: int, elements: int, scalar_dofs: int,
     mem, secs = resources(n, nnz, int(elements), int(dofs_per_element), order, method,
                           multigrid=mg, dimension=dimension)
     secs += mesh_seconds + output_seconds(n, case.output.pictures and case.output.report)
+    if dimension == 3:
+        mem += TET_BYTES_PER_ELEMENT * int(elements) / 1e9
     return Estimate(int(nodes), int(elements), n, order, method, mem, secs)
 
