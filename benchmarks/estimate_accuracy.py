@@ -48,13 +48,13 @@ CASES = [
     ("structured mesa, refine 0.6", lambda: refined(DEMO_MESA, 0.6), "s"),
     ("structured mesa, refine 1", lambda: refined(DEMO_MESA, 1.0), "s"),
     ("structured mesa, refine 2", lambda: refined(DEMO_MESA, 2.0), "s"),
-    ("structured mesa, refine 2.75", lambda: refined(DEMO_MESA, 2.75), "l"),
+    ("structured mesa, refine 2.25", lambda: refined(DEMO_MESA, 2.25), "l"),
     ("section: line grating", lambda: GRATING.read_text(), "s"),
     ("section: line grating, refine 4", lambda: refined(GRATING, 4.0), "s"),
     ("L pad P2, size 19 nm", lambda: case_text(19.0), "s"),
     ("L pad P2, size 11 nm", lambda: case_text(11.0), "s"),
     ("L pad P1, size 6 nm", lambda: case_text(6.0, order=1), "s"),
-    ("L pad P2, size 6.8 nm", lambda: case_text(6.8), "l"),
+    ("L pad P2, size 6 nm", lambda: case_text(6.0), "l"),
 ]
 
 
