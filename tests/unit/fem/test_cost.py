@@ -51,3 +51,25 @@ def test_quadratic_tetrahedra_are_estimated_with_p_multigrid():
     _, p = cost.resources(n, 30 * n, est.elements, 10, 2, "iterative", multigrid="p")
     _, a = cost.resources(n, 30 * n, est.elements, 10, 2, "iterative", multigrid="algebraic")
     assert p < a        # about 24 iterations instead of smoothed aggregation's 40+
+
+
+def test_v_cycle_traffic_counts_every_pass():
+    import numpy as np
+    import pyamg
+    import scipy.sparse as sp
+
+    from mesastrain.fem.multigrid import algebraic_hierarchy
+
+    A = sp.csr_matrix(pyamg.gallery.poisson((12, 12, 12)))
+    single = algebraic_hierarchy(A, None, dtype=np.float32).traffic()
+    double = algebraic_hierarchy(A, None, dtype=np.float64).traffic()
+    # the finest level alone: four passes over a triangle (forward sweep, residual, the
+    # product before the backward sweep, the backward sweep), each at least its values
+    # and column indices (4 + 4 bytes per stored entry of a triangle in single precision)
+    tri = (A.nnz + A.shape[0]) // 2
+    assert single["levels"][0] >= 4 * 8 * tri
+    assert single["bytes"] == sum(single["levels"])
+    assert 0 < single["single_bytes"] < single["bytes"]
+    assert double["single_bytes"] == 0
+    # double-precision values move 4 more bytes per entry
+    assert double["bytes"] > single["bytes"]
