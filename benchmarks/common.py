@@ -159,6 +159,9 @@ def run_stages(case, solver_method: str = "iterative", probes=None) -> dict:
     out["energy_error"] = rep.energy_error
     out["levels"] = rep.levels
     out["free_unknowns"] = rep.unknowns
+    out["cycle_bytes"] = rep.cycle_bytes
+    out["iteration_bytes"] = rep.iteration_bytes
+    out["single_share"] = rep.single_share
     out["peak_solve_gb"] = peak_rss_gb()
     # one matrix-vector product with the assembled matrix, for reference
     x = np.random.default_rng(0).random(K.shape[0])

@@ -27,6 +27,17 @@ floor x
     many times slower than the memory-bandwidth floor of the iteration is
     (bandwidth measured in this run by a STREAM-like numpy triad; bytes of the
     product of the assembled matrix in double precision with int32 indices)
+V mv
+    bytes one V-cycle moves (streaming model of ``Hierarchy.traffic``: every
+    pass of the Gauss-Seidel sweeps, residual, restriction and prolongation
+    on every level) in units of one double-precision matrix-vector product
+sp %
+    share of one whole iteration's bytes (product + V-cycle + vector updates)
+    in single-precision arrays
+iter x
+    solve time / (its x bytes of one whole iteration / bandwidth): the floor
+    of the iteration as it is built, V-cycle included; ``floor x`` divided by
+    ``iter x`` is what the V-cycle costs in products
 direct x
     scipy's direct solver (SuperLU, splu) on the same condensed system in its
     own process: its setup+solve time and peak memory divided by those of the
@@ -136,9 +147,15 @@ def fmt_row(r: dict, bw: float) -> str:
     else:
         it = r["setup_s"] + r["solve_s"]
         dtxt = f"{d['direct_s'] / it:5.1f}x t, {d['direct_peak_gb'] / r['peak_gb']:.1f}x mem"
+    mv = matvec_bytes(r["nonzeros"], r["unknowns"])
+    it_bytes = r.get("iteration_bytes", 0)
+    cycle_mv = r.get("cycle_bytes", 0) / mv
+    full = (r["solve_s"] / (r["iterations"] * it_bytes / (bw * 1e9))
+            if it_bytes and r["iterations"] else float("nan"))
     return (f"{r['unknowns']:>10,} {r['nonzeros']:>12,} {r['assembly_s']:>8.2f} "
             f"{r['setup_s']:>7.2f} {r['solve_s']:>7.2f} {r['iterations']:>4d} "
-            f"{r['recovery_s']:>8.2f} {total:>8.2f} {r['peak_gb']:>7.2f} {ratio:>7.2f}  {dtxt}")
+            f"{r['recovery_s']:>8.2f} {total:>8.2f} {r['peak_gb']:>7.2f} {ratio:>7.2f} "
+            f"{cycle_mv:>6.2f} {100 * r.get('single_share', 0.0):>6.0f} {full:>7.2f}  {dtxt}")
 
 
 def main(argv=None) -> int:
@@ -170,7 +187,8 @@ def main(argv=None) -> int:
           f"add {bw['add']:.1f} GB/s; floor uses {bw['floor']:.1f} GB/s")
     print(f"demo mesa, order {a.order}, quarter model; each size in its own process")
     head = (f"{'unknowns':>10} {'nonzeros':>12} {'assembly':>8} {'setup':>7} {'solve':>7} "
-            f"{'its':>4} {'recovery':>8} {'total':>8} {'peak GB':>7} {'floor x':>7}  direct x")
+            f"{'its':>4} {'recovery':>8} {'total':>8} {'peak GB':>7} {'floor x':>7} "
+            f"{'V mv':>6} {'sp %':>6} {'iter x':>7}  direct x")
     print(head)
     print("-" * len(head))
     rows = []

@@ -58,13 +58,18 @@ def child(case_path: str) -> None:
     est = estimate(load_case(case_path))
     out = Path(tempfile.mkdtemp(prefix="tet-scaling-")) / "result"
     t = time.perf_counter()
+    c = time.process_time()
     rc = main(["run", case_path, "--out", str(out), "-q"])
     wall = time.perf_counter() - t
+    cpu = time.process_time() - c
     summ = json.loads((out / "summary.json").read_text())
-    print(json.dumps({"rc": rc, "wall": wall, "peak_gb": peak_rss_gb(),
+    print(json.dumps({"rc": rc, "wall": wall, "cpu": cpu, "peak_gb": peak_rss_gb(),
+                      "nodes": summ["mesh"]["exported"]["nodes"],
                       "unknowns": summ["mesh"]["solved"]["unknowns"], "timings": summ["timings"],
+                      "solved": summ["solver"].get("unknowns", summ["mesh"]["solved"]["unknowns"]),
                       "solver": summ["solver"], "est_s": est.seconds,
-                      "est_gb": est.memory_gb, "est_unknowns": est.unknowns}))
+                      "est_gb": est.memory_gb, "est_unknowns": est.unknowns,
+                      "est_solved": est.solved_unknowns or est.unknowns}))
 
 
 def measure(text: str) -> dict:

@@ -22,6 +22,7 @@ def test_solver_scaling_runs_tiny(tmp_path):
 
     out = run("solver_scaling.py", "--tiny", "--json", str(tmp_path / "rows.json"))
     assert "memory bandwidth" in out and "floor x" in out and "growth" in out
+    assert "V mv" in out and "sp %" in out and "iter x" in out
     rows = json.loads((tmp_path / "rows.json").read_text())["rows"]
     assert len(rows) == 2
     for r in rows:
@@ -29,6 +30,9 @@ def test_solver_scaling_runs_tiny(tmp_path):
         assert r["unknowns"] > 0 and r["nonzeros"] > r["unknowns"]
         assert r["residual"] <= 1e-8 and r["iterations"] > 0
         assert r["peak_gb"] > 0
+        # the V-cycle traffic model: more than the product alone, mostly single precision
+        assert r["cycle_bytes"] > 0 and r["iteration_bytes"] > r["cycle_bytes"]
+        assert 0.1 < r["single_share"] < 1.0
         d = r["direct"]                     # the direct solver ran on the same system
         assert "error" not in d and d["residual"] < 1e-10
         assert d["unknowns"] == r["free_unknowns"]

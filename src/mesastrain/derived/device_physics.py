@@ -357,16 +357,16 @@ def evaluate(plan: Plan, region, strain, stress) -> dict[str, np.ndarray]:
         if m.size == 0:
             continue
         R = rp.R
-        eps_c = np.einsum("ai,nab,bj->nij", R, strain[m], R)      # T_c = R^T T_s R
+        eps_c = R.T @ strain[m] @ R                              # T_c = R^T T_s R
         if isinstance(rp.raman, BiaxialLine):
-            out["raman_shift"][m] = rp.raman.shift(np.einsum("ai,nab,bj->nij", R, stress[m], R))
+            out["raman_shift"][m] = rp.raman.shift(R.T @ stress[m] @ R)
         elif rp.raman is not None:
             p = rp.raman
             rm = raman_modes(eps_c, p.p, p.q, p.r, p.omega0, R, **plan.raman_geometry)
             out["raman_shift"][m] = rm.observable
             out["_raman_modes"][m] = rm.shifts
             out["_raman_share"][m] = rm.share
-            out["_raman_polarisation"][m] = np.einsum("ia,naj->nij", R, rm.polarisation)
+            out["_raman_polarisation"][m] = R @ rm.polarisation
         if rp.bands is not None:
             b = rp.bands
             s = band_edge_shifts(eps_c, b)

@@ -15,6 +15,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from mesastrain.fem.fields import evaluate_at_reference, reference_coordinates
+from mesastrain.fem.mapping import fast_mapping
 from mesastrain.fem.recovery import recover_at
 from mesastrain.mesh.base import ModelMesh
 from mesastrain.model.symmetry import reflect_points, reflect_tensors
@@ -142,7 +143,7 @@ def stress_sampler(res) -> StressSampler:
     kind = _element_kind(m)
     vref = {"hex": ElementHex1, "quad": ElementQuad1, "tet": ElementTetP1,
             "tri": ElementTriP1}[kind]().doflocs
-    mapping = m.mapping()
+    mapping = fast_mapping(m)
     cols = [0, 1, 2] if dim == 3 else [0, 2]
 
     def to3(x):                                              # (..., dim) -> (..., 3)
@@ -235,10 +236,11 @@ def element_size_at(res, points: np.ndarray) -> np.ndarray:
     return out
 
 
-def cell_centres(res) -> np.ndarray:
-    """(nelems, 3) element centroids (mean of the vertices), nm."""
+def cell_centres(res, elements=None) -> np.ndarray:
+    """(nelems, 3) element centroids (mean of the vertices), nm; of ``elements`` if given."""
     m = res.mesh.mesh
-    return m.p[:, m.t].mean(axis=1).T
+    t = m.t if elements is None else m.t[:, elements]
+    return m.p[:, t].mean(axis=1).T
 
 
 def feature_bounds(res) -> np.ndarray:
@@ -338,7 +340,7 @@ def column_profile(res, d: np.ndarray, ext: float, z: float, side: int = 0):
     pts, el = pts[ok], el[ok]
     first = np.concatenate([[True], el[1:] != el[:-1]])
     el = el[first]
-    cen = cell_centres(res)[el]
+    cen = cell_centres(res, el)
     along = np.abs(cen[:, 0] * d[0]) + np.abs(cen[:, 1] * d[1])   # mirror-safe |coordinate|
     s = ext - along
     order = np.argsort(s)

@@ -23,6 +23,7 @@ from mesastrain.derived.sampling import (
     sidewall_distance,
 )
 from mesastrain.fem.fields import reference_coordinates
+from mesastrain.fem.mapping import fast_mapping
 
 __all__ = [
     "interface_balance",
@@ -105,9 +106,13 @@ def _facet_points(res, z: float):
     3-point rule exact for quadratics. Returns (points (n, 3), weights (n,)).
     """
     m = res.mesh.mesh
-    f = m.facets
-    pz = m.p[2, f]
     span = float(np.ptp(m.p[2])) or 1.0
+    # the faces of the elements with a vertex on the plane (not every face of the mesh)
+    touch = np.any(np.abs(m.p[2, m.t] - z) <= 1e-9 * span, axis=0)
+    if not np.any(touch):
+        return np.zeros((0, 3)), np.zeros(0)
+    f = type(m)(m.p, np.ascontiguousarray(m.t[:, touch])).facets
+    pz = m.p[2, f]
     on = np.all(np.abs(pz - z) <= 1e-9 * span, axis=0)
     if not np.any(on):
         return np.zeros((0, 3)), np.zeros(0)
@@ -145,7 +150,7 @@ def _fe_interface_stress(res, pts: np.ndarray, k: int) -> np.ndarray:
     m = res.mesh
     mesh = res.disc.basis.mesh
     dim = mesh.p.shape[0]
-    mapping = mesh.mapping()
+    mapping = fast_mapping(mesh)
     cols = [0, 1, 2] if dim == 3 else [0, 2]
     vals, heights = [], []
     for r in (k + 1, k):

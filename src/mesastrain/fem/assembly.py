@@ -131,21 +131,27 @@ def build_pattern(element_dofs: np.ndarray, nscalar: int) -> SparsityPattern:
     inc_e[node_sorted, slot] = order % nel
     inc_a[node_sorted, slot] = order // nel
     del order, node_sorted, flat, slot
-    width = valence * nloc
     deg = np.empty(nscalar, dtype=np.int64)
-    # per chunk of rows: neighbour lists and ranks
-    rows_per_chunk = max(1, CHUNK_ENTRIES // max(width, 1))
+    # rows in order of valence, in chunks of similar valence: each chunk is padded to its
+    # own widest row, not the mesh's (on quadratic tetrahedra an edge dof has about a
+    # fifth of a vertex's elements)
+    by_valence = np.argsort(counts, kind="stable")
     pos_local = np.empty((nel, nloc, nloc), dtype=np.int32)          # rank within the row
-    row_cols = []
+    row_cols, row_ids = [], []
     sentinel = nscalar
     edc = ed.astype(ctype, copy=False)
-    for r0 in range(0, nscalar, rows_per_chunk):
-        r1 = min(nscalar, r0 + rows_per_chunk)
-        e = inc_e[r0:r1]                                             # (m, valence)
+    a = 0
+    while a < nscalar:
+        b = min(nscalar, a + max(1, CHUNK_ENTRIES // (int(counts[by_valence[a]]) * nloc)))
+        b = min(b, a + max(1, CHUNK_ENTRIES // (int(counts[by_valence[b - 1]]) * nloc)))
+        rows = by_valence[a:b]
+        v = int(counts[rows].max())
+        width = v * nloc
+        e = inc_e[rows, :v]                                          # (m, v)
         valid = e >= 0
         e = np.where(valid, e, 0)
-        cand = edc[:, e].transpose(1, 2, 0)                          # (m, valence, nloc)
-        cand = np.where(valid[:, :, None], cand, sentinel).reshape(r1 - r0, width)
+        cand = edc[:, e].transpose(1, 2, 0)                          # (m, v, nloc)
+        cand = np.where(valid[:, :, None], cand, sentinel).reshape(b - a, width)
         perm = np.argsort(cand, axis=1)
         srt = np.take_along_axis(cand, perm, axis=1)
         new = np.empty(srt.shape, dtype=bool)
@@ -156,13 +162,23 @@ def build_pattern(element_dofs: np.ndarray, nscalar: int) -> SparsityPattern:
         rank_sorted -= 1
         rank = np.empty_like(rank_sorted)
         np.put_along_axis(rank, perm, rank_sorted, axis=1)
-        deg[r0:r1] = rank_sorted[:, -1] + 1
+        deg[rows] = rank_sorted[:, -1] + 1
         row_cols.append(srt[new])
-        rank = rank.reshape(r1 - r0, valence, nloc)
+        row_ids.append(rows)
+        rank = rank.reshape(b - a, v, nloc)
         vv = np.nonzero(valid)
-        pos_local[e[vv], inc_a[r0:r1][vv]] = rank[vv]
-    cols_s = np.concatenate(row_cols) if row_cols else np.zeros(0, dtype=np.int64)
-    del row_cols, inc_e, inc_a
+        pos_local[e[vv], inc_a[rows][:, :v][vv]] = rank[vv]
+        a = b
+    # the neighbour lists back in dof order
+    ptr = np.zeros(nscalar + 1, dtype=np.int64)
+    np.cumsum(deg, out=ptr[1:])
+    cols_s = np.empty(int(ptr[-1]), dtype=ctype)
+    for rows, cols in zip(row_ids, row_cols):
+        lens = deg[rows]
+        local = np.cumsum(lens) - lens
+        cols_s[np.repeat(ptr[rows] - local, lens) + np.arange(cols.size)] = cols
+    row_cols = row_ids = None
+    del inc_e, inc_a
     p_of = ed.T                                                      # (nel, nloc)
     pos_local *= 3
     return _finish_pattern(deg, cols_s, lambda ptr9: ptr9[p_of][:, :, None] + pos_local)

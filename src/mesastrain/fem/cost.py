@@ -79,9 +79,9 @@ def element_type(shape: str, order: int, section: bool = False) -> str:
 #: the coarse levels ~8 and the transient Galerkin products), per unknown, and the base.
 BYTES_PER_NONZERO = 36.0
 BYTES_PER_UNKNOWN = 60.0
-BASE_BYTES = 1.0e8
+BASE_BYTES = 1.8e8
 #: Seconds per stored nonzero: assembly (symbolic pattern, element matrices, scatter).
-ASSEMBLY_S_PER_NONZERO = 1.0e-7
+ASSEMBLY_S_PER_NONZERO = 7.0e-8
 #: Seconds per nonzero for the multigrid setup (Galerkin products, triangle split).
 SETUP_S_PER_NONZERO = 1.2e-7
 #: Seconds per nonzero and iteration, and iterations, per element order (geometric multigrid).
@@ -92,10 +92,30 @@ ITERATIONS = {1: 16, 2: 80}
 AMG_BYTES_PER_NONZERO = 44.0
 AMG_SETUP_S_PER_NONZERO = 2.5e-7
 AMG_ITERATIONS = 40
+#: p-multigrid (quadratic tetrahedra: the P2 level, E^T A E on P1, smoothed aggregation
+#: below): set-up seconds per nonzero of the P2 matrix, iterations.
+PMG_SETUP_S_PER_NONZERO = 6.0e-8
+PMG_ITERATIONS = 24
 #: Seconds per solved unknown (mesh, supports) and per unknown of the whole body
 #: (unfolding a mirrored model, recovery, probes).
 MESH_S_PER_UNKNOWN = 1.2e-6
-RECOVERY_S_PER_UNKNOWN = 1.5e-6
+RECOVERY_S_PER_UNKNOWN = 2.2e-6
+#: Everything after the solve that every run pays: start-up (imports), derived quantities,
+#: fields.vtu, tables, and (``pictures``) the pictures and report.html. Seconds =
+#: OUTPUT_BASE_S + OUTPUT_S_PER_UNKNOWN n_whole, plus PICTURES_BASE_S +
+#: PICTURES_S_PER_UNKNOWN n_whole when pictures are drawn (benchmarks/estimate_accuracy.py).
+OUTPUT_BASE_S = 2.0
+OUTPUT_S_PER_UNKNOWN = 6.0e-6
+PICTURES_BASE_S = 2.3
+PICTURES_S_PER_UNKNOWN = 8.0e-7
+#: Tetrahedral meshes: peak bytes per element beyond the matrix and multigrid (the mesher's
+#: own copy, the mesh's edges and facets; linear tetrahedra at 135k unknowns peaked at
+#: 0.86 GB against 0.34 GB of matrix-based estimate, for about 250k elements).
+TET_BYTES_PER_ELEMENT = 2.0e3
+#: Direct solver on a 2-D cross-section (SuperLU, generalized plane strain): seconds =
+#: DIRECT2D_S n^DIRECT2D_EXP, bytes = DIRECT2D_BYTES n^DIRECT2D_MEM_EXP.
+DIRECT2D_S, DIRECT2D_EXP = 1.0e-6, 1.2
+DIRECT2D_BYTES, DIRECT2D_MEM_EXP = 5.7e2, 1.1
 #: Direct solver (SuperLU on the condensed system, 3-D elasticity, measured from 30k to
 #: 127k unknowns): seconds = DIRECT_S n^DIRECT_EXP, bytes = DIRECT_BYTES n^DIRECT_MEM_EXP.
 DIRECT_S, DIRECT_EXP = 2.4e-7, 1.73
@@ -166,9 +186,18 @@ def pattern_nonzeros(keep: np.ndarray, order: int) -> int:
 
 
 
+def output_seconds(whole_unknowns: int, pictures: bool = True) -> float:
+    """Seconds of start-up, derived quantities and writing (pictures when ``pictures``)."""
+    n = float(whole_unknowns)
+    secs = OUTPUT_BASE_S + OUTPUT_S_PER_UNKNOWN * n
+    if pictures:
+        secs += PICTURES_BASE_S + PICTURES_S_PER_UNKNOWN * n
+    return secs
+
+
 def resources(unknowns: int, nonzeros: int, elements: int, nloc: int, order: int,
               method: str, multigrid: str = "geometric",
-              whole_unknowns: int | None = None) -> tuple[float, float]:
+              whole_unknowns: int | None = None, dimension: int = 3) -> tuple[float, float]:
     """Peak memory (GB) and wall time (s) of mesh + assembly + solve + recovery.
 
     Parameters
@@ -180,12 +209,15 @@ def resources(unknowns: int, nonzeros: int, elements: int, nloc: int, order: int
         per-nonzero rates already include the per-element work).
     order : int
     method : {"direct", "iterative"}
-    multigrid : {"geometric", "algebraic"}
+    multigrid : {"geometric", "algebraic", "p"}
         Preconditioner of the iterative solve: geometric on structured brick
-        meshes, smoothed aggregation on the others.
+        meshes, p-multigrid on quadratic tetrahedra, smoothed aggregation on
+        the others.
     whole_unknowns : int, optional
         Unknowns of the whole body when a mirrored part is solved (recovery
         works on the whole body).
+    dimension : {2, 3}
+        2 for a cross-section (the direct solver's fill-in grows more slowly).
     """
     n, nnz = float(unknowns), float(nonzeros)
     whole = float(whole_unknowns or unknowns)
@@ -193,9 +225,15 @@ def resources(unknowns: int, nonzeros: int, elements: int, nloc: int, order: int
     secs = (ASSEMBLY_S_PER_NONZERO * nnz + MESH_S_PER_UNKNOWN * n
             + RECOVERY_S_PER_UNKNOWN * whole)
     per_it = ITERATION_S_PER_NONZERO.get(order, ITERATION_S_PER_NONZERO[2])
-    if method == "direct":
+    if method == "direct" and dimension == 2:
+        mem += 12.0 * nnz + DIRECT2D_BYTES * n ** DIRECT2D_MEM_EXP
+        secs += DIRECT2D_S * n ** DIRECT2D_EXP
+    elif method == "direct":
         mem += 12.0 * nnz + DIRECT_BYTES * n ** DIRECT_MEM_EXP
         secs += DIRECT_S * n ** DIRECT_EXP
+    elif multigrid == "p":
+        mem += AMG_BYTES_PER_NONZERO * nnz
+        secs += (PMG_SETUP_S_PER_NONZERO + PMG_ITERATIONS * per_it) * nnz
     elif multigrid == "geometric":
         mem += BYTES_PER_NONZERO * nnz
         secs += (SETUP_S_PER_NONZERO + ITERATIONS.get(order, ITERATIONS[2]) * per_it) * nnz
@@ -204,14 +242,6 @@ def resources(unknowns: int, nonzeros: int, elements: int, nloc: int, order: int
         secs += (AMG_SETUP_S_PER_NONZERO + AMG_ITERATIONS * per_it) * nnz
     return mem / 1e9, secs
 
-
-
-#: Tetrahedral cases (gmsh shapes, imported meshes): derived quantities, writing every
-#: default output and start-up, seconds = TET_OUTPUT_S + TET_OUTPUT_S_PER_UNKNOWN n.
-#: Measured with benchmarks/tet_scaling.py (L-shaped pad, quadratic tetrahedra, 133k-737k
-#: unknowns: 8.2, 16.7 and 18.7 s; load average about 3 on 2 cores).
-TET_OUTPUT_S = 4.0
-TET_OUTPUT_S_PER_UNKNOWN = 2.0e-5
 
 
 def estimate_from_counts(case, nodes: int, elements: int, scalar_dofs: int,
@@ -233,19 +263,26 @@ def estimate_from_counts(case, nodes: int, elements: int, scalar_dofs: int,
     nnz_per_row : int
         Typical stored nonzeros per matrix row.
     mesh_seconds : float
-        Time of the mesher (gmsh) when the caller can predict it; a nonzero
-        value also adds the output time of :data:`TET_OUTPUT_S`.
+        Time of the mesher (gmsh) when the caller can predict it.
     shape, section
         The element shape and whether the mesh is a 2-D cross-section
-        (:func:`element_type`).
+        (:func:`element_type`); a cross-section is factorised directly for
+        ``solver.method = "auto"`` (:func:`mesastrain.run.pipeline.run_case`).
     """
+    dimension = 2 if section else 3
     n = 3 * int(scalar_dofs)
     nnz = n * nnz_per_row
-    method = choose_method(case.solver.method, n, case.solver.direct_limit)
-    mem, secs = resources(n, nnz, int(elements), int(dofs_per_element), case.mesh.order, method,
-                          multigrid="algebraic")
-    if mesh_seconds:
-        secs += mesh_seconds + TET_OUTPUT_S + TET_OUTPUT_S_PER_UNKNOWN * n
-    return Estimate(int(nodes), int(elements), n, case.mesh.order, method, mem, secs,
-                    element_type=element_type(shape, case.mesh.order, section))
+    if dimension == 2 and case.solver.method == "auto":
+        method = "direct"
+    else:
+        method = choose_method(case.solver.method, n, case.solver.direct_limit)
+    order = case.mesh.order
+    mg = "p" if (dimension == 3 and order == 2) else "algebraic"
+    mem, secs = resources(n, nnz, int(elements), int(dofs_per_element), order, method,
+                          multigrid=mg, dimension=dimension)
+    secs += mesh_seconds + output_seconds(n, case.output.pictures and case.output.report)
+    if dimension == 3:
+        mem += TET_BYTES_PER_ELEMENT * int(elements) / 1e9
+    return Estimate(int(nodes), int(elements), n, order, method, mem, secs,
+                    element_type=element_type(shape, order, section))
 

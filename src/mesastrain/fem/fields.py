@@ -30,6 +30,7 @@ import scipy.sparse as sp
 
 from mesastrain.fem.assembly import CHUNK
 from mesastrain.fem.discretisation import Discretisation
+from mesastrain.fem.mapping import as_fast, fast_mapping
 from mesastrain.physics.crystal import voigt_to_full
 
 GPA_TO_MPA = 1000.0
@@ -194,7 +195,7 @@ def evaluate_at_points(disc: Discretisation, u: np.ndarray, elements: np.ndarray
     displacement : ndarray (npts, 3)
         nm.
     """
-    mapping = disc.basis.mesh.mapping()
+    mapping = fast_mapping(disc.basis.mesh)
     x = np.asarray(points, dtype=float).T[:, :, None]            # (3, npts, 1)
     X = reference_coordinates(mapping, x, elements)               # (3, npts, 1)
     return evaluate_at_reference(disc, u, elements, X[:, :, 0], region, stiffness, eigenstrain,
@@ -212,7 +213,7 @@ def evaluate_at_reference(disc: Discretisation, u: np.ndarray, elements: np.ndar
     """
     mesh = disc.basis.mesh
     elem = disc.basis.elem
-    mapping = mesh.mapping()
+    mapping = fast_mapping(mesh)
     Xf = np.asarray(X, dtype=float)
     invDF = mapping.invDF(Xf[:, :, None], tind=elements)          # (3,3,npts,1)
     U = u.reshape(-1, 3)
@@ -296,19 +297,27 @@ def reference_coordinates(mapping, x: np.ndarray, elements: np.ndarray,
     dim = x.shape[0]
     elements = np.asarray(elements)
 
+    mapping = as_fast(mapping)
+
     def newton(X0, sel, damping=1.0):
         X = X0.copy()
         best = X.copy()
         best_step = np.full(X.shape[1], np.inf)
+        nodes = mapping.nodes(elements[sel])                  # gathered once
+        xs = x[:, sel]
+        act = np.arange(X.shape[1])                           # points still moving
         for _ in range(iters):
-            dX = np.einsum("ijkl,jkl->ikl", mapping.invDF(X, tind=elements[sel]),
-                           x[:, sel] - mapping.F(X, tind=elements[sel]))
-            Xn = np.clip(X + damping * dX, 0.0, 1.0)
-            step = np.max(np.abs(Xn - X), axis=(0, 2))
-            better = step < best_step
-            best[:, better], best_step[better] = Xn[:, better], step[better]
-            X = Xn
-            if np.all(step < 1e-13):
+            Xa = X[:, act]
+            dX = mapping.newton_step(Xa, xs[:, act], nodes[:, :, act])
+            Xn = np.clip(Xa + damping * dX, 0.0, 1.0)
+            step = np.max(np.abs(Xn - Xa), axis=(0, 2))
+            X[:, act] = Xn
+            better = step < best_step[act]
+            best[:, act[better]], best_step[act[better]] = Xn[:, better], step[better]
+            # a step of 1e-13 of the element is round-off for coordinates of
+            # 1e3-1e6 element sizes: such points are done
+            act = act[~(step < 1e-13)]
+            if act.size == 0:
                 break
         return best, best_step
 

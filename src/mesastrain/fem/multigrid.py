@@ -231,6 +231,45 @@ class Hierarchy:
             tot += M.data.nbytes + M.indices.nbytes + M.indptr.nbytes
         return tot
 
+    def traffic(self) -> dict:
+        """Bytes one V-cycle moves through memory (a streaming model, for benchmarks).
+
+        Every pass over a matrix reads its values, column indices and row
+        pointers and the vector entries it touches once, and writes its
+        result once. Per level with s sweeps: the forward Gauss-Seidel sweep
+        (lower triangle), s - 1 further sweeps (upper product + lower sweep),
+        the residual (upper product), restriction and prolongation, and s
+        backward sweeps (lower product + upper sweep). The coarsest level's
+        direct solve is not counted (a few thousand unknowns).
+
+        Returns
+        -------
+        dict
+            ``bytes`` of one V-cycle, ``single_bytes`` of them in arrays of the
+            cycle's precision when that is single (else 0), ``levels`` a list
+            of bytes per level.
+        """
+        item = self.dtype.itemsize
+
+        def passes(M):
+            vec = (M.shape[0] + M.shape[1]) * item
+            return M.data.nbytes + M.indices.nbytes + M.indptr.nbytes + vec, M.data.nbytes + vec
+
+        total = single = 0
+        per_level = []
+        for lev in range(len(self.LD)):
+            s = self.sweeps[lev] if lev < len(self.sweeps) else 1
+            lo, lo_v = passes(self.LD[lev])
+            up, up_v = passes(self.DU[lev])
+            r, r_v = passes(self.R[lev])
+            pr, pr_v = passes(self.P[lev])
+            b = lo + (s - 1) * (up + lo) + up + r + pr + s * (lo + up)
+            v = lo_v + (s - 1) * (up_v + lo_v) + up_v + r_v + pr_v + s * (lo_v + up_v)
+            per_level.append(b)
+            total += b
+            single += v if item == 4 else 0
+        return {"bytes": total, "single_bytes": single, "levels": per_level}
+
     def _cycle(self, lev: int, b: np.ndarray) -> np.ndarray:
         from pyamg import amg_core
 
@@ -288,11 +327,14 @@ def restrict_spaces(spaces: GridSpaces, free0: np.ndarray) -> list:
 
 #: Strength of connection per smoothed-aggregation level (pyamg "symmetric" with threshold
 #: theta). All connections on the finest level; from the second level on, where the Galerkin
-#: operators are denser, theta = 0.1 keeps the aggregates from swallowing a whole level
+#: operators are denser, theta > 0 keeps the aggregates from swallowing a whole level
 #: (5,026 -> 84 unknowns on a P1 level of 45k): on the L-shaped pad, quadratic tetrahedra,
-#: 321k unknowns, p-multigrid took 37 iterations with theta = 0 everywhere, 21 with this
-#: and 60 with theta = 0.1 everywhere (benchmarks/tet_scaling.py).
-STRENGTH = [("symmetric", {"theta": 0.0})] + [("symmetric", {"theta": 0.1})] * 9
+#: 321k unknowns, p-multigrid took 37 iterations with theta = 0 everywhere, 21 with 0.1 there
+#: and 60 with theta = 0.1 everywhere (benchmarks/tet_scaling.py). At 975k unknowns theta = 0.1
+#: on the coarse levels made a fifth level of 522 unknowns and 39 iterations; theta = 0.05
+#: keeps four levels and gave 20, 23, 25 and 23 iterations at 131k, 270k, 515k and 975k
+#: (0.1: 20, 22, 23, 39).
+STRENGTH = [("symmetric", {"theta": 0.0})] + [("symmetric", {"theta": 0.05})] * 9
 
 
 def smoothed_aggregation_levels(A: sp.csr_matrix, B: np.ndarray | None

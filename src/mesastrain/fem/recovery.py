@@ -172,8 +172,15 @@ def recover_at(p: np.ndarray, t: np.ndarray, region: np.ndarray, elements: np.nd
     nreg = int(region.max()) + 1
     pvert, preg = ukey // nreg, ukey % nreg
     npatch = ukey.size
-    v2e = sp.csr_matrix((np.ones(nv * nel), (t.ravel(), np.tile(np.arange(nel), nv))),
-                        shape=(nn, nel))
+    # only the elements within two rings of the patch vertices can enter a patch: the
+    # incidence is built for those (the same rings as over the whole mesh, at the cost
+    # of the query instead of the mesh)
+    flag = np.zeros(nn, dtype=bool)
+    flag[pvert] = True
+    flag[t[:, flag[t].any(axis=0)].ravel()] = True
+    near = np.flatnonzero(flag[t].any(axis=0))
+    tn = t[:, near]
+    v2e = sp.csr_matrix((np.ones(tn.size), (tn.ravel(), np.tile(near, nv))), shape=(nn, nel))
     e2v = v2e.T.tocsr()
 
     def incidence(mat):

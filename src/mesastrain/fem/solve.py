@@ -114,6 +114,13 @@ class SolverReport:
         Stored nonzeros of all levels / those of the finest.
     precision : str
         Precision of the preconditioner.
+    cycle_bytes, iteration_bytes : int
+        Memory traffic of one V-cycle and of one whole iteration (matrix-vector
+        product, V-cycle, vector updates) by the streaming model of
+        :meth:`mesastrain.fem.multigrid.Hierarchy.traffic` (0 for direct);
+        for benchmarks, not written to the summary.
+    single_share : float
+        Share of an iteration's traffic in single-precision arrays.
     """
 
     method: str
@@ -126,6 +133,9 @@ class SolverReport:
     levels: int = 0
     operator_complexity: float = 1.0
     precision: str = "double"
+    cycle_bytes: int = 0
+    iteration_bytes: int = 0
+    single_share: float = 0.0
 
     def to_dict(self) -> dict:
         return {"method": self.method, "unknowns": self.unknowns,
@@ -264,6 +274,23 @@ def pcg(A: sp.csr_matrix, b: np.ndarray, precondition, tol: float, stress_tol: f
     return x, k, rel, err
 
 
+def _iteration_traffic(A, H) -> tuple[int, int, float]:
+    """(V-cycle bytes, iteration bytes, single-precision share) of one CG iteration.
+
+    The iteration is one double-precision product with the operator (for a
+    free part of the full matrix: the full matrix plus the scatter and gather),
+    one V-cycle and about ten passes over vectors of the free unknowns.
+    """
+    M = A.K if isinstance(A, _FreePart) else A
+    n = A.shape[0]
+    mv = M.data.nbytes + M.indices.nbytes + M.indptr.nbytes + 2 * M.shape[0] * 8
+    if isinstance(A, _FreePart):
+        mv += 4 * n * 8
+    t = H.traffic()
+    it = mv + t["bytes"] + 10 * n * 8
+    return int(t["bytes"]), int(it), float(t["single_bytes"]) / it
+
+
 def solve_condensed(K: sp.csr_matrix, f: np.ndarray, fixed: np.ndarray,
                     near_null: np.ndarray | None = None, method: str = "auto",
                     tol: float = 1e-8, maxiter: int = 2000,
@@ -343,6 +370,7 @@ def solve_condensed(K: sp.csr_matrix, f: np.ndarray, fixed: np.ndarray,
         raise SolverError(f"unknown solver method {method!r}; allowed: auto, direct, iterative")
     t0 = time.perf_counter()
     iterations, err, levels, complexity, prec = 0, 0.0, 0, 1.0, "double"
+    traffic = (0, 0, 0.0)
     if resolved == "direct":
         A = condense(K, free)
         try:
@@ -389,6 +417,7 @@ def solve_condensed(K: sp.csr_matrix, f: np.ndarray, fixed: np.ndarray,
             f"{complexity:.2f}, set up in {t1 - t0:.1f} s")
         x, iterations, _, err = pcg(A, b, H, tol, stress_tol, maxiter, progress)
         lu = None
+        traffic = _iteration_traffic(A, H)
     t2 = time.perf_counter()
     if not np.all(np.isfinite(x)):
         raise SolverError("the solution contains NaN or Inf: the system is singular or "
@@ -402,7 +431,7 @@ def solve_condensed(K: sp.csr_matrix, f: np.ndarray, fixed: np.ndarray,
             f"raise solver.max_iterations or use solver.method = \"direct\" for a small case")
     u[idx] = x
     report = SolverReport(method_name, nf, iterations, res, t1 - t0, t2 - t1, err, levels,
-                          complexity, prec)
+                          complexity, prec, *traffic)
     log.info("solved: %s", report)
     if follow_up is not None:
         def solve_again(rhs: np.ndarray, tol2: float | None = None,

@@ -32,6 +32,7 @@ from mesastrain.fem.constraints import Boundary
 from mesastrain.fem.cost import Estimate, estimate_from_counts
 from mesastrain.fem.discretisation import INTORDER, Discretisation
 from mesastrain.fem.fields import Fields, elastic_state, reference_coordinates
+from mesastrain.fem.mapping import fast_mapping
 from mesastrain.mesh.base import ModelMesh
 from mesastrain.mesh.grid import GridSpacing, StackLayout, axis_coordinates, cell_regions
 from mesastrain.mesh.planning import layout_of
@@ -204,7 +205,7 @@ class SectionMesh(ModelMesh):
         """Exact elastic strain, stress (MPa), displacement at points (as evaluate_at_points)."""
         mesh = disc.basis.mesh
         elem = disc.basis.elem
-        mapping = mesh.mapping()
+        mapping = fast_mapping(mesh)
         x = np.asarray(points, dtype=float)[:, [0, 2]].T[:, :, None]
         X = reference_coordinates(mapping, x, elements)
         invDF = mapping.invDF(X, tind=elements)                   # (2, 2, npts, 1)

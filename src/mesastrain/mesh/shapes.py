@@ -46,14 +46,21 @@ log = logging.getLogger(__name__)
 #: function given as gmsh's own distance/threshold fields (evaluated in C++, not through
 #: a Python callback, which cost about 0.5 ms a call and 80 % of the meshing time).
 #: Below it the single-threaded Delaunay mesher and the exact callback are kept, so the
-#: meshes of small cases (every demo case) stay what they were.
-PARALLEL_TETS = 100_000
+#: meshes of small cases (every demo case: at most 34k) stay what they were. At 70k
+#: tetrahedra (L-shaped pad, mesh.size 11 nm) the callback path took 10.6 s of CPU time and
+#: HXT with fields 3.3 s.
+PARALLEL_TETS = 50_000
 
 #: gmsh wall time per tetrahedron, including OpenCASCADE and reading the mesh back, with the
 #: Python size callback and with HXT and size fields (benchmarks/tet_scaling.py, L-shaped
 #: pad, 25k-170k tetrahedra, load average about 3 on 2 cores).
 GMSH_S_PER_TET = 2.0e-4
 GMSH_S_PER_TET_PARALLEL = 8.0e-5
+
+#: Tetrahedra of the parallel path (HXT with size fields) per tetrahedron the size function
+#: asks for: 0.83, 0.81 and 0.79 at mesh.size 11, 8 and 6.8 nm on the L-shaped pad (the
+#: callback path: 1.03 and 1.01 at 14 and 11 nm).
+HXT_TET_SHARE = 0.8
 
 #: Fraction of the element volume h^3 a tetrahedron of size h occupies on average in gmsh
 #: meshes (measured on this project's shapes; used by the size estimate only).
@@ -234,6 +241,10 @@ def _expected_tets(spec: ShapeSpec) -> float:
                  *(z for t, _, f in spec.liners for z in (spec.top + t, spec.floor + f))})
     zs = join_segments(zb, [None] + [spec.sizes.size] * (len(zb) - 1),
                        [cap] * (len(zb) - 1), g)
+    # each cell of the graded grid split in two along every axis: with the cells alone a
+    # midpoint inside a thin film band could stand for a whole cell (at mesh.size 11.5 nm
+    # on the L-shaped pad the count doubled from one size to the next)
+    xs, ys, zs = (np.sort(np.concatenate([a, 0.5 * (a[1:] + a[:-1])])) for a in (xs, ys, zs))
     xm, ym, zm = (0.5 * (a[1:] + a[:-1]) for a in (xs, ys, zs))
     vol = np.diff(xs)[:, None] * np.diff(ys)[None, :]
     X, Y = np.meshgrid(xm, ym, indexing="ij")
@@ -498,8 +509,9 @@ def estimate_shape(case) -> Estimate:
     """
     spec = shape_spec(case, ())
     count = _expected_tets(spec)
-    nel = max(int(count), 1)
-    gmsh_s = nel * (GMSH_S_PER_TET_PARALLEL if count > PARALLEL_TETS else GMSH_S_PER_TET)
+    parallel = count > PARALLEL_TETS
+    nel = max(int(count * (HXT_TET_SHARE if parallel else 1.0)), 1)
+    gmsh_s = nel * (GMSH_S_PER_TET_PARALLEL if parallel else GMSH_S_PER_TET)
     order = case.mesh.order
     scalar = int(nel * (1.4 if order == 2 else 0.18)) + 1
     return estimate_from_counts(case, int(nel * 0.18) + 1, nel, scalar, 10 if order == 2 else 4,

@@ -22,6 +22,7 @@ from mesastrain.fem.cost import (
     Estimate,
     count_unknowns,
     element_type,
+    output_seconds,
     pattern_nonzeros,
     resources,
 )
@@ -309,6 +310,7 @@ def estimate_structured(case) -> Estimate:
     method = choose_method(case.solver.method, n, case.solver.direct_limit)
     mem, secs = resources(n, nnz, nel, 8 if order == 1 else 27, order, method,
                           whole_unknowns=whole[2])
+    secs += output_seconds(whole[2], case.output.pictures and case.output.report)
     return Estimate(*whole, order, method, mem, secs, solved_unknowns=n,
                     element_type=element_type("hexahedra", order), solved_nodes=nodes,
                     solved_elements=nel,

@@ -332,7 +332,10 @@ def valence_hamiltonian(strain_crystal, a_v: float, b: float, d: float,
     diag = np.eye(3)
     h_orb = (np.sqrt(3.0) * d) * eps * (1.0 - diag) + (3.0 * b) * eps * diag
     h_orb = h_orb + ((a_v - b) * tr)[..., None, None] * diag
-    h = np.einsum("...ij,st->...isjt", h_orb, np.eye(2)).reshape(eps.shape[:-2] + (6, 6))
+    h = np.zeros(eps.shape[:-2] + (3, 2, 3, 2))                 # h_orb (x) identity(spin)
+    h[..., :, 0, :, 0] = h_orb
+    h[..., :, 1, :, 1] = h_orb
+    h = h.reshape(eps.shape[:-2] + (6, 6))
     return h + (delta_so / 3.0) * _L_DOT_SIGMA
 
 
@@ -384,7 +387,7 @@ def band_edge_shifts(strain_crystal, params: BandParameters) -> dict[str, np.nda
     if params.xi_u_L is not None:
         for key, n in L_DIRECTIONS.items():
             u = np.asarray(n, dtype=float) / np.sqrt(3.0)
-            out[key] = params.xi_d_L * tr + params.xi_u_L * np.einsum("i,...ij,j->...", u, eps, u)
+            out[key] = params.xi_d_L * tr + params.xi_u_L * ((eps @ u) @ u)
     if params.a_c is not None:
         out["gamma_c"] = params.a_c * tr
     out.update(_valence_shifts(eps, params))

@@ -228,8 +228,7 @@ def longitudinal_transverse(direction_sample_xy, stress_sample, R, pi):
     l = v / np.linalg.norm(v)
     t = np.cross([0.0, 0.0, 1.0], l)
     drho = resistivity_change(stress_sample, R, pi)
-    return (np.einsum("i,...ij,j->...", l, drho, l),
-            np.einsum("i,...ij,j->...", t, drho, t))
+    return (drho @ l) @ l, (drho @ t) @ t
 
 
 def _unit(v, what: str) -> np.ndarray:

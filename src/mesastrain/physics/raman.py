@@ -312,13 +312,13 @@ def raman_modes(strain_crystal, p: float, q: float, r: float, omega0: float, R=N
     split = np.diff(w, axis=-1) > degenerate_tol
     ids = np.concatenate([np.zeros(w.shape[:-1] + (1,)), np.cumsum(split, axis=-1)], axis=-1)
     same = ids[..., :, None] == ids[..., None, :]
-    A = np.einsum("...ki,kl,...lj->...ij", V, W, V) * same
+    A = (np.swapaxes(V, -1, -2) @ W @ V) * same
     # separate the clusters by offsets far above W's scale so eigh keeps them apart
     A = A + (10.0 * (np.trace(W) + 1.0)) * ids[..., :, None] * np.eye(3)
     _, U = np.linalg.eigh(A)
     V = V @ U
-    shifts = np.einsum("...ki,...kl,...li->...i", V, K, V)
-    inten = np.einsum("...ki,kl,...li->...i", V, W, V)
+    shifts = np.sum(V * (K @ V), axis=-2)                   # diag(V^T K V)
+    inten = np.sum(V * (W @ V), axis=-2)
     total = np.trace(W)
     with np.errstate(invalid="ignore", divide="ignore"):
         share = inten / total if total > 1e-12 else np.full(inten.shape, np.nan)
