@@ -7,6 +7,7 @@ import numpy as np
 import pytest
 
 from mesastrain.cli.main import main
+from mesastrain.derived.headline import figure_words
 
 pytestmark = pytest.mark.slow
 
@@ -57,7 +58,7 @@ def test_demo_report_shows_every_headline_figure_with_its_error_bars(demo_result
     assert "Headline figures and error bars" in html
     assert "discretisation error" in html and "material scatter" in html
     for row in s["headline"]:
-        assert row["name"] in html
+        assert figure_words(row["name"]) in html
         if row["singular"]:
             assert row["material_scatter"]["singular"]
         else:

@@ -34,7 +34,8 @@ import numpy as np
 
 from mesastrain.run.result import Derived
 
-__all__ = ["CONTRIBUTIONS", "Figure", "derive", "headline_figures", "merged_summary"]
+__all__ = ["CONTRIBUTIONS", "Figure", "derive", "figure_words", "headline_figures",
+           "merged_summary"]
 
 #: Summary keys of providers that attach an error contribution to headline figures:
 #: ``summary[key]["figures"][figure name] = {"error": float, ...}`` (same unit as the
@@ -73,6 +74,18 @@ class Figure:
     singular: bool = False
     region: str = ""
     at: tuple | None = None
+
+
+#: Tokens of figure names shown in words on the terminal and in the report (the names
+#: themselves stay ASCII: sweeps and scripts address figures by them).
+_WORDS = {"sxx": "σxx", "syy": "σyy", "szz": "σzz", "von_mises": "von Mises",
+          "standoff": "stand-off"}
+
+
+def figure_words(name: str) -> str:
+    """A figure name for reading: ``"standoff A/B edge A von_mises"`` -> ``"stand-off A/B edge
+    A von Mises"``, ``"SiGe centre sxx"`` -> ``"SiGe centre σxx"`` (whole words only)."""
+    return " ".join(_WORDS.get(w, w) for w in name.split(" "))
 
 
 def merged_summary(res) -> dict:

@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import math
 
+from mesastrain.derived.headline import figure_words
 from mesastrain.io.markup import esc, table
 
 __all__ = ["SINGULAR_TEXT", "bar", "figure_texts", "section_headline_errors", "value_text"]
@@ -55,15 +56,16 @@ def figure_texts(row: dict) -> dict:
         ``name``, ``value`` (with unit), ``discretisation`` and ``scatter``
         (the bars, '' when absent), ``dominant`` (the group that dominates the
         scatter, '' when none), ``singular`` (bool) and ``line``: the one-line
-        form, e.g. ``"SiGe centre sxx -1340 MPa +- 45 (mostly SiGe lattice law)"``.
+        form, e.g. ``"SiGe centre σxx -1340 MPa +- 45 (mostly SiGe lattice law)"``; the
+        name in words (:func:`mesastrain.derived.headline.figure_words`).
     """
     singular = bool(row.get("singular"))
     disc = row.get("discretisation_error") or {}
     scat = row.get("material_scatter") or {}
-    out = {"name": row["name"], "value": value_text(row["value"], row["unit"]),
+    out = {"name": figure_words(row["name"]), "value": value_text(row["value"], row["unit"]),
            "singular": singular, "discretisation": "", "scatter": "", "dominant": ""}
     if singular:
-        out["line"] = f"{row['name']} {out['value']} ({SINGULAR_TEXT})"
+        out["line"] = f"{out['name']} {out['value']} ({SINGULAR_TEXT})"
         return out
     out["discretisation"] = bar(disc.get("error"))
     out["scatter"] = bar(scat.get("error"))
@@ -75,7 +77,7 @@ def figure_texts(row: dict) -> dict:
                      + (f", mostly {out['dominant']}" if out["dominant"] else ""))
     if out["discretisation"]:
         parts.append(f"{out['discretisation']} mesh")
-    out["line"] = f"{row['name']} {out['value']}" + (f" ({'; '.join(parts)})" if parts else "")
+    out["line"] = f"{out['name']} {out['value']}" + (f" ({'; '.join(parts)})" if parts else "")
     return out
 
 

@@ -281,7 +281,7 @@ def section_headline(summary: dict, folder: Path) -> str | None:
             f"{num(en.get('blanket'), 3)} / {num(en.get('patterned'), 3)}",
             (num(mb, 3, "nm") if mb is not None else "-") + flag,
             num(pb, 3, "nm") if pb is not None else "-"])
-    out = ["<h2>Headline figures</h2>",
+    out = ["<h2>Layer by layer: centre, edges, peaks, energy, critical thickness</h2>",
            table(["layer", "blanket &sigma;<sub>xx</sub> / &sigma;<sub>yy</sub> (MPa)",
                   "centre &sigma;<sub>xx</sub> / &sigma;<sub>yy</sub> (MPa)", "centre / blanket",
                   "relaxation length x", "relaxation length y",

@@ -57,3 +57,11 @@ def test_contributions_are_attached_by_name(small_mesa_result):
     scatter = merged_summary(res)["material_scatter"]["figures"]
     assert rows[0]["material_scatter"] == scatter[name]
     assert set(Figure.__dataclass_fields__) <= set(rows[0])
+
+
+def test_figure_words_reads_names_without_changing_them():
+    assert headline.figure_words("standoff SiGe/substrate edge SiGe von_mises") == \
+        "stand-off SiGe/substrate edge SiGe von Mises"
+    assert headline.figure_words("SiGe centre sxx") == "SiGe centre σxx"
+    # whole words only: a region called "sxx_cap" keeps its name
+    assert headline.figure_words("sxx_cap centre syy") == "sxx_cap centre σyy"

@@ -88,12 +88,12 @@ def test_report_section_and_terminal_table(small_mesa_result):
     text = headline_table(s)
     lines = text.splitlines()
     assert lines[0].startswith("headline figure")
-    centre = next(ln for ln in lines if ln.startswith("SiGe centre sxx"))
+    centre = next(ln for ln in lines if ln.startswith("SiGe centre σxx"))
     assert "MPa" in centre and "\u00b1" in centre and "(mostly SiGe lattice law)" in centre
     assert any("interface" in ln and "singular" in ln for ln in lines)
     row = next(r for r in s["headline"] if r["name"] == "SiGe centre sxx")
     t = figure_texts(row)
-    assert t["line"].startswith("SiGe centre sxx -") and "mostly SiGe lattice law" in t["line"]
+    assert t["line"].startswith("SiGe centre σxx -") and "mostly SiGe lattice law" in t["line"]
     assert section_headline_errors({"headline": []}, None) is None
 
 
