@@ -60,6 +60,7 @@ from mesastrain.case.schema import (
     SHAPE_KEYS,
     SHAPE_REQUIRES,
     TITLE,
+    ABOUT,
     TOP_KEYS,
     default_order,
     table,
@@ -299,7 +300,8 @@ class _Parser:
         check_nesting(data)
         data, self.notes = modernise(data)
         self.data = data
-        special = {TITLE.name: TITLE.kind.read, "substrate": self._substrate,
+        special = {TITLE.name: TITLE.kind.read, ABOUT.name: ABOUT.kind.read,
+                   "substrate": self._substrate,
                    "layer": self._layers, "pattern": self._pattern, "cut": self._cuts,
                    "dislocation": self._dislocations, "liner": self._liners}
         for name in data:
@@ -366,7 +368,8 @@ class _Parser:
                 parts[tab.attr] = _build(name, got[name])
             else:
                 parts[tab.attr] = None if name == "thermal" else _build(name, {})
-        return Case(title=title, source=self.source, materials=tuple(self.materials.values()),
+        return Case(title=title, about=got.get(ABOUT.name, ABOUT.default),
+                    source=self.source, materials=tuple(self.materials.values()),
                     notes=tuple(str(n) for n in self.notes),
                     written=written_quantities(self.data), **parts)
 

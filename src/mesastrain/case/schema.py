@@ -43,7 +43,7 @@ __all__ = [
     "MAX_CUT_POINTS", "MAX_SOLVER_ITERATIONS", "VTU_FIELDS",
     "PATTERN_SHAPES", "SCHEMA_FILE", "SCHEMA_VERSION", "SHAPE_KEYS",
     "SHAPE_REQUIRES", "SIDEWALL_ANGLE_RANGE", "SOLVER_METHODS", "SOLVER_PRECISIONS",
-    "SYMMETRY_CHOICES", "TABLES", "TITLE", "TOP_KEYS", "UNCERTAINTY", "UNCERTAINTY_GROUPS", "default_order", "json_schema",
+    "SYMMETRY_CHOICES", "TABLES", "TITLE", "ABOUT", "TOP_KEYS", "UNCERTAINTY", "UNCERTAINTY_GROUPS", "default_order", "json_schema",
     "json_schema_text", "table",
 ]
 
@@ -216,6 +216,9 @@ GROUPS = Kind(rd.groups, {"type": "object", "minProperties": 1, "maxProperties":
 # the tables
 # --------------------------------------------------------------------------
 TITLE = Key("title", STRING, "Title of the case.", computed="the file name without extension")
+ABOUT = Key("about", STRING, "A few words shown with the results: printed before the run's "
+                             "warnings and at the top of the report (what the case is for, "
+                             "and why a warning is expected).", default="")
 
 SUBSTRATE = Table("substrate", "substrate", "The wafer.", (
     Key("material", MATERIAL, "Material name, as `mesastrain materials` lists them.",
@@ -549,7 +552,7 @@ MATERIAL = Table("material", "materials", "Materials of one's own, [material.NAM
 TABLES = (SUBSTRATE, LAYER, LINER, PATTERN, THERMAL, MESH, SOLVER, PROBE, CUT, OUTPUT, CHANNEL,
           DEVICE, READOUTS, DISLOCATIONS, UNCERTAINTY)
 #: The allowed top-level keys.
-TOP_KEYS = (TITLE.name, MATERIAL.name) + tuple(t.name for t in TABLES)
+TOP_KEYS = (TITLE.name, ABOUT.name, MATERIAL.name) + tuple(t.name for t in TABLES)
 _BY_NAME = {t.name: t for t in TABLES}
 
 
@@ -620,7 +623,7 @@ def json_schema() -> dict:
     -------
     dict
     """
-    props = {TITLE.name: _key_schema(TITLE)}
+    props = {TITLE.name: _key_schema(TITLE), ABOUT.name: _key_schema(ABOUT)}
     one = _table_schema(MATERIAL)
     one["required"] = ["system"]
     props[MATERIAL.name] = {"type": "object", "description": MATERIAL.doc,

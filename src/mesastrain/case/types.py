@@ -24,6 +24,7 @@ from mesastrain.case.schema import (
     SOLVER,
     TABLES,
     TITLE,
+    ABOUT,
     UNCERTAINTY,
 )
 from mesastrain.physics.materials import get_material, material_from_table
@@ -522,6 +523,8 @@ class Case:
     Attributes
     ----------
     title : str
+    about : str
+        ``about``: shown before the warnings and atop the report ("" when not given).
     substrate : Substrate
     layers : tuple of Layer
         Bottom to top; at least one.
@@ -568,6 +571,7 @@ class Case:
     dislocations: tuple = ()
     materials: tuple = ()
     liners: tuple = ()
+    about: str = ABOUT.default
     notes: tuple = field(default=(), compare=False)
     written: tuple = field(default=(), compare=False)
 
@@ -622,6 +626,8 @@ class Case:
         dict
         """
         out = {TITLE.name: self.title}
+        if self.about:
+            out[ABOUT.name] = self.about
         if self.materials:
             out[MATERIAL.name] = {m.name: m.as_table() for m in self.materials}
         for tab in TABLES:

@@ -128,7 +128,10 @@ def _solve_and_write(args, case, dest) -> int:
             made += ", pictures" + (", report.html" if case.output.report else "")
         print(f"results in {out}/ ({made})")
         print(CAUTION)
-        for w in summary.get("warnings", ()):
+        warnings = summary.get("warnings", ())
+        if warnings and case.about:
+            print(f"about this case: {one_line(case.about)}", file=sys.stderr)
+        for w in warnings:
             print(f"warning: {one_line(w)}", file=sys.stderr)
     return 0
 

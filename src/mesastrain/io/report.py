@@ -83,10 +83,13 @@ SECTIONS: tuple[Callable[[dict, Path], str | None], ...] = (
 # the whole report
 # --------------------------------------------------------------------------
 def _warnings_block(summary: dict) -> str:
+    """The case's own ``about`` text (when given), then the warnings."""
+    about = (summary.get("case") or {}).get("about")
+    head = f'<p class="about">{esc(about)}</p>' if about else ""
     w = summary.get("warnings") or []
     if not w:
-        return '<div class="ok">No warnings.</div>'
-    return ('<div class="warn"><b>Warnings</b><ul>'
+        return head + '<div class="ok">No warnings.</div>'
+    return (head + '<div class="warn"><b>Warnings</b><ul>'
             + "".join(f"<li>{esc(x)}</li>" for x in w) + "</ul></div>")
 
 
