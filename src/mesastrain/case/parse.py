@@ -55,12 +55,12 @@ from mesastrain.case.keys import read_table
 from mesastrain.case.names import region_names
 from mesastrain.case.renames import modernise
 from mesastrain.case.schema import (
+    ABOUT,
     MATERIAL,
     PATTERN,
     SHAPE_KEYS,
     SHAPE_REQUIRES,
     TITLE,
-    ABOUT,
     TOP_KEYS,
     default_order,
     table,

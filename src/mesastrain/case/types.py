@@ -13,6 +13,7 @@ from dataclasses import dataclass, field
 
 from mesastrain.case.keys import echo
 from mesastrain.case.schema import (
+    ABOUT,
     CUT,
     DEVICE,
     DISLOCATIONS,
@@ -24,7 +25,6 @@ from mesastrain.case.schema import (
     SOLVER,
     TABLES,
     TITLE,
-    ABOUT,
     UNCERTAINTY,
 )
 from mesastrain.physics.materials import get_material, material_from_table
