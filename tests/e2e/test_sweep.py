@@ -366,14 +366,14 @@ def test_headline_error_bars_are_collected_and_banded(tmp_path):
     from mesastrain.derived.headline import CONTRIBUTIONS
 
     assert tuple(ERROR_CONTRIBUTIONS) == CONTRIBUTIONS
-    f = "headline.layer 1 centre sxx.value"
-    assert error_paths(f)["material_scatter"] == "headline.layer 1 centre sxx.material_scatter.error"
+    f = "headline.SiGe centre sxx.value"
+    assert error_paths(f)["material_scatter"] == "headline.SiGe centre sxx.material_scatter.error"
     assert error_paths("probes.centre.stress.xx") == {}
     sw = parse_sweep(_sweep(vary=[{"key": "pattern.width", "values": [200, 300, 400]}],
                             collect={"figures": [f]}), base=SMALL_BASE)
     outs = []
     for k, c in enumerate(expand(sw)):
-        row = {"name": "layer 1 centre sxx", "value": -100.0 * (k + 1), "unit": "MPa",
+        row = {"name": "SiGe centre sxx", "value": -100.0 * (k + 1), "unit": "MPa",
                "material_scatter": {"error": 10.0 * (k + 1), "dominant": "SiGe lattice law"}}
         if k:                     # the first case ran without a discretisation estimate
             row["discretisation_error"] = {"error": 3.0}
