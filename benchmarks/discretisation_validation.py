@@ -34,19 +34,10 @@ from mesastrain.derived.bow import (  # noqa: E402
 from mesastrain.derived.discretisation import estimate  # noqa: E402
 from mesastrain.physics.thinfilm import bow_height  # noqa: E402
 from mesastrain.run.pipeline import run_case  # noqa: E402
-from small_cases import sige_on_si  # noqa: E402
-
-PROBE = '[[probe]]\nname = "centre"\nat = [0, 0, 10]\n'
+from small_cases import SHAPE_CASES  # noqa: E402
 
 #: name -> case text (our own scenarios, coarse meshes).
-CASES = {
-    "mesa hex1": sige_on_si("mesa", 'shape = "rectangle"\nwidth = "200 nm"\nlength = "300 nm"',
-                            "order = 1\nsize = 40\nedge_size = 12", extra=PROBE),
-    "stripe quad2": sige_on_si("stripe", 'shape = "stripe"\nwidth = "200 nm"',
-                               "order = 2\nsize = 40\nedge_size = 12", extra=PROBE),
-    "disk tet2": sige_on_si("disk", 'shape = "disk"\ndiameter = "200 nm"',
-                            "order = 2\nsize = 40\nedge_size = 15", extra=PROBE),
-}
+CASES = SHAPE_CASES
 
 
 def with_refine(case, r: float):

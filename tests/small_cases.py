@@ -38,6 +38,18 @@ name = "centre"
 at = [0, 0, 10]
 """
 
+#: One coarse case per discretisation family (our own scenarios): a 200 x 300 nm mesa on
+#: trilinear hexahedra, a 200 nm stripe section on quadratic quadrilaterals and a 200 nm disk
+#: on quadratic tetrahedra, each with the centre probe.
+SHAPE_CASES = {
+    "mesa hex1": sige_on_si("mesa", 'shape = "rectangle"\nwidth = "200 nm"\nlength = "300 nm"',
+                            "order = 1\nsize = 40\nedge_size = 12", extra=CENTRE_PROBE),
+    "stripe quad2": sige_on_si("stripe", 'shape = "stripe"\nwidth = "200 nm"',
+                               "order = 2\nsize = 40\nedge_size = 12", extra=CENTRE_PROBE),
+    "disk tet2": sige_on_si("disk", 'shape = "disk"\ndiameter = "200 nm"',
+                            "order = 2\nsize = 40\nedge_size = 15", extra=CENTRE_PROBE),
+}
+
 #: A 200 nm square Si0.8Ge0.2 mesa on Si(001), <110> edges, coarse mesh, one probe.
 SMALL_MESA = sige_on_si("small mesa", 'shape = "rectangle"\nwidth = "200 nm"',
                         "order = 1\nsize = 25\nedge_size = 10", extra=CENTRE_PROBE)

@@ -24,19 +24,11 @@ from mesastrain.derived import device, readouts
 from mesastrain.derived.discretisation import estimate
 from mesastrain.derived.headline import headline_figures
 from mesastrain.run.pipeline import run_case
-from small_cases import sige_on_si
+from small_cases import SHAPE_CASES
 
 pytestmark = pytest.mark.slow
 
-PROBE = '[[probe]]\nname = "centre"\nat = [0, 0, 10]\n'
-CASES = {
-    "mesa hex1": sige_on_si("mesa", 'shape = "rectangle"\nwidth = "200 nm"\nlength = "300 nm"',
-                            "order = 1\nsize = 40\nedge_size = 12", extra=PROBE),
-    "stripe quad2": sige_on_si("stripe", 'shape = "stripe"\nwidth = "200 nm"',
-                               "order = 2\nsize = 40\nedge_size = 12", extra=PROBE),
-    "disk tet2": sige_on_si("disk", 'shape = "disk"\ndiameter = "200 nm"',
-                            "order = 2\nsize = 40\nedge_size = 15", extra=PROBE),
-}
+CASES = SHAPE_CASES
 #: Element sizes of the reference solve divided by this (the disk: 2, for memory and time).
 REFERENCE = {"mesa hex1": 3.0, "stripe quad2": 3.0, "disk tet2": 2.0}
 PROVIDERS = (device.derive, readouts.derive)
