@@ -2,6 +2,8 @@
 
 import json
 
+import pytest
+
 from mesastrain.case.parse import parse_case
 from mesastrain.cli.main import main
 from small_cases import CENTRE_PROBE, sige_on_si
@@ -19,6 +21,7 @@ def test_about_is_read_echoed_and_optional():
     assert parse_case(base).about == "" and "about" not in parse_case(base).to_dict()
 
 
+@pytest.mark.slow
 def test_about_comes_before_the_warnings_and_in_the_report(tmp_path, capsys):
     # 20 nm of Si0.8Ge0.2 is past its Matthews-Blakeslee thickness: the run warns
     text = sige_on_si("about", 'shape = "rectangle"\nwidth = "200 nm"',

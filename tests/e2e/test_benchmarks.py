@@ -56,6 +56,7 @@ def test_uncertainty_cost_runs_tiny(tmp_path):
     assert row["default"]["groups"] == ["Si C_ij", "SiGe C_ij", "SiGe lattice law",
                                         "Raman PDP set", "deformation potentials"]
     assert row["ratio"] > 0 and row["default"]["solves_s"] > 0
+@pytest.mark.slow
 def test_discretisation_cost_runs_tiny():
     out = run("discretisation_cost.py", "--tiny", timeout=300)
     assert "extra %" in out and "eta %" in out

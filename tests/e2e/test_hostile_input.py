@@ -151,6 +151,7 @@ def test_sweep_wait_and_workers_bounded(option, tmp_path, capsys, monkeypatch):
 
 
 # ---------------------------------------------------------------- check covers the outline
+@pytest.mark.slow
 def test_check_estimates_polygon_meshing_time(tmp_path, capsys):
     """A 200-vertex outline takes many minutes to mesh: check must not say seconds."""
     a = np.linspace(0, 2 * np.pi, 200, endpoint=False)

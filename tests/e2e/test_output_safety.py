@@ -140,6 +140,7 @@ def test_overwrite_refuses_a_folder_that_is_not_a_result(project, tmp_path, caps
             "--out", "symbolic link")
 
 
+@pytest.mark.slow
 def test_overwrite_replaces_a_previous_result_only(project, tmp_path, capsys):
     out = tmp_path / "res"
     assert main(["run", str(project), "--out", str(out), "-q"]) == 0
@@ -206,6 +207,7 @@ def test_read_only_folder_is_refused_without_root(project, tmp_path, capsys, no_
         ro.chmod(0o755)
 
 
+@pytest.mark.slow
 def test_full_disk_gives_one_line_and_leaves_nothing(project, tmp_path, capsys, tmpfs):
     small = tmpfs("small", "size=300k")
     previous = small / "res"
@@ -222,6 +224,7 @@ def test_full_disk_gives_one_line_and_leaves_nothing(project, tmp_path, capsys, 
     assert json.loads((previous / "summary.json").read_text())["previous"] is True
 
 
+@pytest.mark.slow
 def test_result_folder_follows_the_umask(project, tmp_path):
     old = os.umask(0o027)
     try:
@@ -232,6 +235,7 @@ def test_result_folder_follows_the_umask(project, tmp_path):
     assert (tmp_path / "res" / "summary.json").stat().st_mode & 0o777 == 0o640
 
 
+@pytest.mark.slow
 def test_write_error_is_one_line(project, tmp_path, capsys, monkeypatch):
     import mesastrain.io.folder as folder
 

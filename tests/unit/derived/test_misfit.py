@@ -382,6 +382,7 @@ def _dislocation_part(res):
     return next(d for d in res.derived if "dislocations" in d.summary)
 
 
+@pytest.mark.slow
 def test_blanket_case_relaxes_by_the_requested_fraction():
     # End to end: [[dislocations]] relaxation = 0.35 on a blanket Si0.7Ge0.3/Si(001)
     # film -> spacing S = b_edge / (0.35 |f|) with b_edge = a/(2 sqrt 2) (60-degree
@@ -420,6 +421,7 @@ def test_blanket_case_relaxes_by_the_requested_fraction():
     assert np.allclose(rest, plain.cell_stress, atol=1e-5 * np.abs(rest).max())
 
 
+@pytest.mark.slow
 def test_blanket_surface_is_traction_free_but_overlay_is_not():
     # The FE field of a misfit array leaves the top surface traction-free (its
     # defining boundary condition, common practice); the infinite-medium overlay of

@@ -16,6 +16,7 @@ DISK = sige_on_si("disk", 'shape = "disk"\ndiameter = "160 nm"', "order = 1\nsiz
 
 @pytest.mark.parametrize("text", [SMALL_MESA, DISK], ids=["bricks", "tetrahedra"])
 @pytest.mark.parametrize("order", [1, 2])
+@pytest.mark.slow
 def test_apply_stiffness_equals_assembled_product(text, order):
     d = tomllib.loads(text)
     d["mesh"]["order"] = order

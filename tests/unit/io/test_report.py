@@ -83,6 +83,7 @@ def test_no_report_when_switched_off(tmp_path):
     assert not list((tmp_path / "r").glob("map_*.png"))
 
 
+@pytest.mark.slow
 def test_report_without_fields_says_why(tmp_path):
     data = dict(CASE, output={"vtu": False}, readouts={"bow": False})
     data.pop("cut")

@@ -63,6 +63,7 @@ def _simpson(f, a, b) -> float:
 # the mesh conforms: liner volumes against closed forms
 # --------------------------------------------------------------------------
 @pytest.mark.parametrize("angle", [90.0, 75.0, 100.0])
+@pytest.mark.slow
 def test_rectangle_liner_volume_is_the_offset_solid_minus_the_feature(angle):
     W, L, H = 200.0, 120.0, 60.0
     liners = [{"material": "SiO2", "thickness": 6, "sidewall_thickness": 4,
@@ -131,6 +132,7 @@ def test_disk_liner_volume_is_the_offset_cylinder_minus_the_disk(angle):
 # --------------------------------------------------------------------------
 # physics
 # --------------------------------------------------------------------------
+@pytest.mark.slow
 def test_liner_over_a_wide_mesa_keeps_its_blanket_stress_at_the_centre():
     # Stoney 1909: a thin film on a thick substrate carries its biaxial stress; 3 um wide
     # against 70 nm of liner-covered stack, the centre of the top is the blanket state
@@ -246,6 +248,7 @@ def _runs_with_liner(pattern, mesh):
 
 
 @pytest.mark.parametrize("name", list(SHAPES))
+@pytest.mark.slow
 def test_structured_and_section_shapes_run_with_a_liner(name):
     _runs_with_liner(*SHAPES[name])
 
@@ -256,6 +259,7 @@ def test_gmsh_shapes_run_with_a_liner(name):
     _runs_with_liner(*GMSH_SHAPES[name])
 
 
+@pytest.mark.slow
 def test_disk_with_a_liner_small():
     # one gmsh shape in the fast tests: a coarse disk
     res = _runs_with_liner({"shape": "disk", "diameter": 80}, {"size": 25, "order": 1})

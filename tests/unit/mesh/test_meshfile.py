@@ -59,6 +59,7 @@ def msh(tmp_path_factory):
     return d
 
 
+@pytest.mark.slow
 def test_imported_stack_is_a_blanket_film(msh):
     res = run_case(case_for(msh / "stack_nm.msh"))
     film = res.layers[1]

@@ -98,6 +98,7 @@ def test_grating_without_gap_is_the_blanket_film():
     assert res.probes[1]["stress"][0, 0] == pytest.approx(blanket[0, 0], rel=1e-6)
 
 
+@pytest.mark.slow
 def test_section_matches_mid_length_of_long_mesa():
     # The same x-z grading in both models; the 3-D mesa is five widths long and solved as a
     # quarter (both mirrors hold on (001) with x = [110]).

@@ -101,6 +101,7 @@ def test_110_unequal_in_plane_stress():
     assert p["stress"][1, 1] == pytest.approx(sy * f * 1000, rel=5e-3)
 
 
+@pytest.mark.slow
 def test_partial_relaxation_and_reference_chain():
     # A fully relaxed SiGe buffer (relaxed = 1) carries no stress; a Si layer on it is
     # strained to the SiGe lattice: in-plane strain (a_SiGe - a_Si)/a_Si (the usual
