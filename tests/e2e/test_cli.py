@@ -83,6 +83,13 @@ def test_check_text(small_case, capsys):
     assert main(["check", str(small_case)]) == 0
     out = capsys.readouterr().out
     assert "unknowns" in out and "GB" in out
+    assert "liners" not in out
+
+
+def test_check_lists_the_stack_with_its_liners(capsys):
+    assert main(["check", str(ROOT / "cases" / "sin_liner_fin.toml")]) == 0
+    stack = next(ln for ln in capsys.readouterr().out.splitlines() if ln.startswith("stack"))
+    assert "layers Si fin 50 nm" in stack and stack.endswith("liners SiN liner 10 nm")
 
 
 @pytest.mark.slow

@@ -12,6 +12,13 @@ from mesastrain.case.parse import load_case
 from mesastrain.cli.common import EXIT_USAGE, err, notes
 
 
+def _films(case, key: str, items) -> str:
+    """``name thickness`` of each layer or liner, thickness as the case file wrote it."""
+    return ", ".join(f"{it.name} "
+                     f"{case.as_written(f'{key}[{i}].thickness') or f'{it.thickness:g} nm'}"
+                     for i, it in enumerate(items))
+
+
 def cmd_check(args) -> int:
     """``mesastrain check``: 0 when the case is valid and fits in memory, 2 otherwise."""
     from mesastrain.mesh.kinds import mesh_kind
@@ -31,10 +38,10 @@ def cmd_check(args) -> int:
     else:
         print(f"case      {args.case}: {case.title} (valid)")
         sub = case.as_written("substrate.thickness") or f"{case.substrate.thickness:g} nm"
-        layers = ", ".join(f"{lay.name} {case.as_written(f'layer[{i}].thickness') or f'{lay.thickness:g} nm'}"
-                           for i, lay in enumerate(case.layers))
-        print(f"stack     substrate {case.substrate.material} {sub}; layers {layers} "
-              f"({case.stack_thickness:g} nm in all); pattern {case.pattern.shape}")
+        print(f"stack     substrate {case.substrate.material} {sub}; layers "
+              f"{_films(case, 'layer', case.layers)} ({case.stack_thickness:g} nm in all); "
+              f"pattern {case.pattern.shape}"
+              + (f"; liners {_films(case, 'liner', case.liners)}" if case.liners else ""))
         sol = d["solved"]
         model = "" if sol["symmetry"] == "full" else f", {sol['symmetry']} model"
         print(f"elements  {sol['element_type']}, order {est.order} ({d['mesh_kind']} "
