@@ -3,7 +3,7 @@
 The JSON Schema is generated from the declarations in mesastrain.case.schema and shipped as
 package data. After changing a declaration, regenerate the shipped file with
 
-    PYTHONPATH=src python -m mesastrain.case.schema
+    PYTHONPATH=src python -m mesastrain.case.schema_json
 
 and commit src/mesastrain/case/schemas/case-1.json with the change.
 """
@@ -22,7 +22,8 @@ import pytest
 from mesastrain.case import types
 from mesastrain.case.parse import load_case, parse_case
 from mesastrain.case.renames import RENAMED_TABLES
-from mesastrain.case.schema import SCHEMA_FILE, TABLES, TOP_KEYS, json_schema, json_schema_text
+from mesastrain.case.schema import SCHEMA_FILE, TABLES, TOP_KEYS
+from mesastrain.case.schema_json import json_schema, json_schema_text
 from mesastrain.errors import CaseError
 
 ROOT = Path(__file__).resolve().parents[3]
@@ -39,7 +40,7 @@ def _shipped() -> dict:
 
 
 def test_shipped_schema_is_the_generated_one():
-    # regenerate with: PYTHONPATH=src python -m mesastrain.case.schema
+    # regenerate with: PYTHONPATH=src python -m mesastrain.case.schema_json
     assert SCHEMA_FILE.read_text(encoding="utf-8") == json_schema_text()
     assert _shipped() == json_schema()
 
