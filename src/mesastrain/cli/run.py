@@ -39,18 +39,17 @@ def results_table(summary: dict) -> str:
     """Short plain-text table of the headline results of a run (MPa).
 
     Regions by name (``layer_figures`` of ``summary.json``); a peak von Mises stress
-    that sits at a singular corner or edge (``readouts`` peaks) is marked with ``*``.
+    that sits at a singular corner or edge (``max_von_mises_singular``, the flag the
+    report uses too) is marked with ``*``.
     """
     figs = summary["layer_figures"]
     wide = max([15] + [len(n) + 1 for n in figs])
     lines = [f"{'region':<{wide}} {'material':<14}  mean σxx   mean σyy   mean σzz  "
              f"max von Mises"]
-    peaks = {n: ((e.get("peaks") or {}).get("von_mises") or {})
-             for n, e in (summary.get("readouts") or {}).get("layers", {}).items()}
     starred = False
     for name, lf in figs.items():
         s = lf["mean_stress"]
-        star = "*" if peaks.get(name, {}).get("singular") else ""
+        star = "*" if lf.get("max_von_mises_singular") else ""
         starred = starred or bool(star)
         lines.append(f"{name:<{wide}} {lf['label']:<14}{_fmt(s[0][0])} {_fmt(s[1][1])} "
                      f"{_fmt(s[2][2])} {_fmt(lf['max_von_mises'])}{star}")
