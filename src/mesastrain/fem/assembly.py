@@ -345,6 +345,18 @@ def _element_matrices(disc: Discretisation, sl: slice, reg: np.ndarray, Cm: np.n
     return Ke.reshape(n, nloc, nloc, 3, 3), False
 
 
+def _blocks(flag: np.ndarray, region: np.ndarray, step: int):
+    """Blocks of at most ``step`` elements whose region is flagged: slices when every
+    region is (views of the element arrays), else index arrays."""
+    if np.all(flag[np.unique(region)]):
+        for start in range(0, region.size, step):
+            yield slice(start, min(start + step, region.size))
+        return
+    active = np.flatnonzero(flag[region])
+    for start in range(0, active.size, step):
+        yield active[start:start + step]
+
+
 def _chunk(disc: Discretisation) -> int:
     return max(1, CHUNK_ENTRIES // (9 * disc.nloc * disc.nloc))
 
@@ -413,10 +425,12 @@ def apply_stiffness(disc: Discretisation, region: np.ndarray, stiffness: np.ndar
     Qref = _brick_reference(disc.bricks)[0] if disc.bricks is not None else None
     U = np.asarray(u, dtype=float).reshape(-1, 3)
     out = np.zeros(disc.ndofs)
-    nel, nloc = disc.nelems, disc.nloc
+    nloc = disc.nloc
     step = _chunk(disc)
-    for start in range(0, nel, step):
-        sl = slice(start, min(start + step, nel))
+    # regions with a zero stiffness (a sensitivity's dC outside the varied material)
+    # contribute nothing: only the elements of the others are visited
+    held = np.any(np.asarray(stiffness).reshape(-1, 36) != 0, axis=1)
+    for sl in _blocks(held, region, step):
         nodes = disc.element_dofs[:, sl].T.astype(np.int64)              # (n, nloc)
         ue = U[nodes]                                                    # (n, b, k)
         Ke, pairs_first = _element_matrices(disc, sl, region[sl], Cm, Qref)
@@ -438,9 +452,9 @@ def assemble_load(disc: Discretisation, region: np.ndarray, stiffness: np.ndarra
     sigma0 = np.einsum("gijkl,gkl->gij", C, np.asarray(eigenstrain, dtype=float).reshape(-1, 3, 3))
     rref = _brick_reference(disc.bricks)[1] if disc.bricks is not None else None
     f = np.zeros(disc.ndofs)
-    nel = disc.nelems
-    for start in range(0, nel, CHUNK):
-        sl = slice(start, min(start + CHUNK, nel))
+    # regions without an eigenstress load nothing (unless a per-cell eigenstrain is given)
+    loaded = np.any(sigma0.reshape(len(sigma0), -1) != 0, axis=1) | (cell_eigenstrain is not None)
+    for sl in _blocks(loaded, region, CHUNK):
         reg = region[sl]
         if rref is not None:
             h = disc.bricks.h[sl]

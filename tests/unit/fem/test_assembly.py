@@ -205,6 +205,19 @@ def test_load_alone_matches_assemble():
     np.testing.assert_array_equal(assemble_load(disc, group, STIFF, EIG), f)
 
 
+def test_load_skips_unloaded_regions_exactly():
+    # group 0 without eigenstrain: its elements are not visited; the same load given as
+    # a per-cell eigenstrain (every element visited) is the reference
+    disc = discretise(graded_mesh(), 1)
+    group = np.arange(disc.nelems) % 2
+    eig = np.asarray(EIG, dtype=float).copy()
+    eig[0] = 0.0
+    f = assemble_load(disc, group, STIFF, np.zeros_like(eig), eig[group])
+    got = assemble_load(disc, group, STIFF, eig)
+    assert np.any(f != 0)
+    np.testing.assert_allclose(got, f, rtol=0, atol=1e-12 * np.abs(f).max())
+
+
 @pytest.mark.parametrize("order, refine", [(1, 0.6), (1, 1.0), (2, 0.4)])
 def test_estimate_counts_unknowns_and_nonzeros_exactly(order, refine):
     # `mesastrain check` promises exact unknowns: count them without meshing, then mesh
