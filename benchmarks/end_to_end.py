@@ -15,8 +15,9 @@ Columns (seconds of wall time unless stated):
 start
     imports before the first stage (the command line's start-up, measured from
     the first line of the child process: the interpreter's own start is not in it)
-mesh, assembly, solve, recovery, derived
-    the stages of ``summary.json`` ``timings`` (solve includes the multigrid set-up)
+mesh, assembly, solve, sensitivities, recovery, derived
+    the stages of ``summary.json`` ``timings`` (solve includes the multigrid set-up;
+    sensitivities are the extra solves of the material scatter, column "sensitiv")
 fields, tables, pictures, report
     the writing stages (``write_*`` timings): fields.vtu, CSV files, every PNG,
     report.html
@@ -50,7 +51,7 @@ sys.path.insert(0, str(Path(__file__).resolve().parent))
 
 from common import DEMO, ROOT, peak_rss_gb, refine_for  # noqa: E402
 
-STAGES = ("mesh", "assembly", "solve", "recovery", "derived")
+STAGES = ("mesh", "assembly", "solve", "sensitivities", "recovery", "derived")
 WRITES = ("write_fields", "write_tables", "write_pictures", "write_report")
 
 
@@ -97,7 +98,7 @@ def measure(case: Path, out: Path, quick: bool, src: Path = ROOT / "src") -> dic
 
 def table(rows: list[tuple[str, dict]]) -> str:
     head = (f"{'case':<12}{'solved':>10}{'nodes':>10}{'start':>7}"
-            + "".join(f"{s:>9}" for s in STAGES)
+            + "".join(f"{s[:8]:>9}" for s in STAGES)
             + "".join(f"{s[6:]:>9}" for s in WRITES)
             + f"{'total':>8}{'out %':>7}{'peak GB':>8}{'vtu MB':>8}{'B/node':>7}{'cpu s':>7}")
     lines = [head]

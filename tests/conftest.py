@@ -12,12 +12,18 @@ the inner loop, ``pytest -m slow`` runs the rest.
 
 import contextlib
 import io
+import os
 from dataclasses import dataclass
 from pathlib import Path
 
 import pytest
 
 from small_cases import SMALL_MESA
+
+# pytest-xdist already runs one test process per core: the derived-quantity providers of
+# each run then take one thread (tests/unit/run/test_providers.py runs them on two)
+if os.environ.get("PYTEST_XDIST_WORKER"):
+    os.environ.setdefault("MESASTRAIN_THREADS", "1")
 
 
 @dataclass(frozen=True)

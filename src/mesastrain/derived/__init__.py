@@ -3,7 +3,9 @@
 Each provider is a pure function ``derive(result) -> Derived``. The pipeline runs the
 providers it is given, in order; :data:`PROVIDERS` is the standard list, passed by the
 command line, the sweep workers and the convergence study. Add a provider by writing
-its module here and appending its ``derive`` to :data:`PROVIDERS`.
+its module here and adding its ``derive`` to :data:`PROVIDERS`, with a ``stage``
+attribute when it reads other providers' parts (see
+:func:`mesastrain.run.pipeline.run_providers`: a stage's providers run side by side).
 """
 
 from mesastrain.derived import (
@@ -19,17 +21,21 @@ from mesastrain.derived import (
 )
 from mesastrain.run.pipeline import run_case
 
-#: The standard derived-quantity providers, in run order (the order of the entries in
-#: ``summary.json`` and of the warnings).
+#: The standard derived-quantity providers, in output order (the order of the entries in
+#: ``summary.json`` and of the warnings); a stage's providers run side by side.
 PROVIDERS = (
+    # stage 0: read only the solved result; they run side by side
     device.derive,      # band edges, Raman shift, piezoresistance
     readouts.derive,    # relaxation, corners, tractions, energy, critical thickness
+    discretisation.energy,  # energy-norm error of the stress field
     bow.derive,         # free-standing blanket wafer: FE, Stoney, laminate
     cuts.derive,        # [[cut]] -> CSV + PNG
     misfit.derive,      # dislocation contribution, overlay, relaxation
     tilt.derive,        # layer tilt against the substrate lattice (arcsec)
-    scatter.derive,     # material-data scatter of the headline figures (before headline)
-    discretisation.derive,  # discretisation error of each headline figure (before headline)
+    # stage 1: read the headline figures of stage 0
+    scatter.derive,     # material-data scatter of the headline figures
+    discretisation.derive,  # discretisation error of each headline figure
+    # stage 2
     headline.derive,    # the headline figures with their error contributions (last)
 )
 

@@ -405,3 +405,6 @@ def _probe_values(res, plan: Plan) -> dict:
     index = {lm.name: lm.index for lm in res.layers}
     reg = np.array([index[p["region"]] for p in res.probes])
     return _probe_entries(plan, evaluate(plan, reg, pts, sig), res.probes)
+
+
+derive.weight = 2   # relative cost: started early among the stage-0 providers

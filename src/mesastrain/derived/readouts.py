@@ -271,3 +271,6 @@ def _write_csv(path: Path, header, rows) -> None:
         w.writerow(header)
         for r in rows:
             w.writerow([fmt(v, ".9g") if isinstance(v, float) else v for v in r])
+
+
+derive.weight = 2   # relative cost: started early among the stage-0 providers

@@ -309,3 +309,6 @@ def derive(res) -> Derived:
         "groups": groups, "figures": out_figs,
         "seconds": {"solves": float(res.timings.get("sensitivities", 0.0)),
                     "figures": time.perf_counter() - t0}}}, warnings=warnings)
+
+
+derive.stage = 1   # reads the headline figures of the stage-0 providers

@@ -21,6 +21,11 @@ _OPTIONS = ("General.Terminal", "General.Verbosity", "Mesh.MeshSizeFromPoints",
             "General.NumThreads")
 
 
+#: gmsh keeps one global state: one session at a time in the process (derived-quantity
+#: providers run on threads, and a coarse solve may mesh with gmsh); re-entrant, so a
+#: session inside a session of the same thread still works.
+_LOCK = threading.RLock()
+
 _STOP_SIGNALS = tuple(getattr(signal, n) for n in ("SIGINT", "SIGTERM") if hasattr(signal, n))
 
 
@@ -96,6 +101,14 @@ class _Gmsh:
     def __enter__(self):
         import gmsh
 
+        _LOCK.acquire()
+        try:
+            return self._enter(gmsh)
+        except BaseException:
+            _LOCK.release()
+            raise
+
+    def _enter(self, gmsh):
         self.gmsh = gmsh
         self.signals = _SignalState()
         self.pending = []
@@ -157,4 +170,7 @@ class _Gmsh:
                 gmsh.model.setCurrent(self.previous)
             return False
         finally:
-            self._end_signals()
+            try:
+                self._end_signals()
+            finally:
+                _LOCK.release()

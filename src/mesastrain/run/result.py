@@ -40,11 +40,10 @@ class Derived:
     files : dict of str -> callable(Path)
         Extra files: name in the output folder -> function that writes it.
     section_maps : dict of str -> dict
-        Pictures drawn from ``fields.vtu`` once it is written: PNG name in the
-        output folder -> keyword arguments of
-        :func:`mesastrain.io.render.render_section` (``quantity``,
-        ``component``, ``note``, ``depth``, ...). Drawn only when ``fields.vtu``
-        is written.
+        Cross-section pictures drawn from the in-memory fields: PNG name in the
+        output folder -> keyword arguments of :func:`mesastrain.io.maps.draw_map`
+        (``quantity``, ``component``, ``note``, ``depth``, ...). Drawn only when
+        ``fields.vtu`` is written.
     """
 
     summary: dict = field(default_factory=dict)

@@ -29,10 +29,18 @@ def case_of(text, **mesh):
 
 
 def test_runs_before_the_headline_and_after_what_it_reads():
+    from mesastrain.derived import discretisation
+
     names = [p.__module__.rsplit(".", 1)[-1] for p in PROVIDERS]
-    k = names.index("discretisation")
-    assert names[k + 1:] == ["headline"]
-    assert {"device", "readouts", "bow"} <= set(names[:k])
+    stage = {p: getattr(p, "stage", 0) for p in PROVIDERS}
+    k = PROVIDERS.index(discretisation.derive)
+    assert names[-1] == "headline" and stage[PROVIDERS[-1]] > stage[discretisation.derive]
+    # the figures it reads come from providers of an earlier stage
+    for p in PROVIDERS:
+        if p.__module__.rsplit(".", 1)[-1] in ("device", "readouts", "bow"):
+            assert stage[p] < stage[discretisation.derive] and PROVIDERS.index(p) < k
+    # the energy norm reads only the solved fields: it runs with the first stage
+    assert stage[discretisation.energy] == 0
 
 
 def test_every_nonsingular_headline_figure_gets_a_bar(small_mesa_result):

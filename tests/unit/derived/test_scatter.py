@@ -69,7 +69,9 @@ def test_lattice_law_band_scales_the_whole_field(small_mesa_result, summary):
         if row["kind"] == "relaxation":
             assert abs(change) < 1e-4 * row["value"]
         else:
-            assert change == pytest.approx(row["value"] * ratio, rel=1e-4), row["name"]
+            # rel 1e-3: the extra solves stop at a relative residual of 1e-4 (a band is
+            # quoted to two digits; run/sensitivity.py)
+            assert change == pytest.approx(row["value"] * ratio, rel=1e-3), row["name"]
             n += 1
     assert n >= 10
     centre = figs["SiGe centre sxx"]

@@ -282,3 +282,22 @@ def test_errors():
         band_edge_shifts(np.full((3, 3), np.nan), si)
     with pytest.raises(MesastrainError, match="hh"):
         band_summary({"delta_x": 0.0}, si)
+
+
+@pytest.mark.parametrize("scale", [0.0, 1e-6, 1e-3, 2e-2, 0.1])
+@pytest.mark.parametrize("params", [(2.1, -2.33, -4.75, 0.044), (1.24, -2.86, -5.28, 0.296),
+                                    (-1.2, -1.7, -4.4, 0.34), (1.0, -2.0, -4.0, 0.0)],
+                         ids=["Si-like", "Ge-like", "GaAs-like", "no spin-orbit"])
+def test_closed_form_levels_equal_the_6x6_eigenvalues(scale, params):
+    # the cubic's trigonometric roots against a general Hermitian eigensolver (LAPACK
+    # through numpy), over random low-symmetry strains and the degenerate unstrained case
+    # (heavy and light holes equal); each level is doubly degenerate (Kramers)
+    from mesastrain.physics.bands import valence_levels
+
+    rng = np.random.default_rng(int(scale * 1e6) + 7)
+    e = rng.normal(size=(2000, 3, 3)) * scale
+    e = 0.5 * (e + e.transpose(0, 2, 1))
+    full = np.linalg.eigvalsh(valence_hamiltonian(e, *params))
+    np.testing.assert_allclose(full[:, 0::2], full[:, 1::2], atol=1e-12)
+    got = valence_levels(e, *params)
+    np.testing.assert_allclose(got, full[:, 1::2], rtol=0, atol=1e-9)
