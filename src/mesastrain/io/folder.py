@@ -347,21 +347,13 @@ def write_result(res: Result, out, overwrite: bool = False, quick: bool = False,
     o = res.case.output
     pictures = getattr(o, "pictures", True) and not quick
     report = getattr(o, "report", False) and not quick
-    fields_job = pool = None
     try:
         tmp = dest.partial()
         if o.vtu:
-            # fields.vtu is compressed and written on a thread of its own while the tables
-            # and pictures are drawn (zlib and the file writes release the interpreter lock)
-            from concurrent.futures import ThreadPoolExecutor
-
-            def write_fields():
-                with _timed(res, "write_fields", progress, "writing fields.vtu"):
-                    pd, cd = vtu_data(res)
-                    write_vtu(tmp / "fields.vtu", res.mesh.mesh, pd, cd,
-                              field_data=region_table(res))
-            pool = ThreadPoolExecutor(1)
-            fields_job = pool.submit(write_fields)
+            with _timed(res, "write_fields", progress, "writing fields.vtu"):
+                pd, cd = vtu_data(res)
+                write_vtu(tmp / "fields.vtu", res.mesh.mesh, pd, cd,
+                          field_data=region_table(res))
         files = [(n, w) for d in res.derived for n, w in d.files.items()]
         with _timed(res, "write_tables", progress, "writing tables"):
             for name, writer in files:
@@ -373,8 +365,6 @@ def write_result(res: Result, out, overwrite: bool = False, quick: bool = False,
                     if name.endswith(".png"):
                         writer(tmp / name)
                 draw_pictures(res, tmp)
-        if fields_job is not None:
-            fields_job.result()         # its errors (a full disk, ...) surface here
         write_json(tmp / "summary.json", summary_of(res))
         if report:      # last: it embeds the files above
             with _timed(res, "write_report", progress, "writing report.html"):
@@ -383,6 +373,3 @@ def write_result(res: Result, out, overwrite: bool = False, quick: bool = False,
         return dest.commit(tmp)
     except OSError as exc:
         raise write_failure(exc, dest.shown) from None
-    finally:
-        if pool is not None:
-            pool.shutdown(wait=True)    # never leave a thread writing into the folder
