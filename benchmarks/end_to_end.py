@@ -5,6 +5,7 @@ Usage::
     python benchmarks/end_to_end.py                    # demo, ~100k and ~1M solved unknowns
     python benchmarks/end_to_end.py --sizes 100e3      # chosen sizes of the structured mesa
     python benchmarks/end_to_end.py --no-demo --quick  # with run --quick
+    python benchmarks/end_to_end.py --plain            # without the error bars of issue 17
 
 Each run is ``mesastrain run CASE --out DIR`` in its own Python process (the
 command line's own code path, so start-up and every default output count).
@@ -76,10 +77,21 @@ def child(case: str, out: str, quick: bool) -> None:
                       "vtu_bytes": vtu.stat().st_size if vtu.is_file() else 0}))
 
 
-def sized_case(target: float, folder: Path) -> Path:
+#: What ``--plain`` adds to a case: no discretisation-error estimate, no material scatter.
+PLAIN = ("[mesh]\nerror_estimate = false\n", "\n[uncertainty]\nenabled = false\n")
+
+
+def plain_text(text: str) -> str:
+    """A case text without the error bars (``[mesh] error_estimate``, ``[uncertainty]``)."""
+    return text.replace("[mesh]\n", PLAIN[0], 1) + PLAIN[1]
+
+
+def sized_case(target: float, folder: Path, plain: bool = False) -> Path:
     """The demo case with ``mesh.refine`` set for about ``target`` solved unknowns."""
     r = refine_for(int(target))
     text = DEMO.read_text(encoding="utf-8").replace("[mesh]\n", f"[mesh]\nrefine = {r:.6g}\n", 1)
+    if plain:
+        text = plain_text(text)
     path = folder / f"mesa_{int(target)}.toml"
     path.write_text(text, encoding="utf-8")
     return path
@@ -121,6 +133,8 @@ def main(argv=None) -> int:
                     help="solved unknowns of the structured quarter mesa")
     ap.add_argument("--no-demo", action="store_true", help="skip the demo case")
     ap.add_argument("--quick", action="store_true", help="run --quick (no pictures, no report)")
+    ap.add_argument("--plain", action="store_true",
+                    help="without the discretisation error and the material scatter")
     ap.add_argument("--src", type=Path, default=ROOT / "src",
                     help="the mesastrain source measured (e.g. another checkout's src/, "
                          "for a before/after table)")
@@ -133,15 +147,21 @@ def main(argv=None) -> int:
     load0 = os.getloadavg()
     with tempfile.TemporaryDirectory(prefix="mesastrain-e2e-") as tmp:
         tmp = Path(tmp)
-        cases = [] if a.no_demo else [("demo", DEMO)]
-        cases += [(f"mesa {s / 1e3:g}k", sized_case(s, tmp)) for s in a.sizes]
+        cases = []
+        if not a.no_demo:
+            demo = DEMO
+            if a.plain:
+                demo = tmp / "demo_plain.toml"
+                demo.write_text(plain_text(DEMO.read_text(encoding="utf-8")), encoding="utf-8")
+            cases.append(("demo", demo))
+        cases += [(f"mesa {s / 1e3:g}k", sized_case(s, tmp, a.plain)) for s in a.sizes]
         for name, case in cases:
             rows.append((name, measure(case, tmp / f"out_{len(rows)}", a.quick, a.src)))
             print(table(rows[-1:]).splitlines()[-1], file=sys.stderr, flush=True)
     print(table(rows))
     load1 = os.getloadavg()
     print(f"{os.cpu_count()} cores; load average {load0[0]:.1f} before, {load1[0]:.1f} after"
-          + ("; run --quick" if a.quick else ""))
+          + ("; run --quick" if a.quick else "") + ("; plain (no error bars)" if a.plain else ""))
     return 0
 
 

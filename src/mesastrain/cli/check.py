@@ -22,7 +22,12 @@ def _films(case, key: str, items) -> str:
 def cmd_check(args) -> int:
     """``mesastrain check``: 0 when the case is valid and fits in memory, 2 otherwise."""
     from mesastrain.mesh.kinds import mesh_kind
-    from mesastrain.run.resources import available_memory_gb, estimate, usable_cores
+    from mesastrain.run.resources import (
+        available_memory_gb,
+        error_bar_seconds,
+        estimate,
+        usable_cores,
+    )
 
     case = load_case(args.case)
     notes(case)
@@ -32,6 +37,7 @@ def cmd_check(args) -> int:
     d["memory_available_gb"] = round(avail, 2)
     d["fits"] = est.memory_gb <= avail
     d["cores"] = cores = usable_cores()
+    d["error_bar_seconds"] = bars = round(error_bar_seconds(case, est), 1)
     d["mesh_kind"] = mesh_kind(case)
     if args.json:
         print(json.dumps(d))
@@ -53,7 +59,9 @@ def cmd_check(args) -> int:
                  else " (the whole body, mirrored)" if model else ""))
         print(f"memory    about {est.memory_gb:.2f} GB (available {avail:.1f} GB)")
         print(f"time      about {est.seconds:.0f} s on {cores} core{'s' * (cores != 1)} "
-              f"(rough)")
+              f"(rough)" + (f", of which about {bars:.0f} s for the error bars (see "
+                            f"[mesh] error_estimate, [uncertainty] enabled)" if bars >= 0.5
+                            else ""))
     if not d["fits"]:
         err(f"mesh: the case needs about {est.memory_gb:.1f} GB but only {avail:.1f} GB are "
             "available; coarsen mesh.size / mesh.edge_size")

@@ -38,6 +38,10 @@ class Estimate:
     solved_nodes: int | None = None
     solved_elements: int | None = None
     symmetry: str = "full"
+    #: seconds of mesh + assembly + solve + recovery (part of ``seconds``)
+    solver_seconds: float = 0.0
+    #: seconds of one more right-hand side on the same operator (iterations or substitution)
+    rhs_seconds: float = 0.0
 
     def to_dict(self) -> dict:
         """The estimate as ``check --json`` prints it: the solved system and the exported body."""
@@ -100,14 +104,25 @@ PMG_ITERATIONS = 24
 #: (unfolding a mirrored model, recovery, probes).
 MESH_S_PER_UNKNOWN = 1.2e-6
 RECOVERY_S_PER_UNKNOWN = 2.2e-6
-#: Everything after the solve that every run pays: start-up (imports), derived quantities,
-#: fields.vtu, tables, and (``pictures``) the pictures and report.html. Seconds =
-#: OUTPUT_BASE_S + OUTPUT_S_PER_UNKNOWN n_whole, plus PICTURES_BASE_S +
-#: PICTURES_S_PER_UNKNOWN n_whole when pictures are drawn (benchmarks/estimate_accuracy.py).
+#: Everything after the solve that every run pays: start-up (imports), derived quantities
+#: without the error bars, fields.vtu, tables, and (``pictures``) the pictures and
+#: report.html. Seconds = OUTPUT_BASE_S + OUTPUT_S_PER_UNKNOWN n_whole, plus
+#: PICTURES_BASE_S + PICTURES_S_PER_UNKNOWN n_whole when pictures are drawn
+#: (benchmarks/end_to_end.py --plain: demo mesa at 100k, 300k and 1M unknowns, quiet machine).
 OUTPUT_BASE_S = 2.0
-OUTPUT_S_PER_UNKNOWN = 6.0e-6
+OUTPUT_S_PER_UNKNOWN = 2.4e-6
 PICTURES_BASE_S = 2.3
 PICTURES_S_PER_UNKNOWN = 8.0e-7
+#: The error bars of issue 17, counted by :func:`mesastrain.run.resources.estimate`:
+#: discretisation error = ERROR_COARSE_SHARE of the solver stages (the coarser solve has
+#: about 1/8 of the unknowns, plus its own mesh and readouts) + ERROR_S_PER_UNKNOWN per
+#: unknown of the whole body (patch recovery at every Gauss point); material scatter = one
+#: extra right-hand side (:func:`rhs_seconds`) per constant group that moves the
+#: displacement. Fitted on the demo mesa, default minus plain run, at 100k-1M unknowns.
+ERROR_COARSE_SHARE = 0.2
+ERROR_S_PER_UNKNOWN = 1.4e-6
+EXTRA_RHS_SHARE = 0.34
+DIRECT_RHS_SHARE = 0.03
 #: Tetrahedral meshes: peak bytes per element beyond the matrix and multigrid (the mesher's
 #: own copy, the mesh's edges and facets; linear tetrahedra at 135k unknowns peaked at
 #: 0.86 GB against 0.34 GB of matrix-based estimate, for about 250k elements).
@@ -195,6 +210,25 @@ def output_seconds(whole_unknowns: int, pictures: bool = True) -> float:
     return secs
 
 
+def rhs_seconds(unknowns: int, nonzeros: int, order: int, method: str,
+                multigrid: str = "geometric", dimension: int = 3) -> float:
+    """Seconds of one more right-hand side solved on an operator already set up.
+
+    Iterative: the iterations of :func:`resources` times :data:`EXTRA_RHS_SHARE` (the
+    extra solves stop at a looser tolerance: 8 iterations instead of 19 at 1M, and the
+    right-hand side is built element by element). Direct: a forward and backward
+    substitution, :data:`DIRECT_RHS_SHARE` of the factorisation.
+    """
+    n, nnz = float(unknowns), float(nonzeros)
+    per_it = ITERATION_S_PER_NONZERO.get(order, ITERATION_S_PER_NONZERO[2])
+    if method == "direct":
+        full = DIRECT2D_S * n ** DIRECT2D_EXP if dimension == 2 else DIRECT_S * n ** DIRECT_EXP
+        return DIRECT_RHS_SHARE * full
+    its = {"p": PMG_ITERATIONS, "geometric": ITERATIONS.get(order, ITERATIONS[2])}.get(
+        multigrid, AMG_ITERATIONS)
+    return EXTRA_RHS_SHARE * its * per_it * nnz
+
+
 def resources(unknowns: int, nonzeros: int, elements: int, nloc: int, order: int,
               method: str, multigrid: str = "geometric",
               whole_unknowns: int | None = None, dimension: int = 3) -> tuple[float, float]:
@@ -280,9 +314,11 @@ def estimate_from_counts(case, nodes: int, elements: int, scalar_dofs: int,
     mg = "p" if (dimension == 3 and order == 2) else "algebraic"
     mem, secs = resources(n, nnz, int(elements), int(dofs_per_element), order, method,
                           multigrid=mg, dimension=dimension)
-    secs += mesh_seconds + output_seconds(n, case.output.pictures and case.output.report)
+    solver = secs + mesh_seconds
+    secs = solver + output_seconds(n, case.output.pictures and case.output.report)
     if dimension == 3:
         mem += TET_BYTES_PER_ELEMENT * int(elements) / 1e9
     return Estimate(int(nodes), int(elements), n, order, method, mem, secs,
-                    element_type=element_type(shape, order, section))
+                    element_type=element_type(shape, order, section), solver_seconds=solver,
+                    rhs_seconds=rhs_seconds(n, nnz, order, method, mg, dimension))
 

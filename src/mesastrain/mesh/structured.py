@@ -25,6 +25,7 @@ from mesastrain.fem.cost import (
     output_seconds,
     pattern_nonzeros,
     resources,
+    rhs_seconds,
 )
 from mesastrain.fem.discretisation import Discretisation, discretise
 from mesastrain.fem.solve import choose_method
@@ -308,10 +309,11 @@ def estimate_structured(case) -> Estimate:
     nodes, nel, n = count_unknowns(keep, order)
     nnz = pattern_nonzeros(keep, order)
     method = choose_method(case.solver.method, n, case.solver.direct_limit)
-    mem, secs = resources(n, nnz, nel, 8 if order == 1 else 27, order, method,
-                          whole_unknowns=whole[2])
-    secs += output_seconds(whole[2], case.output.pictures and case.output.report)
+    mem, solver = resources(n, nnz, nel, 8 if order == 1 else 27, order, method,
+                            whole_unknowns=whole[2])
+    secs = solver + output_seconds(whole[2], case.output.pictures and case.output.report)
     return Estimate(*whole, order, method, mem, secs, solved_unknowns=n,
                     element_type=element_type("hexahedra", order), solved_nodes=nodes,
                     solved_elements=nel,
-                    symmetry={0: "full", 1: "half", 2: "quarter"}[len(geom.mirrors)])
+                    symmetry={0: "full", 1: "half", 2: "quarter"}[len(geom.mirrors)],
+                    solver_seconds=solver, rhs_seconds=rhs_seconds(n, nnz, order, method))

@@ -11,8 +11,15 @@ from __future__ import annotations
 import dataclasses
 
 from mesastrain.case.types import Case
-from mesastrain.fem.cost import Estimate
+from mesastrain.errors import MesastrainError
+from mesastrain.fem.cost import (
+    ERROR_COARSE_SHARE,
+    ERROR_S_PER_UNKNOWN,
+    Estimate,
+)
 from mesastrain.mesh.kinds import KINDS, kind_of
+from mesastrain.model.regions import build_layers
+from mesastrain.run.sensitivity import groups_of
 
 
 def estimate(case: Case) -> Estimate:
@@ -25,8 +32,31 @@ def estimate(case: Case) -> Estimate:
     about 30 %, not a promise (other jobs on the machine slow it down).
     """
     est = kind_of(case).estimate(case)
-    extra = outline_seconds(case)
+    extra = outline_seconds(case) + error_bar_seconds(case, est)
     return dataclasses.replace(est, seconds=est.seconds + extra) if extra else est
+
+
+def error_bar_seconds(case: Case, est: Estimate) -> float:
+    """Seconds the error bars add (issue 17): the discretisation-error estimate
+    (``[mesh] error_estimate``) and the extra right-hand sides of the material scatter
+    (``[uncertainty]``, one per constant group that moves the displacement). Constants:
+    :mod:`mesastrain.fem.cost` (``ERROR_*``, ``EXTRA_RHS_SHARE``)."""
+    secs = 0.0
+    if getattr(case.mesh, "error_estimate", False):
+        secs += ERROR_COARSE_SHARE * est.solver_seconds + ERROR_S_PER_UNKNOWN * est.unknowns
+    if getattr(case.uncertainty, "enabled", False):
+        secs += len(solved_groups(case)) * est.rhs_seconds
+    return secs
+
+
+def solved_groups(case: Case) -> list:
+    """The material-scatter groups that need an extra solve (those that load the body:
+    stiffness, lattice and thermal expansion; not the Raman or band constants)."""
+    try:
+        layers = build_layers(case)
+    except MesastrainError:       # the run itself will say what is wrong
+        return []
+    return groups_of(case, layers)
 
 
 #: Seconds to validate and mesh a polygon outline of n vertices: a + b n + c n^2. Measured

@@ -3,6 +3,8 @@
 import dataclasses
 from pathlib import Path
 
+import pytest
+
 from mesastrain.case.parse import load_case
 from mesastrain.fem import cost
 from mesastrain.run.resources import estimate
@@ -26,8 +28,32 @@ def test_structured_estimate_counts_derived_and_writing():
     # the whole (unfolded) body is what the derived quantities and the writing see
     assert est.seconds > cost.output_seconds(est.unknowns, pictures=True)
     quick = estimate(_without_pictures(case))
-    assert est.seconds - quick.seconds == cost.output_seconds(est.unknowns) - \
-        cost.output_seconds(est.unknowns, pictures=False)
+    assert est.seconds - quick.seconds == pytest.approx(
+        cost.output_seconds(est.unknowns) - cost.output_seconds(est.unknowns, pictures=False),
+        rel=1e-12)
+
+
+def test_error_bars_are_counted():
+    # issue 17's extra work: the coarser solve and patch recovery of the discretisation
+    # error, one extra right-hand side per constant group of the material scatter
+    from mesastrain.model.regions import build_layers
+    from mesastrain.run.resources import error_bar_seconds
+    from mesastrain.run.sensitivity import groups_of
+
+    case = load_case(CASES / "sige_stressor_mesa.toml")
+    est = estimate(case)
+    no_err = dataclasses.replace(case, mesh=dataclasses.replace(case.mesh, error_estimate=False))
+    plain = dataclasses.replace(no_err, uncertainty=dataclasses.replace(case.uncertainty,
+                                                                        enabled=False))
+    groups = groups_of(case, build_layers(case))
+    assert len(groups) == 3          # Si C_ij, SiGe C_ij, SiGe lattice law (README)
+    assert est.rhs_seconds > 0 and est.solver_seconds > 0
+    assert estimate(no_err).seconds - estimate(plain).seconds == pytest.approx(
+        3 * est.rhs_seconds, rel=1e-9)
+    assert est.seconds - estimate(plain).seconds == pytest.approx(
+        error_bar_seconds(case, est), rel=1e-9)
+    # an extra right-hand side costs less than the solve it follows
+    assert est.rhs_seconds < est.solver_seconds
 
 
 def test_section_estimate_uses_the_direct_solver_that_auto_runs():
