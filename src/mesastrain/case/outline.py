@@ -19,6 +19,8 @@ Only numpy and the error classes are used here (no meshing).
 
 from __future__ import annotations
 
+import math
+
 from dataclasses import dataclass
 
 import numpy as np
@@ -120,6 +122,23 @@ def _distance_to_polygon(x, y, v) -> np.ndarray:
     return best
 
 
+def _signed_distance_one(x: float, y: float, vertices) -> float:
+    """:func:`_distance_to_polygon` with the even-odd sign for one point, in plain Python
+    floats (about 20x faster than numpy scalars for the few vertices of an outline)."""
+    n = len(vertices)
+    best = math.inf
+    inside = False
+    for k in range(n):
+        x0, y0 = vertices[k]
+        x1, y1 = vertices[(k + 1) % n]
+        if (y0 > y) != (y1 > y) and x < x0 + (y - y0) * (x1 - x0) / (y1 - y0):
+            inside = not inside
+        ax, ay = x1 - x0, y1 - y0
+        s = min(max(((x - x0) * ax + (y - y0) * ay) / (ax * ax + ay * ay), 0.0), 1.0)
+        best = min(best, math.hypot(x - x0 - s * ax, y - y0 - s * ay))
+    return -best if inside else best
+
+
 @dataclass(frozen=True)
 class Outline:
     """Cross-section of a feature in the sample x-y plane (nm).
@@ -185,6 +204,8 @@ class Outline:
             qx, qy = np.abs(x) - (self.hx - r), np.abs(y) - (self.hy - r)
             outside = np.hypot(np.maximum(qx, 0.0), np.maximum(qy, 0.0))
             return outside + np.minimum(np.maximum(qx, qy), 0.0) - r
+        if x.ndim == 0 and y.ndim == 0:     # one point (gmsh's size callback): plain floats
+            return np.float64(_signed_distance_one(float(x), float(y), self.vertices))
         v = self.points
         d = _distance_to_polygon(x, y, v)
         return np.where(_point_in_polygon(x, y, v), -d, d)

@@ -156,10 +156,12 @@ def nominal_rate(kind: str, order: int) -> int:
 
 
 def coarse_case(case, ratio: float = COARSENING):
-    """The case with every element size multiplied by ``ratio`` (no further studies)."""
+    """The case with every element size multiplied by ``ratio`` (no further studies: no
+    convergence study, error estimate or material-scatter solves of its own)."""
     mesh = dataclasses.replace(case.mesh, refine=refinement_of(case) / ratio,
                                convergence=False, error_estimate=False)
-    return dataclasses.replace(case, mesh=mesh)
+    return dataclasses.replace(case, mesh=mesh,
+                               uncertainty=dataclasses.replace(case.uncertainty, enabled=False))
 
 
 # --------------------------------------------------------------------------

@@ -134,3 +134,20 @@ def test_shape_demos_load_and_estimate(name):
     est = estimate(case)
     assert 0 < est.unknowns < 1_000_000 and est.memory_gb < 4
     assert (root / "cases" / "pictures" / f"{name}.png").stat().st_size > 10_000
+
+
+def test_polygon_distance_of_one_point_equals_the_vectorised_one():
+    # gmsh's size callback asks one point at a time: the plain-float path must agree with
+    # the array path (inside and outside, on edges, at a reflex corner, offset outlines)
+    import numpy as np
+
+    ell = Outline("polygon", vertices=((-100, -50), (100, -50), (100, 0), (20, 0), (20, 80),
+                                       (-100, 80)))
+    rng = np.random.default_rng(5)
+    pts = np.vstack([rng.uniform(-150, 150, (400, 2)), [[20, 0], [100, -20], [0, 80],
+                                                        [20.0, 40.0], [-100, -50]]])
+    for o in (ell, ell.offset(7.5), ell.offset(-12.0)):
+        want = o.signed_distance(pts[:, 0], pts[:, 1])
+        got = [o.signed_distance(np.float64(x), np.float64(y)) for x, y in pts]
+        np.testing.assert_allclose(got, want, rtol=0, atol=1e-9)
+        assert np.any(want < 0) and np.any(want > 0)
