@@ -107,11 +107,26 @@ def _fit(rows: np.ndarray, elems: np.ndarray, centre: np.ndarray, scale: np.ndar
     P = _monomials(xi, degree)                                   # (npairs, m)
     m = P.shape[1]
     c = vals.shape[-1]
-    G = sp.csr_matrix((np.ones(k.size), (k, np.arange(k.size))), shape=(npatch, k.size))
-    A = np.asarray(G @ (P[:, :, None] * P[:, None, :]).reshape(k.size, m * m))
-    A = A.reshape(npatch, m, m)
-    b = np.asarray(G @ (P[:, :, None] * vals.reshape(-1, c)[s][:, None, :]).reshape(k.size, m * c))
-    b = b.reshape(npatch, m, c)
+    # the rows of each patch side by side in a zero-padded block (patches, L, m + c): the
+    # normal equations are then one batched product P_k^T [P_k V_k] per patch, without the
+    # (npairs, m, m) outer products (several GB for quadratic patches). Patches of similar
+    # size are blocked together so that little padding is stored.
+    by = np.argsort(k, kind="stable")
+    counts = np.bincount(k, minlength=npatch)
+    starts = np.concatenate([[0], np.cumsum(counts)[:-1]])
+    Q = np.concatenate([P, vals.reshape(-1, c)[s]], axis=1)[by]   # rows sorted by patch
+    A = np.empty((npatch, m, m))
+    b = np.empty((npatch, m, c))
+    by_size = np.argsort(counts, kind="stable")
+    for pc in np.array_split(by_size, max(1, min(16, npatch))):
+        L = max(int(counts[pc].max(initial=0)), 1)
+        pos = starts[pc][:, None] + np.arange(L)[None, :]
+        valid = np.arange(L)[None, :] < counts[pc][:, None]
+        block = np.zeros((pc.size, L, m + c))
+        block[valid] = Q[pos[valid]]
+        S = np.matmul(block[:, :, :m].transpose(0, 2, 1), block)     # (patches, m, m + c)
+        A[pc] = S[:, :, :m]
+        b[pc] = S[:, :, m:]
     w = np.linalg.eigvalsh(A)
     ok = w[:, 0] > 1e-8 * np.maximum(w[:, -1], 1e-300)
     A[~ok] += np.eye(m)                                          # keep the batch solvable
@@ -244,11 +259,26 @@ def recover_at(p: np.ndarray, t: np.ndarray, region: np.ndarray, elements: np.nd
         from_ref = sample(elements, np.asarray(X, dtype=float)[:, :, None])[0][:, 0, :]
     else:
         from_ref = np.asarray(coords, dtype=float)                   # (npts, dim)
-    out = np.zeros((len(elements), coef.shape[-1]))
-    for a in range(nv):
-        k = inv[:, a]
-        xi = (from_ref - centre[k]) / scales[k, None]
-        P = _monomials(xi, order)
-        out += N[:, a, None] * np.einsum("nm,nmc->nc", P, coef[k])
+    npts, c = len(elements), coef.shape[-1]
+    per = npts // max(uel.size, 1)
+    if per > 1 and per * uel.size == npts and np.array_equal(elements, np.repeat(uel, per)):
+        # the points come in equal blocks per element (every Gauss point of every element):
+        # each element's patch coefficients are gathered once for its block, and the
+        # blend is one batched product (block, nv m) @ (nv m, c)
+        m = coef.shape[1]
+        W = np.empty((npts, nv, m))
+        for a in range(nv):
+            k = inv[:, a]
+            xi = (from_ref - centre[k]) / scales[k, None]
+            W[:, a, :] = N[:, a, None] * _monomials(xi, order)
+        ce = coef[inv[::per]].reshape(uel.size, nv * m, c)
+        out = np.matmul(W.reshape(uel.size, per, nv * m), ce).reshape(npts, c)
+    else:
+        out = np.zeros((npts, c))
+        for a in range(nv):
+            k = inv[:, a]
+            xi = (from_ref - centre[k]) / scales[k, None]
+            P = _monomials(xi, order)
+            out += N[:, a, None] * np.einsum("nm,nmc->nc", P, coef[k])
     deg = chosen[inv].min(axis=1)
     return out, deg
