@@ -20,7 +20,6 @@ Only numpy and the error classes are used here (no meshing).
 from __future__ import annotations
 
 import math
-
 from dataclasses import dataclass
 
 import numpy as np
