@@ -50,9 +50,10 @@ __all__ = [
 #: enough that validation stays well under a second.
 MAX_ITEMS = 1000
 #: Most vertices of a polygon outline. gmsh refines each outline edge on its own, so meshing
-#: time grows about as n^2 (measured: 100 vertices 6 min, 256 vertices about half an hour
-#: on 2 cores; :data:`mesastrain.run.resources.POLYGON_SECONDS`, which ``check`` adds to
-#: its estimate). A mask outline rarely needs more; bring finer geometry as a mesh file.
+#: time grows faster than n (measured with the mesher's size callback in pure Python: 100
+#: vertices 6 min on a loaded machine; with its one-point fast path 9.6 s quiet;
+#: :data:`mesastrain.run.resources.POLYGON_SECONDS`, which ``check`` adds to its estimate).
+#: A mask outline rarely needs more; bring finer geometry as a mesh file.
 MAX_VERTICES = 256
 #: Largest absolute Miller index: vicinal and high-index surfaces are written with indices of
 #: a few tens; 999 keeps every product of indices exact in floating point.

@@ -88,8 +88,9 @@ BASE_BYTES = 1.8e8
 ASSEMBLY_S_PER_NONZERO = 7.0e-8
 #: Seconds per nonzero for the multigrid setup (Galerkin products, triangle split).
 SETUP_S_PER_NONZERO = 1.2e-7
-#: Seconds per nonzero and iteration, and iterations, per element order (geometric multigrid).
-ITERATION_S_PER_NONZERO = {1: 8.0e-9, 2: 5.0e-9}
+#: Seconds per nonzero and iteration, and iterations, per element order (geometric multigrid;
+#: order 1 refitted on a quiet machine: 19 iterations of the 78M-nonzero demo mesa in 6.0 s).
+ITERATION_S_PER_NONZERO = {1: 5.0e-9, 2: 5.0e-9}
 ITERATIONS = {1: 16, 2: 80}
 #: Smoothed aggregation (meshes that are not structured bricks): memory per nonzero,
 #: setup seconds per nonzero, iterations (cost per iteration as for order 2).
@@ -101,9 +102,10 @@ AMG_ITERATIONS = 40
 PMG_SETUP_S_PER_NONZERO = 6.0e-8
 PMG_ITERATIONS = 24
 #: Seconds per solved unknown (mesh, supports) and per unknown of the whole body
-#: (unfolding a mirrored model, recovery, probes).
+#: (unfolding a mirrored model, recovery, probes; recovery refitted quiet: 0.8-1.0 us per
+#: unknown of the whole body from 100k to 1M solved unknowns).
 MESH_S_PER_UNKNOWN = 1.2e-6
-RECOVERY_S_PER_UNKNOWN = 2.2e-6
+RECOVERY_S_PER_UNKNOWN = 1.0e-6
 #: Everything after the solve that every run pays: start-up (imports), derived quantities
 #: without the error bars, fields.vtu, tables, and (``pictures``) the pictures and
 #: report.html. Seconds = OUTPUT_BASE_S + OUTPUT_S_PER_UNKNOWN n_whole, plus
@@ -113,6 +115,13 @@ OUTPUT_BASE_S = 2.0
 OUTPUT_S_PER_UNKNOWN = 2.4e-6
 PICTURES_BASE_S = 2.3
 PICTURES_S_PER_UNKNOWN = 8.0e-7
+#: Peak memory of the derived quantities beyond the fields: the stage-0 providers run side
+#: by side, each on blocks of at most about 100k elements (energy-norm patches, device
+#: fields, readout profiles), so the extra peak grows with the elements up to one block:
+#: bytes = DERIVED_BYTES_PER_ELEMENT x min(whole elements, DERIVED_BLOCK_ELEMENTS). Fitted to
+#: benchmarks/estimate_accuracy.py (demo mesa at 119k elements: +0.2 GB over the solve).
+DERIVED_BYTES_PER_ELEMENT = 2.0e3
+DERIVED_BLOCK_ELEMENTS = 100_000
 #: The error bars of issue 17, counted by :func:`mesastrain.run.resources.estimate`:
 #: discretisation error = ERROR_COARSE_SHARE of the solver stages (the coarser solve has
 #: about 1/8 of the unknowns, plus its own mesh and readouts) + ERROR_S_PER_UNKNOWN per
@@ -121,7 +130,7 @@ PICTURES_S_PER_UNKNOWN = 8.0e-7
 #: displacement. Fitted on the demo mesa, default minus plain run, at 100k-1M unknowns.
 ERROR_COARSE_SHARE = 0.2
 ERROR_S_PER_UNKNOWN = 1.4e-6
-EXTRA_RHS_SHARE = 0.34
+EXTRA_RHS_SHARE = 0.45
 DIRECT_RHS_SHARE = 0.03
 #: Tetrahedral meshes: peak bytes per element beyond the matrix and multigrid (the mesher's
 #: own copy, the mesh's edges and facets; linear tetrahedra at 135k unknowns peaked at
@@ -216,7 +225,8 @@ def rhs_seconds(unknowns: int, nonzeros: int, order: int, method: str,
 
     Iterative: the iterations of :func:`resources` times :data:`EXTRA_RHS_SHARE` (the
     extra solves stop at a looser tolerance: 8 iterations instead of 19 at 1M, and the
-    right-hand side is built element by element). Direct: a forward and backward
+    right-hand side is built element by element; measured 2.9 s a group at 1M structured and
+    4.8 s at 977k quadratic tetrahedral unknowns). Direct: a forward and backward
     substitution, :data:`DIRECT_RHS_SHARE` of the factorisation.
     """
     n, nnz = float(unknowns), float(nonzeros)
@@ -231,7 +241,8 @@ def rhs_seconds(unknowns: int, nonzeros: int, order: int, method: str,
 
 def resources(unknowns: int, nonzeros: int, elements: int, nloc: int, order: int,
               method: str, multigrid: str = "geometric",
-              whole_unknowns: int | None = None, dimension: int = 3) -> tuple[float, float]:
+              whole_unknowns: int | None = None, dimension: int = 3,
+              whole_elements: int | None = None) -> tuple[float, float]:
     """Peak memory (GB) and wall time (s) of mesh + assembly + solve + recovery.
 
     Parameters
@@ -252,10 +263,15 @@ def resources(unknowns: int, nonzeros: int, elements: int, nloc: int, order: int
         works on the whole body).
     dimension : {2, 3}
         2 for a cross-section (the direct solver's fill-in grows more slowly).
+    whole_elements : int, optional
+        Elements of the whole body (default ``elements``): the derived quantities work on
+        them in blocks, several providers at once (:data:`DERIVED_BYTES_PER_ELEMENT`).
     """
     n, nnz = float(unknowns), float(nonzeros)
     whole = float(whole_unknowns or unknowns)
     mem = BASE_BYTES + BYTES_PER_UNKNOWN * max(n, whole / 4.0)
+    mem += DERIVED_BYTES_PER_ELEMENT * min(float(whole_elements or elements),
+                                           DERIVED_BLOCK_ELEMENTS)
     secs = (ASSEMBLY_S_PER_NONZERO * nnz + MESH_S_PER_UNKNOWN * n
             + RECOVERY_S_PER_UNKNOWN * whole)
     per_it = ITERATION_S_PER_NONZERO.get(order, ITERATION_S_PER_NONZERO[2])

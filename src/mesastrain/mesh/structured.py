@@ -310,7 +310,7 @@ def estimate_structured(case) -> Estimate:
     nnz = pattern_nonzeros(keep, order)
     method = choose_method(case.solver.method, n, case.solver.direct_limit)
     mem, solver = resources(n, nnz, nel, 8 if order == 1 else 27, order, method,
-                            whole_unknowns=whole[2])
+                            whole_unknowns=whole[2], whole_elements=whole[1])
     secs = solver + output_seconds(whole[2], case.output.pictures and case.output.report)
     return Estimate(*whole, order, method, mem, secs, solved_unknowns=n,
                     element_type=element_type("hexahedra", order), solved_nodes=nodes,

@@ -59,12 +59,13 @@ def solved_groups(case: Case) -> list:
     return groups_of(case, layers)
 
 
-#: Seconds to validate and mesh a polygon outline of n vertices: a + b n + c n^2. Measured
-#: on the 2-core machine (shared, so an upper-side guide) with a 2 um sinusoidal outline,
-#: mesh.size 200 nm, edge_size 40 nm: 8 vertices 9 s, 24 vertices 30 s, 48 vertices 92 s,
-#: 100 vertices 380 s of gmsh meshing (each outline edge is refined on its own, and the
-#: self-crossing check compares n^2 / 2 edge pairs).
-POLYGON_SECONDS = (0.0, 0.94, 0.028)
+#: Seconds to validate and mesh a polygon outline of n vertices beyond the size-based
+#: estimate: a + b n + c n^2. Measured on the 2-core machine (quiet, 2026-12-03) with a 2 um
+#: sinusoidal outline, mesh.size 200 nm, edge_size 40 nm (about 25k tetrahedra): 8 vertices
+#: 1.1 s, 24 vertices 2.0 s, 48 vertices 3.0 s, 100 vertices 9.6 s of gmsh meshing (each
+#: outline edge is refined on its own, and the self-crossing check compares n^2 / 2 edge
+#: pairs); the size-based estimate covers about 0.8 s of it.
+POLYGON_SECONDS = (0.0, 0.035, 0.0006)
 
 
 def outline_seconds(case: Case) -> float:

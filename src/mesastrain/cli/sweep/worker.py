@@ -190,10 +190,13 @@ def _client_on(scheduler, workers, wait, say):
         desc = f"Dask scheduler {address}"
     else:
         n = workers or _default_workers()
+        # several worker processes already share the cores: each case's derived quantities
+        # then run one after the other inside its worker (run.pipeline.run_providers)
+        extra = {"env": {"MESASTRAIN_THREADS": "1"}} if n > 1 else {}
         cluster = LocalCluster(n_workers=n, threads_per_worker=1, processes=True,
                                host="127.0.0.1", dashboard_address=None,
                                scheduler_kwargs={"dashboard_address": "127.0.0.1:0"},
-                               silence_logs=logging.ERROR)
+                               silence_logs=logging.ERROR, **extra)
         client = Client(cluster, set_as_default=False)
         desc = f"embedded Dask cluster, {n} worker process(es) x 1 thread, loopback"
     try:
