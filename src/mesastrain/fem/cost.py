@@ -100,6 +100,9 @@ AMG_ITERATIONS = 40
 #: p-multigrid (quadratic tetrahedra: the P2 level, E^T A E on P1, smoothed aggregation
 #: below): set-up seconds per nonzero of the P2 matrix, iterations.
 PMG_SETUP_S_PER_NONZERO = 6.0e-8
+#: ... and peak bytes per nonzero of the P2 matrix (the matrix, E^T A E and the aggregation
+#: below it; fitted quiet on the L pad at 131k-977k unknowns: 3.65 GB at 84M nonzeros).
+PMG_BYTES_PER_NONZERO = 33.0
 PMG_ITERATIONS = 24
 #: Seconds per solved unknown (mesh, supports) and per unknown of the whole body
 #: (unfolding a mirrored model, recovery, probes; recovery refitted quiet: 0.8-1.0 us per
@@ -119,8 +122,9 @@ PICTURES_S_PER_UNKNOWN = 8.0e-7
 #: by side, each on blocks of at most about 100k elements (energy-norm patches, device
 #: fields, readout profiles), so the extra peak grows with the elements up to one block:
 #: bytes = DERIVED_BYTES_PER_ELEMENT x min(whole elements, DERIVED_BLOCK_ELEMENTS). Fitted to
-#: benchmarks/estimate_accuracy.py (demo mesa at 119k elements: +0.2 GB over the solve).
-DERIVED_BYTES_PER_ELEMENT = 2.0e3
+#: benchmarks/estimate_accuracy.py (demo mesa at 119k elements: +0.2-0.3 GB over the solve;
+#: linear tetrahedra at 222k elements: +0.3-0.45 GB, varying with how the providers overlap).
+DERIVED_BYTES_PER_ELEMENT = 3.5e3
 DERIVED_BLOCK_ELEMENTS = 100_000
 #: The error bars of issue 17, counted by :func:`mesastrain.run.resources.estimate`:
 #: discretisation error = ERROR_COARSE_SHARE of the solver stages (the coarser solve has
@@ -282,7 +286,7 @@ def resources(unknowns: int, nonzeros: int, elements: int, nloc: int, order: int
         mem += 12.0 * nnz + DIRECT_BYTES * n ** DIRECT_MEM_EXP
         secs += DIRECT_S * n ** DIRECT_EXP
     elif multigrid == "p":
-        mem += AMG_BYTES_PER_NONZERO * nnz
+        mem += PMG_BYTES_PER_NONZERO * nnz
         secs += (PMG_SETUP_S_PER_NONZERO + PMG_ITERATIONS * per_it) * nnz
     elif multigrid == "geometric":
         mem += BYTES_PER_NONZERO * nnz
