@@ -7,14 +7,25 @@ from mesastrain.io.report_headline import figure_texts
 __all__ = ["headline_table"]
 
 
-def headline_table(summary: dict) -> str:
+#: Probe stress components left out of the terminal's short table: the probe table above it
+#: gives their values, and summary.json and report.html give their error bars.
+_COMPONENTS = (" sxx", " syy", " szz")
+
+
+def headline_table(summary: dict, full: bool = False) -> str:
     """Plain-text table of ``summary["headline"]``: value, mesh and material-data error bars.
 
-    Returns '' when the summary has no headline figures.
+    The short form (the terminal's) gives each probe's von Mises stress but not its three
+    normal components, and says how many rows it left out; ``full`` gives every row (the
+    report always does). Returns '' when the summary has no headline figures.
     """
     rows = summary.get("headline") or []
     if not rows:
         return ""
+    left = []
+    if not full:
+        left = [r for r in rows if r.get("kind") == "probe" and r["name"].endswith(_COMPONENTS)]
+        rows = [r for r in rows if r not in left]
     texts = [figure_texts(r) for r in rows]
     w = max(len(t["name"]) for t in texts)
     wv = max(len(t["value"]) for t in texts)
@@ -30,4 +41,7 @@ def headline_table(summary: dict) -> str:
     if summary.get("material_scatter"):
         lines.append("material data: change for the published spread of each constant group, "
                      "first order, root-sum-square over groups")
+    if left:
+        lines.append(f"{len(left)} more rows (the probes' σxx, σyy, σzz with their bars) in "
+                     f"report.html and summary.json \N{RIGHTWARDS ARROW} headline")
     return "\n".join(lines)

@@ -303,9 +303,29 @@ def _entry(kappa: float, diameter: float, tensor=None) -> dict:
     return e
 
 
+#: Bow heights above this fraction of the substrate thickness are outside small-deflection
+#: plate theory (Stoney, lamination theory and the linear FE plate all assume deflections
+#: well below the thickness; Freund & Suresh, Thin Film Materials, 2003, ch. 2, from memory:
+#: beyond about the thickness the plate bends nonlinearly and may buckle asymmetrically).
+SMALL_DEFLECTION_LIMIT = 0.5
+
+
 def derive(res) -> Derived:
-    """Wafer-bow provider: ``summary["wafer_bow"]``."""
+    """Wafer-bow provider: ``summary["wafer_bow"]``, and a warning when the bow is too large
+    for the linear plate models it is computed with."""
     try:
-        return Derived(summary={"wafer_bow": wafer_bow(res)})
+        bow = wafer_bow(res)
     except np.linalg.LinAlgError as exc:     # a degenerate stack; say so, do not stop the run
         return Derived(warnings=[f"wafer bow not computed: {exc}"])
+    h_um = res.case.substrate.thickness * 1e-3
+    height = abs(bow["laminate"]["bow_height"])
+    bow["small_deflection"] = bool(height <= SMALL_DEFLECTION_LIMIT * h_um)
+    warnings = []
+    if not bow["small_deflection"]:
+        warnings.append(
+            f"wafer bow: {height:.3g} µm over a {bow['wafer_diameter']:g} mm wafer is "
+            f"{height / h_um:.3g} times the {h_um:.4g} µm substrate thickness, beyond "
+            f"small-deflection plate theory (valid well below the thickness): the curvature "
+            f"and bow height are not meaningful; give the real wafer as the substrate (e.g. "
+            f"the buffer as a layer on it) or set [readouts] wafer_diameter")
+    return Derived(summary={"wafer_bow": bow}, warnings=warnings)

@@ -116,3 +116,21 @@ def test_bow_in_a_run_summary():
     assert fe["bow_height"] == pytest.approx(fe["curvature"] * 0.3 ** 2 / 8 * 1e6, rel=1e-6)
     assert wb["timoshenko"]["curvature"] == pytest.approx(fe["curvature"], rel=2e-3)
     assert np.isfinite(wb["laminate"]["curvature"])
+    assert wb["small_deflection"] is True
+    assert not any("small-deflection" in w for w in res.warnings)
+
+
+def test_bow_far_beyond_the_substrate_thickness_is_flagged():
+    # a 4 um "substrate" under a strained film over 200 mm: the linear plate models give a
+    # bow of tens of centimetres, which is no bow at all (the plate would roll up); the run
+    # says so instead of reporting it as a figure to act on
+    case = parse_case({"substrate": {"material": "Si", "thickness": "4 um", "normal": [0, 0, 1],
+                                     "x_axis": [1, 1, 0]},
+                       "layer": [{"material": "SiGe", "x": 0.3, "thickness": 30}],
+                       "output": {"report": False, "vtu": False},
+                       "readouts": {"wafer_diameter": "200 mm"}})
+    res = solve_and_derive(case)
+    wb = next(d.summary["wafer_bow"] for d in res.derived if "wafer_bow" in d.summary)
+    assert abs(wb["laminate"]["bow_height"]) > 4.0     # far more than the 4 um substrate
+    assert wb["small_deflection"] is False
+    assert sum("small-deflection plate theory" in w for w in res.warnings) == 1
