@@ -22,7 +22,8 @@ from pathlib import Path
 
 #: Keys whose values depend on the run, not on the physics.
 SKIP = {"timings", "program", "seconds", "elapsed", "wall_seconds", "started", "finished",
-        "host", "path", "source_file", "case_file", "version", "estimate"}
+        "host", "path", "source_file", "case_file", "version", "estimate", "setup_time",
+        "solve_time"}
 
 
 def leaves(obj, path=""):
