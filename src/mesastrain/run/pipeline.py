@@ -25,6 +25,7 @@ import logging
 import os
 import time
 from collections.abc import Callable, Sequence
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import replace
 
 import numpy as np
@@ -168,6 +169,16 @@ def provider_name(provider) -> str:
     return getattr(provider, "label", name)
 
 
+def thread_count() -> int:
+    """Threads for work that numpy spreads over cores (derived quantities): the usable
+    cores, at most ``MESASTRAIN_THREADS`` when that environment variable is set."""
+    n = usable_cores()
+    env = os.environ.get("MESASTRAIN_THREADS", "").strip()
+    if env.isdigit():
+        n = min(n, int(env))
+    return max(1, n)
+
+
 def run_providers(res: Result, providers: Sequence[Callable], say=None,
                   workers: int | None = None) -> None:
     """Run derived-quantity providers on a result, side by side where they may.
@@ -193,18 +204,11 @@ def run_providers(res: Result, providers: Sequence[Callable], say=None,
         Threads (default: the usable cores, or the environment variable
         ``MESASTRAIN_THREADS`` when set; 1 runs them one after the other).
     """
-    from concurrent.futures import ThreadPoolExecutor
-
     say = say or (lambda msg: None)
     stages = [int(getattr(p, "stage", 0)) for p in providers]
     if stages != sorted(stages):
         raise ValueError("providers must be listed in the order of their stages")
-    if workers is None:
-        workers = usable_cores()
-        env = os.environ.get("MESASTRAIN_THREADS", "").strip()
-        if env.isdigit():
-            workers = min(workers, int(env))
-    workers = max(1, int(workers))
+    workers = thread_count() if workers is None else max(1, int(workers))
     n = len(providers)
     pool = ThreadPoolExecutor(workers) if workers > 1 else None
     try:

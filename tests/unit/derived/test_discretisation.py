@@ -192,3 +192,16 @@ def test_a_failed_coarse_solve_leaves_the_run_standing(small_mesa_result, monkey
     de = d.summary["discretisation_error"]
     assert de["figures"] == {} and 0 < de["energy_norm"]["relative"] < 1
     assert len(d.warnings) == 1 and "coarser solve failed" in d.warnings[0]
+
+
+def test_energy_norm_blocks_side_by_side_give_the_same_elements(small_mesa_result, monkeypatch):
+    # the blocks of elements are independent: two threads over small blocks give exactly the
+    # element errors of one thread over one block
+    monkeypatch.setenv("MESASTRAIN_THREADS", "1")
+    one = discretisation.energy_norm(small_mesa_result)
+    monkeypatch.setattr(discretisation, "CHUNK", 64)
+    monkeypatch.setattr(discretisation, "thread_count", lambda: 2)
+    two = discretisation.energy_norm(small_mesa_result)
+    assert small_mesa_result.mesh.nelems > 4 * 64
+    np.testing.assert_allclose(two["elements"], one["elements"], rtol=1e-12, atol=0)
+    assert two["relative"] == pytest.approx(one["relative"], rel=1e-12)
