@@ -89,8 +89,8 @@ from mesastrain.physics.thinfilm import bow_height
 from mesastrain.run.pipeline import run_case, thread_count
 from mesastrain.run.result import Derived
 
-__all__ = ["COARSENING", "COARSE_PROVIDERS", "coarse_case", "derive", "energy", "energy_norm", "estimate",
-           "figure_readouts", "nominal_rate"]
+__all__ = ["COARSENING", "COARSE_PROVIDERS", "coarse_case", "derive", "energy", "energy_norm",
+           "estimate", "figure_readouts", "nominal_rate"]
 
 #: Element sizes of the extra solve are multiplied by this.
 COARSENING = 2.0
