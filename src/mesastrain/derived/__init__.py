@@ -1,7 +1,8 @@
 """Derived quantities: readouts computed from a solved :class:`mesastrain.run.result.Result`.
 
 Each provider is a pure function ``derive(result) -> Derived``. The pipeline runs the
-providers it is given, in order; :data:`PROVIDERS` is the standard list, passed by the
+providers it is given by stage (:func:`mesastrain.run.pipeline.run_providers`) and keeps
+their parts in the order given; :data:`PROVIDERS` is the standard list, passed by the
 command line, the sweep workers and the convergence study. Add a provider by writing
 its module here and adding its ``derive`` to :data:`PROVIDERS`, with a ``stage``
 attribute when it reads other providers' parts (see

@@ -12,6 +12,7 @@ import re
 from pathlib import Path
 
 from mesastrain.io.markup import esc, image, num, table
+from mesastrain.physics.bands import device_parameters
 from mesastrain.physics.quantities import describe, parameter_words, pdp_words, valley_words
 from mesastrain.units import fmt
 
@@ -156,8 +157,6 @@ def parameter_rows(sources: list[str]) -> list[tuple[str, str, str, str, str]]:
         The value is read from ``device_parameters.toml`` by the dotted key,
         with its unit ('-' where the line names no entry).
     """
-    from mesastrain.physics.bands import device_parameters
-
     data = device_parameters()
     rows = []
     for line in sources:

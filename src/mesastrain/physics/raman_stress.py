@@ -30,6 +30,7 @@ from __future__ import annotations
 import numpy as np
 
 from mesastrain.errors import CaseError, MaterialError, MesastrainError, OrientationError
+from mesastrain.physics.bands import device_parameters
 from mesastrain.physics.crystal import format_indices, sample_frame
 from mesastrain.physics.materials import get_material
 from mesastrain.physics.raman import biaxial_line, raman_parameters, stress_factor
@@ -177,7 +178,5 @@ def _biaxial_line_stress(shift: float, kind: str, material: str, normal) -> dict
 
 def raman_materials() -> list[str]:
     """Materials ``implied_stress`` accepts: PDP materials, SiGe (Si-Si) and biaxial lines."""
-    from mesastrain.physics.bands import device_parameters
-
     d = device_parameters()
     return list(d["raman"]) + list(d.get("raman_alloy", {})) + list(d.get("raman_biaxial", {}))

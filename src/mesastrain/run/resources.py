@@ -42,9 +42,9 @@ def error_bar_seconds(case: Case, est: Estimate) -> float:
     (``[uncertainty]``, one per constant group that moves the displacement). Constants:
     :mod:`mesastrain.fem.cost` (``ERROR_*``, ``EXTRA_RHS_SHARE``)."""
     secs = 0.0
-    if getattr(case.mesh, "error_estimate", False):
+    if case.mesh.error_estimate:
         secs += ERROR_COARSE_SHARE * est.solver_seconds + ERROR_S_PER_UNKNOWN * est.unknowns
-    if getattr(case.uncertainty, "enabled", False):
+    if case.uncertainty.enabled:
         secs += len(solved_groups(case)) * est.rhs_seconds
     return secs
 
