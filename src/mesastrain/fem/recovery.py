@@ -103,7 +103,9 @@ def _fit(rows: np.ndarray, elems: np.ndarray, centre: np.ndarray, scale: np.ndar
     k = np.repeat(rows, nq)
     s = slot_of[elems][:, None] * nq + np.arange(nq)[None, :]
     s = s.ravel()
-    xi = (xs.reshape(-1, xs.shape[-1])[s] - centre[k]) / scale[k, None]
+    # (np.take: several times faster than fancy indexing on numpy 2.4, measured)
+    xi = (np.take(xs.reshape(-1, xs.shape[-1]), s, axis=0) - np.take(centre, k, axis=0)) \
+        / np.take(scale, k)[:, None]
     P = _monomials(xi, degree)                                   # (npairs, m)
     m = P.shape[1]
     c = vals.shape[-1]
@@ -135,7 +137,7 @@ def _fit(rows: np.ndarray, elems: np.ndarray, centre: np.ndarray, scale: np.ndar
 
 def recover_at(p: np.ndarray, t: np.ndarray, region: np.ndarray, elements: np.ndarray,
                X: np.ndarray, kind: str, order: int, vertex_ref: np.ndarray, sample,
-               coords: np.ndarray | None = None):
+               coords: np.ndarray | None = None, symmetric: bool = False):
     """Recovered field at points given by their element and reference coordinates.
 
     Parameters
@@ -162,6 +164,10 @@ def recover_at(p: np.ndarray, t: np.ndarray, region: np.ndarray, elements: np.nd
     coords : ndarray (npts, dim), optional
         Physical coordinates of the query points, nm, when the caller has them
         (otherwise ``sample`` is asked, which also evaluates the field there).
+    symmetric : bool
+        The field is a symmetric 3x3 tensor given as 9 components (row-major):
+        only its 6 independent components are fitted and blended (2/3 of the
+        work; the fit is component by component, so the result is the same).
 
     Returns
     -------
@@ -221,6 +227,8 @@ def recover_at(p: np.ndarray, t: np.ndarray, region: np.ndarray, elements: np.nd
         new = np.unique(el[slot[el] < 0])
         if new.size:
             xq, vq = sample(new, np.repeat(ref[:, None, :], new.size, axis=1))
+            if symmetric:
+                vq = _upper(vq)
             slot[new] = len(xs) + np.arange(new.size)
             xs = np.concatenate([xs, xq])
             vs = vq if vs is None else np.concatenate([vs, vq])
@@ -243,7 +251,8 @@ def recover_at(p: np.ndarray, t: np.ndarray, region: np.ndarray, elements: np.nd
             scales = np.ones(npatch)
         cen = centre[todo]
         flat = (slot[el][:, None] * nq + np.arange(nq)).ravel()
-        d = np.linalg.norm(xs.reshape(-1, dim)[flat] - np.repeat(cen[rows], nq, axis=0), axis=1)
+        d = np.linalg.norm(np.take(xs.reshape(-1, dim), flat, axis=0)
+                           - np.repeat(np.take(cen, rows, axis=0), nq, axis=0), axis=1)
         scale = np.zeros(todo.size)
         np.maximum.at(scale, np.repeat(rows, nq), d)
         scale[scale == 0] = 1.0
@@ -269,9 +278,9 @@ def recover_at(p: np.ndarray, t: np.ndarray, region: np.ndarray, elements: np.nd
         W = np.empty((npts, nv, m))
         for a in range(nv):
             k = inv[:, a]
-            xi = (from_ref - centre[k]) / scales[k, None]
+            xi = (from_ref - np.take(centre, k, axis=0)) / np.take(scales, k)[:, None]
             W[:, a, :] = N[:, a, None] * _monomials(xi, order)
-        ce = coef[inv[::per]].reshape(uel.size, nv * m, c)
+        ce = np.take(coef, inv[::per], axis=0).reshape(uel.size, nv * m, c)
         out = np.matmul(W.reshape(uel.size, per, nv * m), ce).reshape(npts, c)
     else:
         out = np.zeros((npts, c))
@@ -280,5 +289,21 @@ def recover_at(p: np.ndarray, t: np.ndarray, region: np.ndarray, elements: np.nd
             xi = (from_ref - centre[k]) / scales[k, None]
             P = _monomials(xi, order)
             out += N[:, a, None] * np.einsum("nm,nmc->nc", P, coef[k])
-    deg = chosen[inv].min(axis=1)
+    deg = np.take(chosen, inv).min(axis=1)
+    if symmetric:
+        out = out[:, _FULL]
     return out, deg
+
+
+#: Row-major 3x3 components 11, 22, 33, 23, 13, 12 (the 6 of a symmetric tensor), and the
+#: position among them of each of the 9.
+_UPPER = np.array([0, 4, 8, 5, 2, 1])
+_FULL = np.array([0, 5, 4, 5, 1, 3, 4, 3, 2])
+
+
+def _upper(v: np.ndarray) -> np.ndarray:
+    """(..., 9) row-major components of symmetric tensors -> (..., 6), the off-diagonal
+    ones averaged with their mirror (which they equal up to round-off)."""
+    out = v[..., _UPPER].copy()
+    out[..., 3:] = 0.5 * (out[..., 3:] + v[..., [7, 6, 3]])
+    return out

@@ -36,6 +36,7 @@ same estimate as a stopping rule for finite elements; from memory).
 from __future__ import annotations
 
 import logging
+import threading
 import time
 from dataclasses import dataclass
 
@@ -78,12 +79,14 @@ class _FreePart:
                               shape=K.shape)
         self.K = K
         self.idx = idx
-        self.full = np.zeros(K.shape[0])
         self.shape = (idx.size, idx.size)
 
     def __matmul__(self, p: np.ndarray) -> np.ndarray:
-        self.full[self.idx] = p
-        return (self.K @ self.full)[self.idx]
+        # a vector of its own per product (not one held buffer): several solves on the
+        # same operator may run on threads at once
+        full = np.zeros(self.K.shape[0])
+        full[self.idx] = p
+        return (self.K @ full)[self.idx]
 
 
 @dataclass(frozen=True)
@@ -434,14 +437,20 @@ def solve_condensed(K: sp.csr_matrix, f: np.ndarray, fixed: np.ndarray,
                           complexity, prec, *traffic)
     log.info("solved: %s", report)
     if follow_up is not None:
+        lu_lock = threading.Lock()
+
         def solve_again(rhs: np.ndarray, tol2: float | None = None,
                         stress_tol2: float | None = None) -> np.ndarray:
+            """The solution for another right-hand side; callable from several threads
+            at once (the multigrid cycle holds no state between calls; the one LU
+            factorisation is used in turn)."""
             b2 = np.asarray(rhs, dtype=float)[idx]
             out = np.zeros(n)
             if not np.any(b2):
                 return out
             if lu is not None:
-                out[idx] = lu.solve(b2)
+                with lu_lock:
+                    out[idx] = lu.solve(b2)
                 return out
             t_ = tol if tol2 is None else tol2
             s_ = stress_tol if stress_tol2 is None else stress_tol2

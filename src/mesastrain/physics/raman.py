@@ -280,6 +280,17 @@ class RamanModes:
     observable: np.ndarray
 
 
+def _sign_convention(V: np.ndarray, tol: float = 1e-6) -> np.ndarray:
+    """Columns of V (..., 3, 3) with a fixed sign: the first component within ``tol`` of
+    the largest magnitude is positive (an eigenvector's sign is arbitrary, and LAPACK's
+    choice moves with round-off; this keeps the written polarisations the same from
+    one run to the next)."""
+    mag = np.abs(V)
+    first = np.argmax(mag >= mag.max(axis=-2, keepdims=True) - tol, axis=-2)   # (..., 3)
+    lead = np.take_along_axis(V, first[..., None, :], axis=-2)
+    return V * np.where(lead < 0, -1.0, 1.0)
+
+
 def raman_modes(strain_crystal, p: float, q: float, r: float, omega0: float, R=None,
                 incident=None, scattered=None, degenerate_tol: float = DEGENERATE_TOL
                 ) -> RamanModes:
@@ -316,7 +327,7 @@ def raman_modes(strain_crystal, p: float, q: float, r: float, omega0: float, R=N
     # separate the clusters by offsets far above W's scale so eigh keeps them apart
     A = A + (10.0 * (np.trace(W) + 1.0)) * ids[..., :, None] * np.eye(3)
     _, U = np.linalg.eigh(A)
-    V = V @ U
+    V = _sign_convention(V @ U)
     shifts = np.sum(V * (K @ V), axis=-2)                   # diag(V^T K V)
     inten = np.sum(V * (W @ V), axis=-2)
     total = np.trace(W)

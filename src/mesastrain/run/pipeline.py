@@ -22,7 +22,6 @@ the fields.
 from __future__ import annotations
 
 import logging
-import os
 import time
 from collections.abc import Callable, Sequence
 from concurrent.futures import ThreadPoolExecutor
@@ -37,6 +36,7 @@ from mesastrain.fem.constraints import Boundary
 from mesastrain.fem.cost import element_type
 from mesastrain.fem.discretisation import Discretisation
 from mesastrain.fem.fields import hydrostatic, principal, recover, von_mises
+from mesastrain.fem.parallel import thread_count  # noqa: F401  (re-exported)
 from mesastrain.fem.solve import solve_model
 from mesastrain.mesh.base import ModelMesh
 from mesastrain.mesh.kinds import build_mesh
@@ -45,7 +45,7 @@ from mesastrain.model.dislocation_plan import dislocation_eigenstrain
 from mesastrain.model.regions import LayerModel, build_layers
 from mesastrain.model.symmetry import Symmetry
 from mesastrain.model.symmetry import decide as decide_symmetry
-from mesastrain.run.resources import available_memory_gb, estimate, usable_cores
+from mesastrain.run.resources import available_memory_gb, estimate
 from mesastrain.run.result import Derived, Result
 from mesastrain.run.sensitivity import Sensitivities, groups_of, unfold_sensitivities
 
@@ -135,7 +135,7 @@ def run_case(case: Case, progress=None, max_memory_gb: float | None = None,
                          spaces=cache.deferred_spaces(sm.region), follow_up=sens)
     timings["solve"] = time.perf_counter() - t
     if sens is not None:
-        timings["sensitivities"] = float(sum(sens.seconds.values()))
+        timings["sensitivities"] = float(sens.wall)
         timings["solve"] -= timings["sensitivities"]
     say(f"solve: {rep.method}, {rep.iterations} iterations, residual {rep.residual:.1e}, "
         f"{timings['solve']:.1f} s")
@@ -167,16 +167,6 @@ def provider_name(provider) -> str:
     """A provider's name for progress lines: its module's last part (``readouts``)."""
     name = getattr(provider, "__module__", "").rsplit(".", 1)[-1] or "derived"
     return getattr(provider, "label", name)
-
-
-def thread_count() -> int:
-    """Threads for work that numpy spreads over cores (derived quantities): the usable
-    cores, at most ``MESASTRAIN_THREADS`` when that environment variable is set."""
-    n = usable_cores()
-    env = os.environ.get("MESASTRAIN_THREADS", "").strip()
-    if env.isdigit():
-        n = min(n, int(env))
-    return max(1, n)
 
 
 def run_providers(res: Result, providers: Sequence[Callable], say=None,

@@ -17,6 +17,7 @@ from mesastrain.fem.cost import (
     ERROR_S_PER_UNKNOWN,
     Estimate,
 )
+from mesastrain.fem.parallel import usable_cores  # noqa: F401  (re-exported)
 from mesastrain.mesh.kinds import KINDS, kind_of
 from mesastrain.model.regions import build_layers
 from mesastrain.run.sensitivity import groups_of
@@ -81,16 +82,6 @@ def outline_seconds(case: Case) -> float:
 def estimate_other_kind(case: Case, kind: str) -> Estimate:
     """Size estimate of a case meshed as the named kind (see :mod:`mesastrain.mesh.kinds`)."""
     return KINDS[kind].estimate(case)
-
-
-def usable_cores() -> int:
-    """Cores this process may run on (its CPU affinity; ``os.cpu_count()`` where unknown)."""
-    import os
-
-    try:
-        return max(1, len(os.sched_getaffinity(0)))
-    except (AttributeError, OSError):
-        return max(1, os.cpu_count() or 1)
 
 
 def available_memory_gb() -> float:

@@ -392,3 +392,26 @@ def test_implied_stress_on_every_surface():
     assert sige["omega0"] == pytest.approx(520.5 - 62 * 0.3) and sige["material"] == "Si0.7Ge0.3"
     with pytest.raises(Exception, match="--x"):
         implied_stress(-1.0, "biaxial", "SiGe")
+
+
+def test_polarisations_have_a_fixed_sign():
+    """An eigenvector's sign is arbitrary; the written polarisations are not: the first
+    component of largest magnitude is positive, the same for V and -V, and the modes
+    (shifts, intensities) do not depend on it."""
+    from mesastrain.physics.raman import _sign_convention
+
+    rng = np.random.default_rng(3)
+    V = np.linalg.qr(rng.standard_normal((50, 3, 3)))[0]
+    W = _sign_convention(V)
+    np.testing.assert_allclose(np.abs(W), np.abs(V))
+    np.testing.assert_array_equal(_sign_convention(-V), W)
+    lead = np.take_along_axis(W, np.argmax(np.abs(W), axis=-2)[:, None, :], axis=-2)
+    assert np.all(lead > 0)
+    # a tie in magnitude (a mode along [110]-type directions) takes the first component
+    t = np.array([[1.0, -1.0, 0.0], [-1.0, -1.0, 0.0], [0.0, 0.0, -np.sqrt(2)]]).T / np.sqrt(2)
+    np.testing.assert_allclose(_sign_convention(t)[:, 1], [1 / np.sqrt(2), 1 / np.sqrt(2), 0])
+    eps = np.diag([0.01, -0.004, 0.002]) + 0.003 * (np.ones((3, 3)) - np.eye(3))
+    m = raman_modes(eps, -1.43, -1.89, -0.59, 520.7)
+    lead = np.take_along_axis(m.polarisation, np.argmax(np.abs(m.polarisation), axis=-2)[None],
+                              axis=-2)
+    assert np.all(lead > 0)
