@@ -36,7 +36,7 @@ from mesastrain.fem.constraints import Boundary
 from mesastrain.fem.cost import element_type
 from mesastrain.fem.discretisation import Discretisation
 from mesastrain.fem.fields import hydrostatic, principal, recover, von_mises
-from mesastrain.fem.parallel import thread_count  # noqa: F401  (re-exported)
+from mesastrain.fem.parallel import limited, thread_count
 from mesastrain.fem.solve import solve_model
 from mesastrain.mesh.base import ModelMesh
 from mesastrain.mesh.kinds import build_mesh
@@ -212,7 +212,7 @@ def run_providers(res: Result, providers: Sequence[Callable], say=None,
                 # the heaviest first (``weight``, default 1), so that the longest does not
                 # start last and leave the other threads idle at the end of the stage
                 order = sorted(idx, key=lambda i: -float(getattr(providers[i], "weight", 1)))
-                futures = {i: pool.submit(providers[i], res) for i in order}
+                futures = {i: pool.submit(_alongside, providers[i], res) for i in order}
                 parts = [futures[i].result() for i in idx]
             for d in parts:
                 res.derived.append(d)
@@ -220,6 +220,13 @@ def run_providers(res: Result, providers: Sequence[Callable], say=None,
     finally:
         if pool is not None:
             pool.shutdown(wait=True)
+
+
+def _alongside(provider, res: Result):
+    """Run a provider on a pool thread beside others: its own array work is not split
+    over threads again (:func:`mesastrain.fem.parallel.limited`)."""
+    with limited(1):
+        return provider(res)
 
 
 def _cell_eigenstrain(case, layers, sm, extra_eigenstrain=None):

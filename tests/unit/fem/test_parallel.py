@@ -146,3 +146,21 @@ def test_extra_right_hand_sides_solved_at_once_equal_one_by_one(method):
     for a, b in zip(out["serial"], out["threads"]):
         np.testing.assert_array_equal(a, b)
         assert np.any(a)
+
+
+def test_limited_caps_this_thread_only(monkeypatch):
+    monkeypatch.setattr(parallel, "usable_cores", lambda: 4)
+    monkeypatch.delenv("MESASTRAIN_THREADS", raising=False)
+    assert parallel.thread_count() == 4
+    other = []
+    with parallel.limited(1):
+        assert parallel.thread_count() == 1
+        with parallel.limited(3):              # a nested limit never raises the cap
+            assert parallel.thread_count() == 1
+        t = threading.Thread(target=lambda: other.append(parallel.thread_count()))
+        t.start()
+        t.join()
+    assert other == [4]
+    with parallel.limited(2):
+        assert parallel.thread_count() == 2
+    assert parallel.thread_count() == 4

@@ -96,3 +96,26 @@ def test_a_failing_provider_raises_after_its_stage():
     with pytest.raises(RuntimeError, match="boom"):
         run_providers(_Res(), ps, workers=2)
     assert [name for name, *_ in log] == ["b"]     # its stage finished, the next did not start
+
+
+def test_providers_side_by_side_do_not_split_their_own_work(monkeypatch):
+    """A provider on a pool thread beside others sees one thread for its own array work
+    (mesastrain.fem.parallel.limited); a stage of one provider keeps them all."""
+    from mesastrain.fem import parallel
+
+    monkeypatch.setattr(parallel, "usable_cores", lambda: 4)
+    monkeypatch.delenv("MESASTRAIN_THREADS", raising=False)
+    seen = {}
+
+    def counting(name, stage):
+        def derive(res):
+            seen[name] = parallel.thread_count()
+            return Derived(summary={name: stage})
+        derive.stage = stage
+        derive.__module__ = f"fake.{name}"
+        return derive
+
+    provs = [counting("a", 0), counting("b", 0), counting("alone", 1)]
+    run_providers(_Res(), provs, workers=2)
+    assert seen == {"a": 1, "b": 1, "alone": 4}
+    assert parallel.thread_count() == 4
