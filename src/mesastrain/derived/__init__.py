@@ -29,6 +29,7 @@ PROVIDERS = (
     device.derive,      # band edges, Raman shift, piezoresistance
     readouts.derive,    # relaxation, corners, tractions, energy, critical thickness
     discretisation.energy,  # energy-norm error of the stress field
+    discretisation.coarse_solve,  # the coarser solve of the figures' error bars
     bow.derive,         # free-standing blanket wafer: FE, Stoney, laminate
     cuts.derive,        # [[cut]] -> CSV + PNG
     misfit.derive,      # dislocation contribution, overlay, relaxation

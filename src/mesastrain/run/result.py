@@ -44,6 +44,10 @@ class Derived:
         output folder -> keyword arguments of :func:`mesastrain.io.maps.draw_map`
         (``quantity``, ``component``, ``note``, ``depth``, ...). Drawn only when
         ``fields.vtu`` is written.
+    handoff : dict of str -> object
+        What a provider passes to providers of a later stage (a result they would
+        otherwise recompute); written nowhere. A reader that has used an entry
+        pops it, so that it is not held until the output is written.
     """
 
     summary: dict = field(default_factory=dict)
@@ -53,6 +57,7 @@ class Derived:
     warnings: list = field(default_factory=list)
     files: dict = field(default_factory=dict)
     section_maps: dict = field(default_factory=dict)
+    handoff: dict = field(default_factory=dict, repr=False)
 
 
 @dataclass(frozen=True)

@@ -205,3 +205,35 @@ def test_energy_norm_blocks_side_by_side_give_the_same_elements(small_mesa_resul
     assert small_mesa_result.mesh.nelems > 4 * 64
     np.testing.assert_allclose(two["elements"], one["elements"], rtol=1e-12, atol=0)
     assert two["relative"] == pytest.approx(one["relative"], rel=1e-12)
+
+
+def test_the_early_coarse_solve_is_handed_over_once(small_mesa_result, monkeypatch):
+    """coarse_solve (stage 0) hands its result to derive (stage 1): the same bars as a
+    coarse solve run by derive itself, no second solve, and the result not held after."""
+    own = discretisation.derive(small_mesa_result).summary["discretisation_error"]
+    part = discretisation.coarse_solve(small_mesa_result)
+    assert discretisation.HANDOFF in part.handoff
+    res = dataclasses.replace(small_mesa_result, derived=[*small_mesa_result.derived, part])
+
+    def again(*args, **kwargs):
+        raise AssertionError("a second coarse solve")
+
+    monkeypatch.setattr(discretisation, "_solve_coarse", again)
+    got = discretisation.derive(res).summary["discretisation_error"]
+    assert got["figures"] == own["figures"] and got["figures"]
+    assert got["coarse_solve"]["unknowns"] == own["coarse_solve"]["unknowns"]
+    assert part.handoff == {}
+
+
+def test_a_failed_early_coarse_solve_is_reported_by_derive(small_mesa_result, monkeypatch):
+    from mesastrain.errors import ResourceError
+
+    def refuse(*args, **kwargs):
+        raise ResourceError("no memory for the coarse solve")
+
+    monkeypatch.setattr(discretisation, "_solve_coarse", refuse)
+    part = discretisation.coarse_solve(small_mesa_result)
+    res = dataclasses.replace(small_mesa_result, derived=[*small_mesa_result.derived, part])
+    d = discretisation.derive(res)
+    assert d.summary["discretisation_error"]["figures"] == {}
+    assert len(d.warnings) == 1 and "no memory for the coarse solve" in d.warnings[0]
