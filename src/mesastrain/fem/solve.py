@@ -80,11 +80,14 @@ class _FreePart:
         self.K = K
         self.idx = idx
         self.shape = (idx.size, idx.size)
+        self._local = threading.local()
 
     def __matmul__(self, p: np.ndarray) -> np.ndarray:
-        # a vector of its own per product (not one held buffer): several solves on the
-        # same operator may run on threads at once
-        full = np.zeros(self.K.shape[0])
+        # one full-length vector per thread, kept between products (the held entries stay
+        # zero): several solves on the same operator may run on threads at once
+        full = getattr(self._local, "full", None)
+        if full is None:
+            full = self._local.full = np.zeros(self.K.shape[0])
         full[self.idx] = p
         return (self.K @ full)[self.idx]
 
