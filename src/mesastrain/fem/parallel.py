@@ -1,12 +1,16 @@
-"""Threads for array work: how many, and sparse products split by rows.
+"""Threads for array work: how many, independent items side by side, sparse results
+computed in row blocks.
 
 numpy's array loops and scipy's compiled sparse kernels (``csr_matmat``,
 ``csr_matvec``, ``csr_plus_csr``, ``csr_tocsc``) release the interpreter lock,
 so independent pieces of them run side by side on threads. Measured on this
-project's 2-core machine: two CSR products at once took 0.54 of the time of one
-after the other, two matrix-vector products 0.69 (memory bound). pyamg's
-Gauss-Seidel sweep keeps the lock, so two V-cycles at once overlap only in
-their products.
+project's 2-core machine: two small CSR products at once took 0.54 of the time
+of one after the other, two matrix-vector products 0.69 (memory bound); but the
+large products of the multigrid set-up (tens of millions of entries) measured
+no faster in row blocks, while the sums did (1.07 -> 0.81 s at 1M unknowns).
+pyamg's Gauss-Seidel sweep keeps the lock, so two V-cycles at once overlap only
+in their products. Timings on this virtual machine vary by 10-15 % from run to
+run; each use here was measured in alternating runs.
 
 The number of threads is the cores this process may use, capped by the
 environment variable ``MESASTRAIN_THREADS`` (sweep workers and test processes
@@ -132,9 +136,3 @@ def by_rows(fn: Callable[[int, int], sp.csr_matrix], A: sp.csr_matrix,
     if threads == 1 or A.nnz < SPLIT_MIN_NNZ:
         return sp.csr_matrix(fn(0, A.shape[0]))
     return stack_rows(map_threads(lambda ab: fn(*ab), row_blocks(A, threads), threads))
-
-
-def matmul(A: sp.csr_matrix, B: sp.csr_matrix, threads: int | None = None) -> sp.csr_matrix:
-    """``A @ B`` for CSR matrices, row blocks of ``A`` on threads."""
-    A = sp.csr_matrix(A)
-    return by_rows(lambda r0, r1: A[r0:r1] @ B, A, threads)

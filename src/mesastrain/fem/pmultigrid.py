@@ -27,8 +27,6 @@ from dataclasses import dataclass
 import numpy as np
 import scipy.sparse as sp
 
-from mesastrain.fem.parallel import matmul
-
 
 @dataclass(frozen=True)
 class LinearSpace:
@@ -105,9 +103,8 @@ def linear_space(disc) -> LinearSpace | None:
 
 
 def galerkin(A: sp.csr_matrix, E: sp.csr_matrix) -> sp.csr_matrix:
-    """E^T A E in double precision, exactly symmetric, int32 indices (the two products
-    in row blocks on threads: :func:`mesastrain.fem.parallel.matmul`)."""
-    Ac = matmul(E.T.tocsr(), matmul(A, E))
+    """E^T A E in double precision, exactly symmetric, int32 indices."""
+    Ac = (E.T.tocsr() @ (A @ E)).tocsr()
     Ac = 0.5 * (Ac + Ac.T)
     Ac = sp.csr_matrix(Ac)
     Ac.sum_duplicates()
