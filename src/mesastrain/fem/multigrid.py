@@ -26,12 +26,8 @@ import scipy.sparse as sp
 import scipy.sparse.linalg as spla
 
 from mesastrain.fem.coarsening import COARSEST_UNKNOWNS, GridSpaces
-from mesastrain.fem.parallel import by_rows, map_threads
 
 log = logging.getLogger(__name__)
-
-#: Stored entries per row chunk of :func:`split_triangles` (bounds its temporaries).
-CHUNK_ENTRIES = 8_000_000
 
 
 # --------------------------------------------------------------------------
@@ -46,8 +42,7 @@ def _csr(M, dtype) -> sp.csr_matrix:
                           M.indptr.astype(itype, copy=False)), shape=M.shape)
 
 
-def split_triangles(M: sp.csr_matrix, dtype, keep: np.ndarray | None = None,
-                    threads: int | None = None
+def split_triangles(M: sp.csr_matrix, dtype, keep: np.ndarray | None = None
                     ) -> tuple[sp.csr_matrix, sp.csr_matrix, np.ndarray]:
     """Lower and upper triangles (both with the diagonal) and the diagonal of M.
 
@@ -63,8 +58,6 @@ def split_triangles(M: sp.csr_matrix, dtype, keep: np.ndarray | None = None,
         Rows and columns to keep (the others are dropped and the kept ones
         renumbered in order): the triangles of M[keep][:, keep] without
         forming that submatrix.
-    threads : int, optional
-        Threads for the row chunks (default :func:`mesastrain.fem.parallel.thread_count`).
 
     Returns
     -------
@@ -84,60 +77,40 @@ def split_triangles(M: sp.csr_matrix, dtype, keep: np.ndarray | None = None,
         newidx = np.full(n, np.iinfo(itype).max, dtype=itype)
         newidx[rows_kept] = np.arange(m, dtype=itype)
         newrow = np.where(keep, newidx, -1).astype(itype)
+    lo_cnt = np.zeros(n, dtype=np.int64)
+    cols_parts, vals_parts = [], []
     per_row = max(1, M.nnz // max(n, 1))
-    step = max(1, CHUNK_ENTRIES // per_row)
+    step = max(1, 8_000_000 // per_row)
     lengths = np.diff(M.indptr)
     if np.any(lengths[rows_kept] == 0):
         raise ValueError("an empty row (a dof that belongs to no element)")
-
-    def chunk(r0: int):
-        """Lower-triangle counts per row, columns and values of rows r0..r0+step-1."""
+    for r0 in range(0, n, step):                      # contiguous rows of M
         r1 = min(n, r0 + step)
         lens = lengths[r0:r1]
         a, b = M.indptr[r0], M.indptr[r1]
+        if b == a:
+            continue
         cols = M.indices[a:b]
         if newidx is None:
             low = cols <= np.repeat(np.arange(r0, r1, dtype=cols.dtype), lens)
         else:
             cols = newidx[cols]
             low = cols <= np.repeat(newrow[r0:r1], lens)
-        cs = np.empty(low.size + 1, dtype=np.int32 if b - a < 2**31 - 1 else np.int64)
-        cs[0] = 0
-        np.cumsum(low, out=cs[1:])
-        ptr = M.indptr[r0:r1 + 1] - a
-        return cs[ptr[1:]] - cs[ptr[:-1]], cols[low].astype(itype, copy=False), \
-            M.data[a:b][low].astype(dtype, copy=False)
-
-    # row chunks are independent (numpy releases the interpreter lock in their array work)
-    parts = map_threads(chunk, range(0, n, step), threads)
-    lo_cnt = np.concatenate([c for c, _, _ in parts]) if parts else np.zeros(0, dtype=np.int64)
+        nz = lens > 0
+        seg = (M.indptr[r0:r1] - a)[nz]
+        lo_cnt[r0:r1][nz] = np.add.reduceat(low, seg, dtype=np.int64)
+        cols_parts.append(cols[low].astype(itype, copy=False))
+        vals_parts.append(M.data[a:b][low].astype(dtype, copy=False))
     diag = M.diagonal()[rows_kept].astype(dtype)
     if np.any(diag <= 0):
         raise ValueError("a diagonal entry is not positive (an unheld or empty dof)")
     ptr = np.zeros(m + 1, dtype=np.int64)
     np.cumsum(lo_cnt[rows_kept], out=ptr[1:])
-    LD = sp.csr_matrix((np.concatenate([v for _, _, v in parts]),
-                        np.concatenate([c for _, c, _ in parts]),
+    LD = sp.csr_matrix((np.concatenate(vals_parts), np.concatenate(cols_parts),
                         ptr.astype(itype)), shape=(m, m))
-    del parts
+    del cols_parts, vals_parts
     DU = LD.T.tocsr()
     return LD, DU, diag
-
-
-def _galerkin(lower: sp.csr_matrix, diag: np.ndarray, P: sp.csr_matrix,
-              R: sp.csr_matrix) -> sp.csr_matrix:
-    """P^T A P from the lower triangle (with the diagonal) of A: with M = R (L + D) P,
-    R A P = M + M^T - R D P.
-
-    The sum runs in row blocks on threads (scipy's kernels release the interpreter lock;
-    every row is computed as it would be unsplit): 1.07 -> 0.81 s on the finest level at
-    1M unknowns. The products do not gain from it (1.25 -> 1.45 s for (L + D) P, and
-    slower multigrid set-ups end to end), so they run whole.
-    """
-    M = R @ (lower @ P)
-    MT = M.T.tocsr()
-    RDP = R @ sp.csr_matrix(P.multiply(diag[:, None]))
-    return by_rows(lambda r0, r1: M[r0:r1] + MT[r0:r1] - RDP[r0:r1], M)
 
 
 class _CoarseSolver:
@@ -227,9 +200,10 @@ class Hierarchy:
                 # Galerkin product from the lower triangle: with M = P^T (L + D) P,
                 # P^T A P = M + M^T - P^T D P (exactly symmetric; half the product work
                 # of P^T A P and no single-precision copy of A)
-                # (the products and the sum run in row blocks on threads: scipy's kernels
-                # release the interpreter lock; each row is computed as unsplit)
-                Ac = _galerkin(lower, diag, Pl, Rl)
+                M = Rl @ (lower @ Pl)
+                Ac = (M + M.T).tocsr()
+                del M
+                Ac -= Rl @ sp.csr_matrix(Pl.multiply(diag[:, None]))
             if lev == 0:
                 self.nnz[0] = lower.nnz + upper.nnz - diag.size
             self.LD.append(lower)
