@@ -75,3 +75,33 @@ def test_limited_caps_this_thread_only(monkeypatch):
     with parallel.limited(2):
         assert parallel.thread_count() == 2
     assert parallel.thread_count() == 4
+
+
+def test_extra_solves_start_from_the_closest_multiple_of_the_main_solution(caplog):
+    """A right-hand side that is a multiple of the load starts at the answer (the Galerkin
+    multiple of the main solution) and stops within two iterations; any other one still
+    converges."""
+    import logging
+
+    disc, group, K, f, fixed = held_system()
+    out = {}
+
+    def follow_up(u, solve):
+        out["u"] = u
+        out["scaled"] = solve(-2.5 * f, 1e-6, 1e-4)
+        out["other"] = solve(np.random.default_rng(3).standard_normal(K.shape[0]), 1e-8, 1e-6)
+
+    with caplog.at_level(logging.DEBUG, logger="mesastrain.fem.solve"):
+        solve_condensed(K, f, fixed, method="iterative", spaces=spaces_of(disc, group),
+                        follow_up=follow_up)
+    counts = [int(r.getMessage().split(": ")[1].split()[0]) for r in caplog.records
+              if "extra right-hand side" in r.getMessage()]
+    assert counts[0] <= 2 and counts[1] > 3         # (from zero: as many as the other)
+    np.testing.assert_allclose(out["scaled"], -2.5 * out["u"], rtol=0, atol=1e-7 *
+                               np.abs(out["u"]).max())
+    free = np.ones(K.shape[0], bool)
+    free[fixed] = False
+    rhs = np.random.default_rng(3).standard_normal(K.shape[0])
+    A = K[free][:, free]
+    res = np.linalg.norm(rhs[free] - A @ out["other"][free]) / np.linalg.norm(rhs[free])
+    assert res < 1e-7
