@@ -98,3 +98,30 @@ def test_inverse_map_never_raises_on_huge_coordinates_and_flat_elements():
     X = reference_coordinates(MeshHex(p, m.t).mapping(), np.array([[2e6], [50.0], [1.0]])[:, :, None],
                               np.array([0]))
     assert np.all(np.isfinite(X)) and np.all((X >= 0) & (X <= 1))
+
+
+@pytest.mark.parametrize("kind", ["hex", "tet"])
+@pytest.mark.parametrize("order", [1, 2])
+def test_symmetric_tensors_recover_the_same_from_six_components(kind, order):
+    """symmetric=True fits the 6 independent components of a symmetric 3x3 field: the same
+    recovered tensor as fitting all 9 (the fit is component by component), symmetric, at
+    points in equal blocks per element (the energy norm's Gauss points) and scattered."""
+    m, vref, region, mapping, sample3 = _setup(kind, order)
+
+    def sample(el, X):
+        x, v = sample3(el, X)                                 # 3 components -> a symmetric
+        s = np.einsum("...i,...j->...ij", v, v) + v[..., :1, None] * np.eye(3)   # tensor
+        return x, s.reshape(*v.shape[:-1], 9)
+
+    nel = m.t.shape[1]
+    el = np.repeat(np.arange(nel), 4)
+    X = RNG.uniform(0.1, 0.2, size=(3, el.size))              # inside hex and tet alike
+    for elems, Xs in ((el, X), (el[::3], X[:, ::3])):
+        full, d9 = recover_at(m.p, m.t[:len(vref)], region, elems, Xs, kind, order, vref,
+                              sample)
+        six, d6 = recover_at(m.p, m.t[:len(vref)], region, elems, Xs, kind, order, vref,
+                             sample, symmetric=True)
+        np.testing.assert_array_equal(d9, d6)
+        np.testing.assert_allclose(six, full, rtol=0, atol=1e-12 * np.abs(full).max())
+        t = six.reshape(-1, 3, 3)
+        np.testing.assert_array_equal(t, t.transpose(0, 2, 1))
