@@ -228,7 +228,7 @@ def _finish_pattern(deg: np.ndarray, cols_s: np.ndarray, base_of) -> SparsityPat
         src = np.arange(total, dtype=itype)
         src += np.repeat(np.repeat(seg_start, 3) - out_start, lens)
         out0 = 9 * int(ptr_s[p0])
-        np.take(seg, src, out=indices[out0:out0 + total])
+        indices[out0:out0 + total] = seg[src]
     return SparsityPattern(indptr=indptr, indices=indices, block_base=block_base,
                    row_stride=row_stride)
 
