@@ -14,7 +14,7 @@ import re
 import pytest
 
 from mesastrain.cli.main import main
-from mesastrain.run.resources import usable_cores
+from mesastrain.fem.parallel import usable_cores
 from mesastrain.units import fmt
 from small_cases import sige_on_si
 

@@ -21,12 +21,12 @@ def _films(case, key: str, items) -> str:
 
 def cmd_check(args) -> int:
     """``mesastrain check``: 0 when the case is valid and fits in memory, 2 otherwise."""
+    from mesastrain.fem.parallel import usable_cores
     from mesastrain.mesh.kinds import mesh_kind
     from mesastrain.run.resources import (
         available_memory_gb,
         error_bar_seconds,
         estimate,
-        usable_cores,
     )
 
     case = load_case(args.case)

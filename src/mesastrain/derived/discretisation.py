@@ -66,7 +66,6 @@ from __future__ import annotations
 
 import dataclasses
 import time
-from concurrent.futures import ThreadPoolExecutor
 
 import numpy as np
 
@@ -83,10 +82,11 @@ from mesastrain.derived.relaxation import edge_relaxation
 from mesastrain.derived.sampling import etch_floor, locate, sample_inside, stress_sampler
 from mesastrain.errors import MesastrainError
 from mesastrain.fem.fields import elastic_state
+from mesastrain.fem.parallel import map_threads, thread_count
 from mesastrain.fem.recovery import recover_at
 from mesastrain.mesh.planning import refinement_of
 from mesastrain.physics.thinfilm import bow_height
-from mesastrain.run.pipeline import run_case, thread_count
+from mesastrain.run.pipeline import run_case
 from mesastrain.run.result import Derived
 
 __all__ = ["COARSENING", "COARSE_PROVIDERS", "coarse_case", "coarse_solve", "derive", "energy",
@@ -278,13 +278,7 @@ def energy_norm(res, closed_form: bool = True, use_mirrors: bool = True) -> dict
     # temporaries held at once stay those of one full block)
     threads = thread_count()
     step = CHUNK if threads == 1 else max(CHUNK // threads, 1)
-    starts = range(0, n_own, step)
-    if threads > 1 and len(starts) > 1:
-        with ThreadPoolExecutor(threads) as pool:
-            list(pool.map(lambda s0: integrate(s0, step), starts))
-    else:
-        for s0 in starts:
-            integrate(s0, step)
+    map_threads(lambda s0: integrate(s0, step), range(0, n_own, step), threads)
     if n_own < nel:
         err, nrm, vol = err[emap], nrm[emap], vol[emap]
     total = float(err.sum() + nrm.sum())

@@ -17,7 +17,6 @@ from mesastrain.fem.cost import (
     ERROR_S_PER_UNKNOWN,
     Estimate,
 )
-from mesastrain.fem.parallel import usable_cores  # noqa: F401  (re-exported)
 from mesastrain.mesh.kinds import KINDS, kind_of
 from mesastrain.model.regions import build_layers
 from mesastrain.run.sensitivity import groups_of
