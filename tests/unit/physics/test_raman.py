@@ -411,6 +411,9 @@ def test_polarisations_have_a_fixed_sign():
     t = np.array([[1.0, -1.0, 0.0], [-1.0, -1.0, 0.0], [0.0, 0.0, -np.sqrt(2)]]).T / np.sqrt(2)
     np.testing.assert_allclose(_sign_convention(t)[:, 1], [1 / np.sqrt(2), 1 / np.sqrt(2), 0])
     eps = np.diag([0.01, -0.004, 0.002]) + 0.003 * (np.ones((3, 3)) - np.eye(3))
+    # Si phonon deformation potentials p, q, r (units of omega0^2) and omega0 (cm^-1):
+    # Anastassakis, Cantarero & Cardona, Phys. Rev. B 41, 7529 (1990), from memory; only
+    # the sign convention is checked here
     m = raman_modes(eps, -1.43, -1.89, -0.59, 520.7)
     lead = np.take_along_axis(m.polarisation, np.argmax(np.abs(m.polarisation), axis=-2)[None],
                               axis=-2)
