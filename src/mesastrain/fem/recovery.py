@@ -204,11 +204,14 @@ def recover_at(p: np.ndarray, t: np.ndarray, region: np.ndarray, elements: np.nd
     v2e = sp.csr_matrix((np.ones(tn.size), (tn.ravel(), np.tile(near, nv))), shape=(nn, nel))
     e2v = v2e.T.tocsr()
 
-    def incidence(mat):
+    def incidence(mat, patches=None):
+        """Patch-element incidence from vertex-element reach ``mat`` (rows: ``patches``,
+        default all), elements of the patch's region only."""
         c = mat.tocoo()
-        keep = region[c.col] == preg[c.row]
+        reg = preg if patches is None else preg[patches]
+        keep = region[c.col] == reg[c.row]
         return sp.csr_matrix((np.ones(int(keep.sum())), (c.row[keep], c.col[keep])),
-                             shape=(npatch, nel))
+                             shape=(mat.shape[0], nel))
 
     sel = sp.csr_matrix((np.ones(npatch), (np.arange(npatch), pvert)), shape=(npatch, nn))
     ring1 = incidence(sel @ v2e)
@@ -237,13 +240,17 @@ def recover_at(p: np.ndarray, t: np.ndarray, region: np.ndarray, elements: np.nd
     coef = scales = None
     chosen = np.full(npatch, -1)
     todo = np.arange(npatch)
-    ring2 = None
+    ring2 = pos2 = None
     for ring, degree in plan:
         if todo.size == 0:
             break
         if ring == 2 and ring2 is None:
-            ring2 = incidence(ring1 @ e2v @ v2e)
-        inc = (ring1 if ring == 1 else ring2)[todo].tocoo()
+            # the second ring only of the patches still without a fit (few: boundary and
+            # thin-layer vertices; over every patch it was a fifth of the recovery's time)
+            ring2 = incidence(ring1[todo] @ e2v @ v2e, todo)
+            pos2 = np.full(npatch, -1)
+            pos2[todo] = np.arange(todo.size)
+        inc = (ring1[todo] if ring == 1 else ring2[pos2[todo]]).tocoo()
         rows, el = inc.row, inc.col
         ensure(el)
         if coef is None:
@@ -263,14 +270,22 @@ def recover_at(p: np.ndarray, t: np.ndarray, region: np.ndarray, elements: np.nd
         chosen[good] = degree
         todo = todo[~ok]
     # --- blend the patch polynomials at the query points
-    N = vertex_shape(kind, vertex_ref, X)                            # (npts, nv)
+    X = np.asarray(X, dtype=float)
+    npts, c = len(elements), coef.shape[-1]
+    per = npts // max(uel.size, 1)
+    blocks = per > 1 and per * uel.size == npts and np.array_equal(elements,
+                                                                    np.repeat(uel, per))
+    Xb = X.reshape(X.shape[0], uel.size, per) if blocks else None
+    if blocks and np.array_equal(Xb, np.broadcast_to(Xb[:, :1], Xb.shape)):
+        # the same reference points in every element (Gauss points): shape values once
+        N = np.tile(vertex_shape(kind, vertex_ref, Xb[:, 0]), (uel.size, 1))
+    else:
+        N = vertex_shape(kind, vertex_ref, X)                        # (npts, nv)
     if coords is None:
         from_ref = sample(elements, np.asarray(X, dtype=float)[:, :, None])[0][:, 0, :]
     else:
         from_ref = np.asarray(coords, dtype=float)                   # (npts, dim)
-    npts, c = len(elements), coef.shape[-1]
-    per = npts // max(uel.size, 1)
-    if per > 1 and per * uel.size == npts and np.array_equal(elements, np.repeat(uel, per)):
+    if blocks:
         # the points come in equal blocks per element (every Gauss point of every element):
         # each element's patch coefficients are gathered once for its block, and the
         # blend is one batched product (block, nv m) @ (nv m, c)

@@ -125,3 +125,33 @@ def test_symmetric_tensors_recover_the_same_from_six_components(kind, order):
         np.testing.assert_allclose(six, full, rtol=0, atol=1e-12 * np.abs(full).max())
         t = six.reshape(-1, 3, 3)
         np.testing.assert_array_equal(t, t.transpose(0, 2, 1))
+
+
+@pytest.mark.parametrize("kind", ["hex", "tet", "quad"])
+@pytest.mark.parametrize("order", [1, 2])
+def test_gauss_point_blocks_equal_the_same_points_one_by_one(kind, order):
+    # Every Gauss point of every element, in element blocks (the energy-norm estimate's query,
+    # which shares the shape values and gathers each element's patches once), against the same
+    # points in reversed order, which takes the general path. The field is not a polynomial,
+    # so the patches of boundary vertices do not fit it exactly and every blend weight counts.
+    import skfem.refdom as refdom
+    from skfem.quadrature import get_quadrature
+
+    m, vref, region, mapping, _ = _setup(kind, order)
+    dim = m.p.shape[0]
+
+    def sample(el, X):
+        x = np.moveaxis(mapping.F(X, tind=el), 0, -1)
+        return x, np.sin(x @ np.arange(1.0, 1.0 + 3 * dim).reshape(dim, 3)) * (1 + region[el])[
+            :, None, None]
+
+    ref = {"hex": refdom.RefHex, "tet": refdom.RefTet, "quad": refdom.RefQuad}[kind]
+    Xg, _ = get_quadrature(ref, 2 * order)
+    nel, nq = m.t.shape[1], Xg.shape[1]
+    el = np.repeat(np.arange(nel), nq)
+    X = np.tile(Xg, (1, nel))
+    got, deg = recover_at(m.p, m.t[:len(vref)], region, el, X, kind, order, vref, sample)
+    back, deg_b = recover_at(m.p, m.t[:len(vref)], region, el[::-1], X[:, ::-1], kind, order,
+                             vref, sample)
+    np.testing.assert_allclose(got, back[::-1], rtol=0, atol=1e-12 * np.abs(got).max())
+    np.testing.assert_array_equal(deg, deg_b[::-1])
