@@ -270,8 +270,10 @@ def reference_coordinates(mapping, x: np.ndarray, elements: np.ndarray,
                           iters: int = 60) -> np.ndarray:
     """Reference coordinates of points in known elements; never raises.
 
-    Affine elements (simplices) are inverted exactly. Isoparametric elements
-    (quadrilaterals, hexahedra on the unit reference cell) use Newton's method
+    Affine elements (simplices) are inverted exactly, and so are parallelepipeds
+    (the bricks of the structured stack mesh, :func:`_parallelepipeds`).
+    Other isoparametric elements (quadrilaterals, hexahedra on the unit
+    reference cell) use Newton's method
     started from the element's affine approximation at its centre (exact on
     parallelepipeds, so a brick takes one step), clipped to the reference
     cell so that a point a round-off distance outside its element ends on its
@@ -300,6 +302,10 @@ def reference_coordinates(mapping, x: np.ndarray, elements: np.ndarray,
     elements = np.asarray(elements)
 
     mapping = as_fast(mapping)
+    X = np.full((dim, len(elements), 1), 0.5)
+    todo = _parallelepipeds(mapping, x, elements, X)
+    if todo.size == 0:
+        return X
 
     def newton(X0, sel, damping=1.0):
         X = X0.copy()
@@ -323,9 +329,9 @@ def reference_coordinates(mapping, x: np.ndarray, elements: np.ndarray,
                 break
         return best, best_step
 
-    centre = np.full((dim, len(elements), 1), 0.5)
-    X, step = newton(centre, np.arange(len(elements)))
-    bad = np.flatnonzero(~(step < 1e-9))
+    Xn, step = newton(X[:, todo], todo)
+    X[:, todo] = Xn
+    bad = todo[~(step < 1e-9)]
     if bad.size:
         g = np.linspace(0.0, 1.0, 9)
         ref = np.stack(np.meshgrid(*([g] * dim), indexing="ij")).reshape(dim, -1)
@@ -335,6 +341,45 @@ def reference_coordinates(mapping, x: np.ndarray, elements: np.ndarray,
         Xb, _ = newton(start, bad, damping=0.5)
         X[:, bad] = Xb
     return X
+
+
+def _parallelepipeds(mapping, x: np.ndarray, elements: np.ndarray, X: np.ndarray) -> np.ndarray:
+    """Reference coordinates in closed form where the element is a parallelepiped.
+
+    An isoparametric element whose nodes sit at x_c + J (X_a - 1/2) (X_a its reference
+    nodes, x_c its centre, J the Jacobian at the centre; to round-off of the coordinates)
+    maps X to x_c + J (X - 1/2) exactly, so X = 1/2 + J^-1 (x - x_c), clipped to the cell as
+    Newton's method would clip it: Newton's first step, without the second one that only
+    confirms it. The bricks of the structured stack mesh are such elements (in whatever
+    axis order the element numbers its nodes). Writes those points of ``X`` (dim, npts, 1)
+    in place and returns the indices of the other points.
+    """
+    n = len(elements)
+    ref = getattr(mapping.elem, "doflocs", None)
+    if ref is None or n == 0:
+        return np.arange(n)
+    ref = np.asarray(ref, dtype=float)
+    nodes = mapping.nodes(elements)                                   # (dim, nloc, n)
+    dim = nodes.shape[0]
+    if ref.shape != (nodes.shape[1], dim):
+        return np.arange(n)
+    phi, dphi = mapping.basis(np.full((dim, 1), 0.5))                 # (nloc, 1), (nloc, dim, 1)
+    xc = np.einsum("dan,a->nd", nodes, phi[:, 0])                     # (n, dim)
+    J = np.einsum("ian,aj->nij", nodes, dphi[:, :, 0])                # (n, dim, dim)
+    pred = xc[:, None, :] + np.einsum("nij,aj->nai", J, ref - 0.5)    # (n, nloc, dim)
+    err = np.abs(pred - np.moveaxis(nodes, (0, 1, 2), (2, 1, 0))).max(axis=(1, 2))
+    # round-off of the span and of the coordinates themselves (a 1e-3 nm element 1e6 nm
+    # from the origin)
+    tol = 1e-12 * np.abs(J).max(axis=(1, 2)) \
+        + 8.0 * np.finfo(float).eps * np.abs(nodes).max(axis=(0, 1))
+    flat = np.abs(np.linalg.det(J)) <= 1e-12 * np.abs(J).max(axis=(1, 2)) ** dim
+    sel = np.flatnonzero((err <= tol) & ~flat)
+    if sel.size:
+        d = np.linalg.solve(J[sel], (x[:, sel, 0].T - xc[sel])[..., None])[..., 0]
+        X[:, sel, 0] = np.clip(0.5 + d.T, 0.0, 1.0)
+    rest = np.ones(n, dtype=bool)
+    rest[sel] = False
+    return np.flatnonzero(rest)
 
 
 # --------------------------------------------------------------------------

@@ -97,6 +97,16 @@ _KINDS = ("uniaxial", "biaxial")
 #: 0.1 cm^-1 with a line fit; common practice).
 DEGENERATE_TOL = 1e-4
 
+#: Breaks a tie that the scattering geometry leaves within a degenerate set (the in-plane
+#: pair of a (001) film seen unpolarised): a small quadratic form in crystal axes, scaled
+#: by :data:`TIE_WEIGHT` of the scattering matrix's trace, so that the pair's polarisations
+#: are the crystal axes closest to it in this order, not whatever basis LAPACK returns
+#: for a degenerate eigenspace (which moves with round-off from one run to the next). The
+#: weights are unequal and not in a low-index ratio, so that the form itself has no tie on
+#: a low-index plane (diag(1, 2, 3) has one on the planes normal to [101] and [10-1]).
+_TIE_FORM = np.diag([1.0, 10.0, 100.0])
+TIE_WEIGHT = 1e-9
+
 
 def _as_strain(strain) -> np.ndarray:
     eps = np.asarray(strain, dtype=float)
@@ -323,7 +333,8 @@ def raman_modes(strain_crystal, p: float, q: float, r: float, omega0: float, R=N
     split = np.diff(w, axis=-1) > degenerate_tol
     ids = np.concatenate([np.zeros(w.shape[:-1] + (1,)), np.cumsum(split, axis=-1)], axis=-1)
     same = ids[..., :, None] == ids[..., None, :]
-    A = (np.swapaxes(V, -1, -2) @ W @ V) * same
+    Vt = np.swapaxes(V, -1, -2)
+    A = (Vt @ (W + (TIE_WEIGHT * (np.trace(W) + 1.0)) * _TIE_FORM) @ V) * same
     # separate the clusters by offsets far above W's scale so eigh keeps them apart
     A = A + (10.0 * (np.trace(W) + 1.0)) * ids[..., :, None] * np.eye(3)
     _, U = np.linalg.eigh(A)

@@ -155,3 +155,51 @@ def test_gauss_point_blocks_equal_the_same_points_one_by_one(kind, order):
                              vref, sample)
     np.testing.assert_allclose(got, back[::-1], rtol=0, atol=1e-12 * np.abs(got).max())
     np.testing.assert_array_equal(deg, deg_b[::-1])
+
+
+def test_boxes_are_inverted_in_closed_form_and_other_elements_by_newton():
+    # A graded tensor mesh far from the origin, one element sheared (not a box): every point
+    # maps back onto itself, the boxes' answers equal Newton's to round-off, and the sheared
+    # element's points still go through Newton (the closed form would be wrong there).
+    from mesastrain.fem.fields import _parallelepipeds
+    from mesastrain.fem.mapping import as_fast
+
+    xs = 1e6 + np.cumsum([0.0, 1.0, 2.5, 0.01, 7.0])
+    m = MeshHex.init_tensor(xs, np.array([-3.0, 0.5, 4.0]), np.array([0.0, 1e-3, 2.0]))
+    p = m.p.copy()
+    # the outermost corner node belongs to one element only: move it sideways
+    corner = int(np.argmax(p.sum(axis=0)))
+    sheared = int(np.flatnonzero(np.any(m.t == corner, axis=0))[0])
+    p[0, corner] += 0.3 * (p[0, m.t[:, sheared]].max() - p[0, m.t[:, sheared]].min())
+    m = MeshHex(p, m.t)
+    mapping = m.mapping()
+    el = np.repeat(np.arange(m.t.shape[1]), 6)
+    X0 = RNG.uniform(0.0, 1.0, size=(3, el.size, 1))
+    X0[:, ::6] = 0.0                          # on a vertex
+    X0[0, 1::6] = 1.0                         # on a face
+    x = as_fast(mapping).F(X0, tind=el)
+    X = reference_coordinates(mapping, x, el)
+    # (coordinates near 1e6 nm carry 1.2e-10 nm of round-off: 1e-8 of a 0.01 nm element)
+    np.testing.assert_allclose(X[:, el != sheared], X0[:, el != sheared], atol=1e-7)
+    np.testing.assert_allclose(as_fast(mapping).F(X, tind=el), x, rtol=0, atol=1e-8)
+    Xbox = np.full_like(X0, 0.5)
+    rest = _parallelepipeds(as_fast(mapping), x, el, Xbox)
+    assert set(el[rest]) == {sheared}
+    boxed = np.setdiff1d(np.arange(el.size), rest)
+    np.testing.assert_allclose(Xbox[:, boxed], X0[:, boxed], atol=1e-7)
+    # the same answers as Newton's method alone (the element hidden behind a stand-in that
+    # gives its shape functions but not its reference nodes, so the closed form is skipped)
+    import copy
+    import types
+
+    newton_only = copy.copy(as_fast(mapping))
+    newton_only.elem = types.SimpleNamespace(lbasis=newton_only.elem.lbasis)
+    Xn = reference_coordinates(newton_only, x, el)
+    np.testing.assert_allclose(Xbox[:, boxed], Xn[:, boxed], rtol=0, atol=1e-7)
+    # and on a mesh near the origin, to round-off
+    xo = x - 1e6 * np.array([1.0, 0.0, 0.0])[:, None, None]
+    mo = MeshHex(m.p - 1e6 * np.array([1.0, 0.0, 0.0])[:, None], m.t)
+    Xo = reference_coordinates(mo.mapping(), xo, el)
+    newton_only.mesh, newton_only._p = mo, np.asarray(mo.doflocs, dtype=float)
+    Xno = reference_coordinates(newton_only, xo, el)
+    np.testing.assert_allclose(Xo[:, boxed], Xno[:, boxed], rtol=0, atol=1e-12)
