@@ -273,11 +273,10 @@ def reference_coordinates(mapping, x: np.ndarray, elements: np.ndarray,
     Affine elements (simplices) are inverted exactly, and so are parallelepipeds
     (the bricks of the structured stack mesh, :func:`_parallelepipeds`).
     Other isoparametric elements (quadrilaterals, hexahedra on the unit
-    reference cell) use Newton's method
-    started from the element's affine approximation at its centre (exact on
-    parallelepipeds, so a brick takes one step), clipped to the reference
-    cell so that a point a round-off distance outside its element ends on its
-    boundary. Convergence is judged in reference coordinates and the best
+    reference cell) use Newton's method started from the element's affine
+    approximation at its centre, clipped to the reference cell so that a point
+    a round-off distance outside its element ends on its boundary (the closed
+    form clips the same way). Convergence is judged in reference coordinates and the best
     iterate is kept: unlike scikit-fem's ``invF`` (absolute tolerance 1e-12 in
     the physical unit) this works for coordinates of 1e6 nm and elements
     of 1e-3 nm alike. Points still unconverged after ``iters`` steps (a badly
