@@ -83,36 +83,41 @@ def test_compressive_film_bows_film_side_convex():
 
 def test_free_plate_is_solved_once_per_stack(monkeypatch):
     # the memo returns the earlier answer for bit-identical inputs, and solves anew otherwise
+    # (small plates, 4 elements across: only the memo is tested here)
     from mesastrain.derived import bow
 
     solves = []
     real = bow.solve_condensed
     monkeypatch.setattr(bow, "solve_condensed", lambda *a, **k: solves.append(1) or real(*a, **k))
     monkeypatch.setattr(bow, "_plate_memo", type(bow._plate_memo)())
+
+    def plate(stiff, eig, zb, zt, n_sub=bow.SUBSTRATE_ELEMENTS):
+        return free_plate_curvature(stiff, eig, zb, zt, n_xy=4, n_sub=n_sub)
+
     _, stiff, eig, zb, zt = _stack(2e-3)
-    first = free_plate_curvature(stiff, eig, zb, zt)
+    first = plate(stiff, eig, zb, zt)
     first["curvature"][0, 0] = 123.0          # the caller's copy: the memo keeps its own
-    again = free_plate_curvature(stiff, eig, zb, zt)
+    again = plate(stiff, eig, zb, zt)
     assert len(solves) == 1
     fresh = bow._free_plate(*[np.asarray(a, float) for a in (stiff, eig, zb, zt)], order=2,
-                            half_width=bow.PLATE_HALF_WIDTH, n_xy=bow.PLATE_ELEMENTS,
+                            half_width=bow.PLATE_HALF_WIDTH, n_xy=4,
                             n_sub=bow.SUBSTRATE_ELEMENTS)
     assert len(solves) == 2
     np.testing.assert_array_equal(again["curvature"], fresh["curvature"])
     assert again["film_force"] == fresh["film_force"]
     # another eigenstrain, thickness or discretisation: solved again, another answer
     _, stiff3, eig3, zb3, zt3 = _stack(2e-3, x=0.3)
-    assert free_plate_curvature(stiff3, eig3, zb3, zt3)["mean"] != again["mean"]
-    assert free_plate_curvature(stiff, eig, zb, [0.0, 3e-3 * H_S])["mean"] != again["mean"]
-    assert free_plate_curvature(stiff, eig, zb, zt, n_sub=1)["mean"] != again["mean"]
+    assert plate(stiff3, eig3, zb3, zt3)["mean"] != again["mean"]
+    assert plate(stiff, eig, zb, [0.0, 3e-3 * H_S])["mean"] != again["mean"]
+    assert plate(stiff, eig, zb, zt, n_sub=1)["mean"] != again["mean"]
     assert len(solves) == 5
     # bounded: beyond PLATE_MEMO answers the least recently used one is dropped
     monkeypatch.setattr(bow, "PLATE_MEMO", 2)
-    free_plate_curvature(stiff, eig, zb, zt, n_sub=1)        # remembered: used last
-    free_plate_curvature(stiff, eig, zb, zt, n_sub=3)        # new: the others but one dropped
+    plate(stiff, eig, zb, zt, n_sub=1)        # remembered: used last
+    plate(stiff, eig, zb, zt, n_sub=3)        # new: the others but one dropped
     assert len(solves) == 6 and len(bow._plate_memo) == 2
-    free_plate_curvature(stiff, eig, zb, zt, n_sub=1)        # still there
-    free_plate_curvature(stiff, eig, zb, zt)                 # dropped: solved again
+    plate(stiff, eig, zb, zt, n_sub=1)        # still there
+    plate(stiff, eig, zb, zt)                 # dropped: solved again
     assert len(solves) == 7
 
 

@@ -31,7 +31,7 @@ def square():
 @pytest.fixture(scope="module")
 def disk():
     return _solved({"shape": "disk", "diameter": 200, "etch_depth": 40, "margin": 60},
-                   {"order": 1, "size": 25})
+                   {"order": 1, "size": DISK_SIZE})
 
 
 def _bisection(res, d, z):
@@ -54,6 +54,8 @@ def _bisection(res, d, z):
     return lo - 1e-8 * t_box, t_box
 
 
+DISK_SIZE = 40.0          # nm, element size of the disk's mesh
+
 DIRECTIONS = [(1, 0), (-1, 0), (0, -1), (1, 1), (-3, 1), (0.2, -1)]
 
 
@@ -72,13 +74,21 @@ def test_square_sidewall_is_where_the_ray_leaves_the_square(square, d):
 @pytest.mark.parametrize("d", DIRECTIONS)
 def test_disk_sidewall_matches_a_bisection_and_the_circle(disk, d):
     d = np.asarray(d, float) / np.linalg.norm(d)
+    # the widest angle a flat sidewall facet spans (its nodes all on the circle)
+    m = disk.mesh.mesh
+    f = m.facets[:, m.boundary_facets()]
+    r = np.hypot(m.p[0, f], m.p[1, f])
+    side = np.all(np.abs(r - 100.0) < 1e-6 * 100.0, axis=0)
+    ang = np.unwrap(np.sort(np.arctan2(m.p[1, f[:, side]], m.p[0, f[:, side]]), axis=0), axis=0)
+    gap = float(np.max(ang.max(axis=0) - ang.min(axis=0)))
+    assert 0.0 < gap < 0.5                  # finer than a 13-gon
     for z in (10.0, -10.0):
         s = sidewall_distance(disk, d, z)
         ref, t_box = _bisection(disk, d, z)
         assert abs(s - ref) < 1e-11 * t_box
-        # the meshed circle is a polygon through points of the circle, 25 nm apart or less:
-        # its chords lie within r (1 - cos(theta / 2)) of it, theta = 25 / 100 rad
-        assert 100.0 * np.cos(0.125) - 1e-6 <= s <= 100.0 + 1e-6
+        # the meshed sidewall is faceted between nodes on the circle: a facet spanning an
+        # angle gap reaches no deeper than r (1 - cos(gap / 2)) inside the circle
+        assert 100.0 * np.cos(gap / 2.0) - 1e-6 <= s <= 100.0 + 1e-6
 
 
 def test_no_sidewall_below_the_etch_floor_or_on_a_blanket(square):
