@@ -5,11 +5,17 @@ field exactly, also one-sided at a material interface (Zienkiewicz & Zhu, Int. J
 Eng. 33, 1331 (1992): the consistency condition of SPR).
 """
 
+import copy
+import types
+
 import numpy as np
 import pytest
+import skfem.refdom as refdom
 from skfem import ElementHex1, ElementQuad1, ElementTetP1, MeshHex, MeshQuad, MeshTet
+from skfem.quadrature import get_quadrature
 
-from mesastrain.fem.fields import reference_coordinates
+from mesastrain.fem.fields import _parallelepipeds, reference_coordinates
+from mesastrain.fem.mapping import as_fast
 from mesastrain.fem.recovery import recover_at
 
 RNG = np.random.default_rng(3)
@@ -134,9 +140,6 @@ def test_gauss_point_blocks_equal_the_same_points_one_by_one(kind, order):
     # which shares the shape values and gathers each element's patches once), against the same
     # points in reversed order, which takes the general path. The field is not a polynomial,
     # so the patches of boundary vertices do not fit it exactly and every blend weight counts.
-    import skfem.refdom as refdom
-    from skfem.quadrature import get_quadrature
-
     m, vref, region, mapping, _ = _setup(kind, order)
     dim = m.p.shape[0]
 
@@ -161,9 +164,6 @@ def test_boxes_are_inverted_in_closed_form_and_other_elements_by_newton():
     # A graded tensor mesh far from the origin, one element sheared (not a box): every point
     # maps back onto itself, the boxes' answers equal Newton's to round-off, and the sheared
     # element's points still go through Newton (the closed form would be wrong there).
-    from mesastrain.fem.fields import _parallelepipeds
-    from mesastrain.fem.mapping import as_fast
-
     xs = 1e6 + np.cumsum([0.0, 1.0, 2.5, 0.01, 7.0])
     m = MeshHex.init_tensor(xs, np.array([-3.0, 0.5, 4.0]), np.array([0.0, 1e-3, 2.0]))
     p = m.p.copy()
@@ -189,9 +189,6 @@ def test_boxes_are_inverted_in_closed_form_and_other_elements_by_newton():
     np.testing.assert_allclose(Xbox[:, boxed], X0[:, boxed], atol=1e-7)
     # the same answers as Newton's method alone (the element hidden behind a stand-in that
     # gives its shape functions but not its reference nodes, so the closed form is skipped)
-    import copy
-    import types
-
     newton_only = copy.copy(as_fast(mapping))
     newton_only.elem = types.SimpleNamespace(lbasis=newton_only.elem.lbasis)
     Xn = reference_coordinates(newton_only, x, el)
