@@ -29,6 +29,9 @@ from mesastrain.fem.coarsening import COARSEST_UNKNOWNS, GridSpaces
 
 log = logging.getLogger(__name__)
 
+#: Stored entries per row chunk of :func:`split_triangles` (bounds its temporaries).
+CHUNK_ENTRIES = 8_000_000
+
 
 # --------------------------------------------------------------------------
 # the hierarchy and its V-cycle
@@ -80,7 +83,7 @@ def split_triangles(M: sp.csr_matrix, dtype, keep: np.ndarray | None = None
     lo_cnt = np.zeros(n, dtype=np.int64)
     cols_parts, vals_parts = [], []
     per_row = max(1, M.nnz // max(n, 1))
-    step = max(1, 8_000_000 // per_row)
+    step = max(1, CHUNK_ENTRIES // per_row)
     lengths = np.diff(M.indptr)
     if np.any(lengths[rows_kept] == 0):
         raise ValueError("an empty row (a dof that belongs to no element)")

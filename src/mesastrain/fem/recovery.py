@@ -282,7 +282,7 @@ def recover_at(p: np.ndarray, t: np.ndarray, region: np.ndarray, elements: np.nd
     else:
         N = vertex_shape(kind, vertex_ref, X)                        # (npts, nv)
     if coords is None:
-        from_ref = sample(elements, np.asarray(X, dtype=float)[:, :, None])[0][:, 0, :]
+        from_ref = sample(elements, X[:, :, None])[0][:, 0, :]
     else:
         from_ref = np.asarray(coords, dtype=float)                   # (npts, dim)
     if blocks:
