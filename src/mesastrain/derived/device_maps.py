@@ -52,7 +52,7 @@ def cut_writer(res, plan: Plan, cut):
     def write(path: Path) -> None:
         pts = np.linspace(cut.start, cut.end, cut.points)
         strain, stress, _, region = sample_inside(res, pts)   # region -1 outside: empty row
-        values = evaluate(plan, region, strain, stress)
+        values = evaluate(plan, region, strain, stress, detail=False)
         names = field_names(plan)
         names_of = [lm.name for lm in res.layers]
         dist = np.linalg.norm(pts - pts[0], axis=1)

@@ -26,6 +26,7 @@ from mesastrain.physics.raman import (
     BiaxialLine,
     RamanParameters,
     biaxial_line,
+    observable_shift,
     raman_modes,
     raman_parameters,
 )
@@ -318,7 +319,7 @@ def band_keys(plan: Plan) -> list[str]:
     return [k for k in _BAND_SHIFT_KEYS if k in present]
 
 
-def evaluate(plan: Plan, region, strain, stress) -> dict[str, np.ndarray]:
+def evaluate(plan: Plan, region, strain, stress, detail: bool = True) -> dict[str, np.ndarray]:
     """All device fields at a set of points or cells.
 
     Parameters
@@ -330,14 +331,19 @@ def evaluate(plan: Plan, region, strain, stress) -> dict[str, np.ndarray]:
         Elastic strain, sample frame.
     stress : array (n, 3, 3)
         Stress, sample frame, MPa.
+    detail : bool
+        Also the per-mode Raman detail below (an eigen-decomposition per point).
+        Without it the Raman shift is the same linear observable tr(W K) / tr(W)
+        (:func:`mesastrain.physics.raman.observable_shift`), computed without the
+        modes: what the cell fields need.
 
     Returns
     -------
     dict of str -> ndarray (n,)
         Every name of :func:`field_names` (float; ``band_conduction_valleys``
-        int32), NaN (0) where the region has no parameters. Extra entries
-        with a leading underscore carry per-point detail for probes:
-        ``_raman_modes`` (n, 3), ``_raman_share`` (n, 3) and
+        int32), NaN (0) where the region has no parameters. With ``detail``,
+        extra entries with a leading underscore carry per-point detail for
+        probes: ``_raman_modes`` (n, 3), ``_raman_share`` (n, 3) and
         ``_raman_polarisation`` (n, 3, 3) in the sample frame.
     """
     region = np.asarray(region, dtype=int)
@@ -348,7 +354,7 @@ def evaluate(plan: Plan, region, strain, stress) -> dict[str, np.ndarray]:
     out = {k: np.full(n, np.nan) for k in names}
     if "band_conduction_valleys" in out:
         out["band_conduction_valleys"] = np.zeros(n, dtype=np.int32)
-    if plan.raman:
+    if plan.raman and detail:
         out["_raman_modes"] = np.full((n, 3), np.nan)
         out["_raman_share"] = np.full((n, 3), np.nan)
         out["_raman_polarisation"] = np.full((n, 3, 3), np.nan)
@@ -360,6 +366,10 @@ def evaluate(plan: Plan, region, strain, stress) -> dict[str, np.ndarray]:
         eps_c = R.T @ strain[m] @ R                              # T_c = R^T T_s R
         if isinstance(rp.raman, BiaxialLine):
             out["raman_shift"][m] = rp.raman.shift(R.T @ stress[m] @ R)
+        elif rp.raman is not None and not detail:
+            p = rp.raman
+            out["raman_shift"][m] = observable_shift(eps_c, p.p, p.q, p.r, p.omega0, R,
+                                                     **plan.raman_geometry)
         elif rp.raman is not None:
             p = rp.raman
             rm = raman_modes(eps_c, p.p, p.q, p.r, p.omega0, R, **plan.raman_geometry)
@@ -401,11 +411,13 @@ CHUNK = 65536
 
 
 def evaluate_cells(plan: Plan, region, strain, stress) -> dict:
-    """:func:`evaluate` over all elements, in blocks of :data:`CHUNK`."""
+    """:func:`evaluate` over all elements (without the per-mode Raman detail), in blocks
+    of :data:`CHUNK`."""
     n = len(region)
     if n <= CHUNK:
-        return evaluate(plan, region, strain, stress)
-    parts = [evaluate(plan, region[a:a + CHUNK], strain[a:a + CHUNK], stress[a:a + CHUNK])
+        return evaluate(plan, region, strain, stress, detail=False)
+    parts = [evaluate(plan, region[a:a + CHUNK], strain[a:a + CHUNK], stress[a:a + CHUNK],
+                      detail=False)
              for a in range(0, n, CHUNK)]
     return {k: np.concatenate([p[k] for p in parts]) for k in parts[0]}
 

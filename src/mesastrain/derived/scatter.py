@@ -135,7 +135,7 @@ def figure_values(res, figs, plan, device_plan=None) -> np.ndarray:
         if plan["device"]:
             dplan = plan_of(res.case, res.layers) if device_plan is None else device_plan
             if dplan.any:
-                dev = device_evaluate(dplan, np.maximum(region, 0), strain, stress)
+                dev = device_evaluate(dplan, np.maximum(region, 0), strain, stress, detail=False)
         for k, i in enumerate(point_idx):
             f = figs[i]
             comp = f.name.rsplit(" ", 1)[-1]

@@ -24,6 +24,7 @@ from mesastrain.derived.sampling import (
 )
 from mesastrain.fem.fields import reference_coordinates
 from mesastrain.fem.mapping import fast_mapping
+from mesastrain.model.symmetry import reflect_tensors
 
 __all__ = [
     "interface_balance",
@@ -216,14 +217,18 @@ def interface_balance(res, z: float) -> dict:
     k = int(np.argmin(np.abs(np.asarray(res.case.interfaces) - z)))
     up = locate_in_region(res, pts, k + 1) >= 0          # material above: the feature's plane
     pts, w = pts[up], w[up]
-    for a in mirrors_of(res):                             # add the mirror images
-        img = pts.copy()
-        img[:, a] = -img[:, a]
-        keep = img[:, a] < 0
-        pts, w = np.vstack([pts, img[keep]]), np.concatenate([w, w[keep]])
+    # the mirror images: their stresses are the reflections S sigma S of the modelled
+    # points' (S = diag(signs)), so each point is sampled once and the images reuse it
+    src, signs = np.arange(len(w)), np.ones((len(w), 3))
+    for a in mirrors_of(res):
+        keep = pts[src, a] > 0                            # off the mirror plane
+        img = signs[keep]
+        img[:, a] = -1.0
+        src, signs = np.concatenate([src, src[keep]]), np.vstack([signs, img])
+        w = np.concatenate([w, w[keep]])
     out = {"area": float(w.sum())}
-    out.update(_net(w, _fe_interface_stress(res, pts, k)))
-    out["recovered"] = _net(w, interface_stress(res, pts, k))
+    out.update(_net(w, reflect_tensors(_fe_interface_stress(res, pts, k)[src], signs)))
+    out["recovered"] = _net(w, reflect_tensors(interface_stress(res, pts, k)[src], signs))
     return out
 
 
