@@ -430,14 +430,45 @@ def apply_stiffness(disc: Discretisation, region: np.ndarray, stiffness: np.ndar
     # regions with a zero stiffness (a sensitivity's dC outside the varied material)
     # contribute nothing: only the elements of the others are visited
     held = np.any(np.asarray(stiffness).reshape(-1, 36) != 0, axis=1)
+    if Qref is not None:
+        # bricks: f_nai = sum_{b,k,jl} Q[a,b,jl] s_n[jl] C[jl,ik] u_nbk without forming the
+        # element matrices: one product over b for every element, then one over (jl, k)
+        # per region (a third of the memory traffic of the element matrices)
+        Qb = Qref.reshape(nloc, nloc, 9).transpose(0, 2, 1).reshape(nloc * 9, nloc)
+        Ck = Cm.reshape(-1, 9, 3, 3).transpose(0, 1, 3, 2).reshape(-1, 27, 3)  # (r, jl k, i)
+    else:
+        # Cm[(j, l), (i, k)] = C_ijkl, as (l k) -> (j i) for the stress at quadrature points
+        Cs = Cm.reshape(-1, 3, 3, 3, 3).transpose(0, 2, 4, 1, 3).reshape(-1, 9, 9)
     for sl in _blocks(held, region, step):
         nodes = disc.element_dofs[:, sl].T.astype(np.int64)              # (n, nloc)
         ue = U[nodes]                                                    # (n, b, k)
-        Ke, pairs_first = _element_matrices(disc, sl, region[sl], Cm, Qref)
-        if pairs_first:                                                  # (ab, n, i, k)
-            fe = np.einsum("abnik,nbk->nai", Ke.reshape(nloc, nloc, -1, 3, 3), ue)
-        else:                                                            # (n, a, b, i, k)
-            fe = np.einsum("nabik,nbk->nai", Ke, ue)
+        if Qref is not None:
+            n = ue.shape[0]
+            h = disc.bricks.h[sl]
+            s = (np.abs(h[:, 0] * h[:, 1] * h[:, 2])[:, None, None]
+                 / (h[:, :, None] * h[:, None, :])).reshape(n, 1, 9, 1)   # |det| / (h_j h_l)
+            Y = Qb @ ue.transpose(1, 0, 2).reshape(nloc, n * 3)          # (a jl, n k)
+            Z = Y.reshape(nloc, 9, n, 3).transpose(2, 0, 1, 3) * s       # (n, a, jl, k)
+            reg = region[sl]
+            fe = np.empty((n, nloc, 3))
+            for r in np.unique(reg):
+                m = reg == r
+                fe[m] = (Z[m].reshape(-1, 27) @ Ck[r]).reshape(-1, nloc, 3)
+        else:
+            # f_ai = sum_q w (dN_a/dx_j) C_ijkl (du_k/dx_l): the gradient and the stress at
+            # the quadrature points, without the element matrices
+            g = disc.gradients(sl)                                       # (n, q, a, j)
+            w = disc.weights(sl)                                         # (n, q)
+            n, nq = w.shape
+            grad = np.matmul(g.transpose(0, 1, 3, 2), ue[:, None])      # (n, q, l, k)
+            reg = np.repeat(region[sl], nq)
+            grad = grad.reshape(n * nq, 9)
+            sig = np.empty((n * nq, 9))                                  # (n q, j i)
+            for r in np.unique(reg):
+                m = reg == r
+                sig[m] = grad[m] @ Cs[r]
+            gw = (g * w[:, :, None, None]).transpose(0, 2, 1, 3).reshape(n, nloc, nq * 3)
+            fe = np.matmul(gw, sig.reshape(n, nq * 3, 3))                # (n, a, i)
         vd = nodes[:, :, None] * 3 + np.arange(3)
         np.add.at(out, vd.ravel(), fe.ravel())
     return out
