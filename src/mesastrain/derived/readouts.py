@@ -58,7 +58,7 @@ from mesastrain.derived.energy import (
     layer_energy,
 )
 from mesastrain.derived.relaxation import RECOVERY, blanket_state, edge_relaxation, plot_relaxation
-from mesastrain.derived.sampling import cell_centres, etch_floor, sample_inside
+from mesastrain.derived.sampling import etch_floor, sample_inside
 from mesastrain.derived.tractions import interface_balance, plot_tractions, traction_profiles
 from mesastrain.run.result import Derived
 from mesastrain.units import fmt
@@ -86,7 +86,6 @@ def derive(res) -> Derived:
     case = res.case
     standoff = case.readouts.standoff if case.readouts.standoff else default_standoff(case)
     floor = etch_floor(res)
-    centres = cell_centres(res)
     warnings = []
     feats = standoff_values(res, edge_features(res, standoff)) if floor is not None else []
     warnings.extend(standoff_warnings(feats, standoff))
@@ -95,7 +94,7 @@ def derive(res) -> Derived:
     for lm in res.layers:
         entry = {"region": lm.index, "label": lm.material.label,
                  "z_bottom": lm.z_bottom, "z_top": lm.z_top}
-        peaks = region_peaks(res, lm.index, centres)
+        peaks = region_peaks(res, lm.index)
         for pk in peaks.values():
             name, dist = nearest_feature(pk["at"], feats)
             if name is not None:

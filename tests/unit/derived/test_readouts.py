@@ -11,8 +11,10 @@ from scipy.optimize import brentq
 
 from mesastrain.case.parse import parse_case
 from mesastrain.derived import solve_and_derive
+from mesastrain.derived.corners import _extreme_principal
 from mesastrain.derived.relaxation import overshoot, relaxation_length
 from mesastrain.errors import CaseError
+from mesastrain.fem.fields import principal
 from mesastrain.io.export import jsonable
 from mesastrain.physics.materials import get_material
 from mesastrain.physics.thinfilm import biaxial_stress_ratios_110
@@ -309,3 +311,24 @@ def test_convergence_figures(mesa):
     assert f["SiGe relaxation length +x (nm)"] == pytest.approx(
         _readouts(mesa)["layers"]["SiGe"]["relaxation"]["+x"]["length"], rel=1e-9)
     assert "interface z=0 +x: peak shear" in f and all(np.isfinite(v) for v in f.values())
+
+
+@pytest.mark.parametrize("kind", ["random", "all equal", "degenerate pairs", "one element"])
+def test_principal_peaks_pruned_by_gershgorin_equal_the_full_search(kind):
+    # The region peaks decompose only the elements whose Gershgorin bound can reach the
+    # extreme: the value and the first element holding it equal those of decomposing every
+    # element (bitwise: the same LAPACK call per matrix), also with ties and degenerate pairs.
+    rng = np.random.default_rng(11)
+    for scale in (1.0, 1e3, 1e-3):
+        a = rng.normal(scale=scale, size=(1 if kind == "one element" else 2000, 3, 3))
+        s = a + a.transpose(0, 2, 1)
+        if kind == "all equal":
+            s[:] = s[0]
+        elif kind == "degenerate pairs":
+            s[:, 0, 1] = s[:, 1, 0] = s[:, 0, 2] = s[:, 2, 0] = 0.0
+            s[:, 0, 0] = s[:, 1, 1]
+        pr = principal(s)
+        i, v = _extreme_principal(s, largest=True)
+        j, u = _extreme_principal(s, largest=False)
+        assert i == int(np.argmax(pr[:, 0])) and v == pr[i, 0]
+        assert j == int(np.argmin(pr[:, 2])) and u == pr[j, 2]
