@@ -249,6 +249,38 @@ def test_write_error_is_one_line(project, tmp_path, capsys, monkeypatch):
     assert snapshot(tmp_path) == before
 
 
+@pytest.mark.slow
+@pytest.mark.parametrize("where", ["write_vtu", "draw_pictures"])
+def test_write_error_beside_the_pictures_is_one_line(project, tmp_path, capsys, monkeypatch,
+                                                     where):
+    # fields.vtu is written on a second thread while the pictures are drawn: a failure on
+    # either side ends the run the same way (one line, nothing left), after the other
+    # side has finished
+    import mesastrain.io.folder as folder
+
+    monkeypatch.setenv("MESASTRAIN_THREADS", "2")
+    done = []
+
+    def broken(*a, **k):
+        raise OSError(errno.EIO, "Input/output error", "fields.vtu")
+
+    def other(real):
+        def run(*a, **k):
+            time.sleep(0.2)                      # still busy when the failure comes
+            done.append(real.__name__)
+            return real(*a, **k)
+        return run
+
+    keep = "draw_pictures" if where == "write_vtu" else "write_vtu"
+    monkeypatch.setattr(folder, where, broken)
+    monkeypatch.setattr(folder, keep, other(getattr(folder, keep)))
+    before = snapshot(tmp_path)
+    assert main(["run", str(project), "--out", str(tmp_path / "res"), "-q"]) == 2
+    one_line(capsys.readouterr().err, "--out", "Input/output error")
+    assert snapshot(tmp_path) == before
+    assert done == [keep]
+
+
 # --------------------------------------------------------------------------
 # the swap and the clean-up of stale partial folders
 # --------------------------------------------------------------------------

@@ -109,7 +109,8 @@ def _solve_and_write(args, case, dest) -> int:
     write_result(res, dest, quick=quick, progress=progress)
     parts = [(k, res.timings[f"write_{k}"]) for k in ("fields", "tables", "pictures", "report")
              if f"write_{k}" in res.timings]
-    progress("written: " + ", ".join(f"{k} {v:.1f} s" for k, v in parts))
+    progress(f"written in {res.timings.get('writing', sum(v for _, v in parts)):.1f} s: "
+             + ", ".join(f"{k} {v:.1f} s" for k, v in parts))
     summary = jsonable(summary_of(res))
     if not args.quiet:
         print(results_table(summary))

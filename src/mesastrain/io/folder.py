@@ -2,12 +2,15 @@
 
 from __future__ import annotations
 
+import time
+from concurrent.futures import ThreadPoolExecutor
 from pathlib import Path
 
 import numpy as np
 
 from mesastrain import __version__
 from mesastrain.fem.fields import hydrostatic, von_mises
+from mesastrain.fem.parallel import thread_count
 from mesastrain.io.destination import Destination, claim_output, write_failure
 from mesastrain.io.export import to_vtk6, write_json, write_vtu
 from mesastrain.io.report import write_report
@@ -237,7 +240,6 @@ def region_table(res: Result) -> dict:
 def _timed(res: Result, key: str, progress, what: str):
     """Context manager that reports a writing stage and records its time in ``res.timings``."""
     import contextlib
-    import time
 
     @contextlib.contextmanager
     def stage():
@@ -349,26 +351,43 @@ def write_result(res: Result, out, overwrite: bool = False, quick: bool = False,
     report = getattr(o, "report", False) and not quick
     try:
         tmp = dest.partial()
-        if o.vtu:
+        t0 = time.perf_counter()
+
+        def fields() -> None:
             with _timed(res, "write_fields", progress, "writing fields.vtu"):
                 pd, cd = vtu_data(res)
                 write_vtu(tmp / "fields.vtu", res.mesh.mesh, pd, cd,
                           field_data=region_table(res))
-        files = [(n, w) for d in res.derived for n, w in d.files.items()]
-        with _timed(res, "write_tables", progress, "writing tables"):
-            for name, writer in files:
-                if not name.endswith(".png"):
-                    writer(tmp / name)
-        if pictures:
-            with _timed(res, "write_pictures", progress, "drawing pictures"):
+
+        # fields.vtu is written on a second thread while the tables and pictures are drawn:
+        # its zlib compression releases the interpreter lock, matplotlib mostly holds it
+        beside = ThreadPoolExecutor(1) if o.vtu and pictures and thread_count() > 1 else None
+        try:
+            vtu = beside.submit(fields) if beside is not None else None
+            if o.vtu and vtu is None:
+                fields()
+            files = [(n, w) for d in res.derived for n, w in d.files.items()]
+            with _timed(res, "write_tables", progress, "writing tables"):
                 for name, writer in files:
-                    if name.endswith(".png"):
+                    if not name.endswith(".png"):
                         writer(tmp / name)
-                draw_pictures(res, tmp)
+            if pictures:
+                with _timed(res, "write_pictures", progress, "drawing pictures"):
+                    for name, writer in files:
+                        if name.endswith(".png"):
+                            writer(tmp / name)
+                    draw_pictures(res, tmp)
+            if vtu is not None:
+                vtu.result()
+        finally:
+            if beside is not None:
+                beside.shutdown(wait=True)
+        res.timings["writing"] = time.perf_counter() - t0
         write_json(tmp / "summary.json", summary_of(res))
         if report:      # last: it embeds the files above
             with _timed(res, "write_report", progress, "writing report.html"):
                 write_report(tmp, pictures=False)
+            res.timings["writing"] = time.perf_counter() - t0
             write_json(tmp / "summary.json", summary_of(res))   # with the report's time
         return dest.commit(tmp)
     except OSError as exc:
