@@ -38,25 +38,51 @@ def images(mirrors) -> np.ndarray:
     return np.array(out)
 
 
-def _merge(points: list, span: float) -> tuple[int, list]:
-    """Number the union of point sets, merging coincident points.
+def _merge(points: np.ndarray, signs: np.ndarray, span: float) -> tuple[int, list]:
+    """Number the union of the mirror images of a point set, merging coincident points.
 
-    The first set keeps its numbering (0..n-1). Returns (count, maps) with
-    maps[k][i] the new number of point i of set k.
+    Image k of point i is ``signs[k] * points[:, i]``. Two images of one point coincide
+    where every axis on which their signs differ holds a coordinate that rounds to zero
+    on a grid of ``span * 1e-9`` (the point lies on those mirror planes); images of
+    different points never do (the solved part has no duplicate points). Each merged
+    point keeps the number of its first image (images in the order given, identity
+    first): the first set keeps its numbering (0..n-1), and the new points of each
+    later image follow in order. The same numbering as rounding every image to that
+    grid and merging equal keys, without sorting them.
+
+    Parameters
+    ----------
+    points : ndarray (dim, n)
+    signs : ndarray (nimg, dim)
+        +1 or -1 per axis; the first row all +1.
+    span : float
+        Size of the body, for the merge tolerance.
+
+    Returns
+    -------
+    count : int
+    maps : list of ndarray of int (n,)
+        ``maps[k][i]`` the number of image k of point i.
     """
-    allp = np.concatenate(points, axis=1).T
     q = span * 1e-9
-    keys = np.round(allp / q).astype(np.int64)
-    _, first, inverse = np.unique(keys, axis=0, return_index=True, return_inverse=True)
-    inverse = inverse.ravel()
-    rank = np.empty(len(first), dtype=np.int64)
-    rank[np.argsort(first, kind="stable")] = np.arange(len(first))
-    ids = rank[inverse]
-    maps, start = [], 0
-    for p in points:
-        maps.append(ids[start:start + p.shape[1]])
-        start += p.shape[1]
-    return len(first), maps
+    off_plane = np.round(points / q) != 0                    # (dim, n)
+    flips = np.asarray(signs) < 0                            # (nimg, dim)
+    bit = 1 << np.arange(flips.shape[1])
+    code = flips @ bit                                       # each image as a bit mask
+    n = points.shape[1]
+    maps, count = [], 0
+    for k in range(len(flips)):
+        # the first image this one coincides with: its flips on the point's planes undone
+        canon = (flips[k][:, None] & off_plane).T @ bit      # (n,)
+        ids = np.empty(n, dtype=np.int64)
+        new = canon == code[k]
+        for j in range(k):
+            sel = canon == code[j]
+            ids[sel] = maps[j][sel]
+        ids[new] = count + np.arange(int(new.sum()))
+        count += int(new.sum())
+        maps.append(ids)
+    return count, maps
 
 
 def _orientation_permutation(elem) -> np.ndarray | None:
@@ -163,9 +189,9 @@ def unfold(p: np.ndarray, t: np.ndarray, region: np.ndarray, disc: Discretisatio
     sp_ = imgs if dim == 3 else imgs[:, [0, 2]]     # a cross-section holds (x, z)
     nv = p.shape[1]
     span = float(np.max(np.ptp(disc.doflocs, axis=1))) or 1.0
-    vcount, vmaps = _merge([p * s[:, None] for s in sp_], span)
+    vcount, vmaps = _merge(p, sp_, span)
     extra = disc.doflocs[:, nv:]
-    ecount, emaps = _merge([extra * s[:, None] for s in imgs], span)
+    ecount, emaps = _merge(extra, imgs, span)
     dmaps = [np.concatenate([vm, vcount + em]) for vm, em in zip(vmaps, emaps)]
     nfull = vcount + ecount
     doflocs = np.empty((3, nfull))
