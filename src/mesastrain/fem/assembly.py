@@ -379,10 +379,26 @@ def assemble_matrix(disc: Discretisation, region: np.ndarray, stiffness: np.ndar
     k_of = np.arange(3)                                              # column component
     i_of = np.arange(3)[:, None]                                     # row component
     nloc = disc.nloc
+    # each local node of a tensor-product grid is a different global node in every element:
+    # then the entries of one local pair (a, b) never meet, and each pair is added with a
+    # plain gather and scatter (several times faster than the unbuffered np.add.at)
+    nn = disc.ndofs // 3
+    distinct = Qref is not None and all(
+        np.bincount(disc.element_dofs[a], minlength=nn).max() <= 1 for a in range(nloc))
+    comp_i, comp_k = np.repeat(np.arange(3), 3), np.tile(np.arange(3), 3)
     for start in range(0, nel, step):
         sl = slice(start, min(start + step, nel))
         Ke, pairs_first = _element_matrices(disc, sl, region[sl], Cm, Qref)
         stride = pat.row_stride[disc.element_dofs[:, sl].T]          # (n, nloc)
+        if pairs_first and distinct:                                 # (ab, n, i, k)
+            base = pat.block_base[sl].reshape(-1, nloc * nloc)       # (n, ab)
+            Kf = Ke.reshape(nloc * nloc, -1, 9)
+            for ab in range(nloc * nloc):
+                idx = (base[:, ab, None] + stride[:, ab // nloc, None] * comp_i + comp_k).ravel()
+                x = np.take(data, idx)
+                x += Kf[ab].ravel()
+                data[idx] = x
+            continue
         if pairs_first:                                              # (ab, n, i, k)
             base = pat.block_base[sl].reshape(-1, nloc * nloc).T
             st = np.repeat(stride.T, nloc, axis=0)

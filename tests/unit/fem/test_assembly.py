@@ -251,3 +251,27 @@ def test_estimate_counts_unknowns_and_nonzeros_exactly(order, refine):
     else:                                             # interior-stencil approximation
         assert abs(nnz - K.nnz) <= 0.12 * K.nnz
     assert est.memory_gb > 0 and est.seconds > 0
+
+
+@pytest.mark.parametrize("order", [1, 2])
+def test_tensor_grid_is_assembled_without_unbuffered_adds(order, monkeypatch):
+    # On a tensor-product grid every local dof is a different global dof in each element,
+    # so the matrix is summed pair by pair with plain gathers and scatters: np.add.at is
+    # not called, and the matrix still equals scikit-fem's
+    from skfem import ElementHex1, ElementHex2
+
+    from mesastrain.fem.discretisation import INTORDER
+
+    mesh = graded_mesh()
+    group = np.random.default_rng(5).integers(0, 2, mesh.t.shape[1])
+    Kref, _ = skfem_reference(mesh, {1: ElementHex1, 2: ElementHex2}[order](),
+                              INTORDER[order], group)
+    disc = discretise(mesh, order)
+
+    def refuse(*a, **k):
+        raise AssertionError("np.add.at on a tensor grid")
+
+    with monkeypatch.context() as m:
+        m.setattr(np.add, "at", refuse)
+        K = assemble_matrix(disc, group, STIFF)
+    assert abs(K - Kref).max() <= 1e-12 * abs(Kref).max()
