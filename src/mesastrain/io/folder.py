@@ -66,11 +66,11 @@ def layer_figures(res: Result) -> dict:
         mean = np.einsum("n,nij->ij", vol, sig) / vol.sum()
         vm = von_mises(sig)
         k = int(np.argmax(vm))
-        centres = res.mesh.mesh.p[:, res.mesh.mesh.t[:, m]].mean(axis=1).T
+        at = res.mesh.mesh.p[:, res.mesh.mesh.t[:, np.flatnonzero(m)[k]]].mean(axis=1)
         out[lm.name] = {"region": lm.index, "label": lm.material.label,
                         "volume": float(vol.sum()),
                         "mean_stress": mean, "max_von_mises": float(vm[k]),
-                        "max_von_mises_at": centres[k]}
+                        "max_von_mises_at": at}
     return out
 
 
