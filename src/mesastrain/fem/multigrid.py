@@ -26,6 +26,7 @@ import scipy.sparse as sp
 import scipy.sparse.linalg as spla
 
 from mesastrain.fem.coarsening import COARSEST_UNKNOWNS, GridSpaces
+from mesastrain.fem.parallel import RowSplit
 
 log = logging.getLogger(__name__)
 
@@ -219,6 +220,9 @@ class Hierarchy:
             op, mask = Ac.astype(self.dtype, copy=False), None
         if mask is not None:
             op = op[mask][:, mask]
+        # the products of the cycle split over the cores (the sweeps stay on one thread)
+        self._split = [tuple(RowSplit(M) for M in mats)
+                       for mats in zip(self.LD, self.DU, self.P, self.R)]
         # the coarsest level, symmetrised and in double precision, factorised once
         op = sp.csr_matrix(op, dtype=np.float64)
         op = 0.5 * (op + op.T)
@@ -284,6 +288,7 @@ class Hierarchy:
         if lev == len(self.LD):
             return self.coarse_lu.solve(b.astype(np.float64)).astype(self.dtype)
         LD, DU, d = self.LD[lev], self.DU[lev], self.d[lev]
+        LDs, DUs, Ps, Rs = self._split[lev]
         n = d.size
         sweeps = self.sweeps[lev] if lev < len(self.sweeps) else 1
         x = np.zeros_like(b)
@@ -292,14 +297,14 @@ class Hierarchy:
         gs(LD.indptr, LD.indices, LD.data, x, rhs, 0, n, 1)      # (L + D) x = b
         for _ in range(sweeps - 1):                              # (L + D) x' = b - U x
             rhs = b + d * x
-            rhs -= DU @ x
+            rhs -= DUs @ x
             gs(LD.indptr, LD.indices, LD.data, x, rhs, 0, n, 1)
         r = b - rhs if sweeps > 1 else np.zeros_like(b)
         r += d * x
-        r -= DU @ x                                              # b - A x = (b - rhs) - U x
-        x += self.P[lev] @ self._cycle(lev + 1, self.R[lev] @ r)
+        r -= DUs @ x                                             # b - A x = (b - rhs) - U x
+        x += Ps @ self._cycle(lev + 1, Rs @ r)
         for _ in range(sweeps):                                  # (D + U) x' = b - L x
-            rhs = b - LD @ x
+            rhs = b - LDs @ x
             rhs += d * x
             gs(DU.indptr, DU.indices, DU.data, x, rhs, n - 1, -1, -1)
         return x

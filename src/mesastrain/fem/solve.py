@@ -49,6 +49,7 @@ from mesastrain.fem import multigrid
 from mesastrain.fem.assembly import rigid_body_modes
 from mesastrain.fem.constraints import Boundary, reduce_dofs, reduce_system, support_dofs, tie_faces
 from mesastrain.fem.discretisation import Discretisation
+from mesastrain.fem.parallel import RowSplit
 from mesastrain.fem.pmultigrid import linear_space
 
 log = logging.getLogger(__name__)
@@ -78,6 +79,7 @@ class _FreePart:
             K = sp.csr_matrix((K.data, K.indices.astype(np.int32), K.indptr.astype(np.int32)),
                               shape=K.shape)
         self.K = K
+        self._Ks = RowSplit(K)                 # the product split over the cores
         self.idx = idx
         self.shape = (idx.size, idx.size)
         self._local = threading.local()
@@ -89,7 +91,7 @@ class _FreePart:
         if full is None:
             full = self._local.full = np.zeros(self.K.shape[0])
         full[self.idx] = p
-        return (self.K @ full)[self.idx]
+        return (self._Ks @ full)[self.idx]
 
 
 @dataclass(frozen=True)
