@@ -151,13 +151,27 @@ def recover(disc: Discretisation, u: np.ndarray, region: np.ndarray,
     U = u.reshape(-1, 3)
     tot = np.empty((nel, 3, 3))
     vol = np.empty(nel)
-    for start in range(0, nel, CHUNK):
-        sl = slice(start, min(start + CHUNK, nel))
+    # an unfolded model: its first elements are the solved part, in order, and every other
+    # element is the reflection S (.) S of one of them (the same products with signs
+    # flipped, so the same numbers): only the solved part is computed
+    emap, signs = getattr(disc, "elem_map", None), getattr(disc, "signs", None)
+    n_own = nel
+    if emap is not None and emap.size == nel:
+        n_own = int(emap.max()) + 1
+        if not np.array_equal(emap[:n_own], np.arange(n_own)):
+            n_own = nel
+    for start in range(0, n_own, CHUNK):
+        sl = slice(start, min(start + CHUNK, n_own))
         gbar, v = disc.mean_gradients(sl)                # (n,a,3), (n,)
         ue = U[disc.element_dofs[:, sl].T]               # (n,a,3)
         grad = np.matmul(ue.transpose(0, 2, 1), gbar)    # du_i/dx_j, element mean
         tot[sl] = _sym(grad)
         vol[sl] = v
+    if n_own < nel:
+        img = emap[n_own:]
+        sg = signs[n_own:]
+        tot[n_own:] = tot[img] * sg[:, :, None] * sg[:, None, :]
+        vol[n_own:] = vol[img]
     el = tot - eig[region]
     if cell_eigenstrain is not None:
         el -= cell_eigenstrain

@@ -144,8 +144,8 @@ def run_case(case: Case, progress=None, max_memory_gb: float | None = None,
     model = model_summary(sm, sym, disc)
     du = {} if sens is None else sens.du
     if sym.mirrors:   # reflect the solved part: everything downstream sees the whole body
-        du = unfold_sensitivities(sm, disc, du)
         sm, disc, u = unfold_model(sm, disc, u)
+        du = unfold_sensitivities(disc, du)
     fl = recover(disc, u, sm.region, stiff, eig, sm.solve_nnodes, sm.solve_mesh.t, extra)
     fl = sm.expand_fields(fl)
     if not (np.all(np.isfinite(fl.cell_stress)) and np.all(np.isfinite(fl.displacement))):

@@ -34,7 +34,6 @@ import numpy as np
 from mesastrain.case.types import Case
 from mesastrain.fem.assembly import apply_stiffness, assemble_load
 from mesastrain.fem.parallel import map_threads
-from mesastrain.mesh.unfold import unfold_model
 from mesastrain.model.regions import build_layers
 from mesastrain.physics.material_record import varied
 from mesastrain.run.result import Result
@@ -215,19 +214,30 @@ class Sensitivities:
         self.wall = time.perf_counter() - t0
 
 
-def unfold_sensitivities(sm, disc, du: dict) -> dict:
+def unfold_sensitivities(full, du: dict) -> dict:
     """Reflect each du of a half/quarter model like the displacement itself.
 
-    The dof map of the unfolding is read once, from a vector of signed dof
-    numbers, and applied to every du.
+    Parameters
+    ----------
+    full : mesastrain.mesh.unfold.MirroredDiscretisation
+        The unfolded model's discretisation (its ``parent`` the solved part's).
+    du : dict of str -> ndarray (ndofs of the solved part,)
+
+    Returns
+    -------
+    dict of str -> ndarray (``full.ndofs``,)
+        Dof g of an image element e takes component i of the solved dof it is an image
+        of, times the reflection's sign on axis i (read from the element connectivity
+        of both discretisations once, for every du).
     """
     if not du:
         return {}
-    probe = np.arange(1, disc.ndofs + 1, dtype=float)
-    _, _, mapped = unfold_model(sm, disc, probe)
-    src = np.abs(mapped).astype(np.int64) - 1
-    sign = np.sign(mapped)
-    return {k: sign * v[src] for k, v in du.items()}
+    nscalar = full.ndofs // 3
+    src = np.empty(nscalar, dtype=np.int64)
+    sign = np.empty((nscalar, 3))
+    src[full.element_dofs.T] = full.parent.element_dofs[:, full.elem_map].T
+    sign[full.element_dofs.T] = full.signs[:, None, :]
+    return {k: (np.asarray(v).reshape(-1, 3)[src] * sign).ravel() for k, v in du.items()}
 
 
 def varied_result(res: Result, group: Group, t: float) -> Result:
