@@ -116,15 +116,19 @@ RECOVERY_S_PER_UNKNOWN = 1.0e-6
 #: (benchmarks/end_to_end.py --plain: demo mesa at 100k, 300k and 1M unknowns, quiet machine).
 OUTPUT_BASE_S = 2.0
 OUTPUT_S_PER_UNKNOWN = 2.4e-6
-PICTURES_BASE_S = 2.3
+#: (refitted 2026-12-03, evening: fields.vtu is written beside the pictures, so the smallest
+#: runs' writing fell by about half a second; benchmarks/estimate_accuracy.py --all)
+PICTURES_BASE_S = 1.8
 PICTURES_S_PER_UNKNOWN = 8.0e-7
 #: Peak memory of the derived quantities beyond the fields: the stage-0 providers run side
 #: by side, each on blocks of at most about 100k elements (energy-norm patches, device
 #: fields, readout profiles), so the extra peak grows with the elements up to one block:
-#: bytes = DERIVED_BYTES_PER_ELEMENT x min(whole elements, DERIVED_BLOCK_ELEMENTS). Fitted to
-#: benchmarks/estimate_accuracy.py (demo mesa at 119k elements: +0.2-0.3 GB over the solve;
-#: linear tetrahedra at 222k elements: +0.3-0.45 GB, varying with how the providers overlap).
-DERIVED_BYTES_PER_ELEMENT = 3.5e3
+#: bytes = DERIVED_BYTES_PER_ELEMENT x min(whole elements, DERIVED_BLOCK_ELEMENTS). Refitted
+#: to benchmarks/estimate_accuracy.py --all after the Gauss-point recovery stopped building
+#: a basis per point and vertex (2 kB per element of a block) and the device cell fields lost
+#: their per-mode Raman detail: the demo mesa at 119k elements now peaks at the solve's
+#: 0.46 GB (0.71 GB before); every case of the benchmark within 0.78-1.28 of its peak.
+DERIVED_BYTES_PER_ELEMENT = 1.3e3
 DERIVED_BLOCK_ELEMENTS = 100_000
 #: The error bars of issue 17, counted by :func:`mesastrain.run.resources.estimate`:
 #: discretisation error = ERROR_COARSE_SHARE of the solver stages (the coarser solve has

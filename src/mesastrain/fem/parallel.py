@@ -8,8 +8,10 @@ V-cycles at once overlap only in their products. Measured on this project's
 7.5-8.5 s side by side against 8.7-8.8 s one after the other (alternating runs),
 those of the 1M-unknown tetrahedral pad 10-11 s against 14-15 s end to end.
 Splitting the multigrid set-up's sparse products and sums into row blocks was
-tried and measured no faster (and 0.3 GB more at 1M), so it is not done.
-Timings on this virtual machine vary by 10-15 % from run to run.
+tried and measured no faster (and 0.3 GB more at 1M), so it is not done; the
+cycle's products with a vector are split (:class:`RowSplit`): one V-cycle and CG
+product of the 1M-unknown mesa took 0.250 s against 0.299 s (medians of 8,
+alternating). Timings on this virtual machine vary by 10-15 % from run to run.
 
 The number of threads is the cores this process may use, capped by the
 environment variable ``MESASTRAIN_THREADS`` (sweep workers and test processes
