@@ -81,6 +81,7 @@ from mesastrain.derived.headline import headline_figures, merged_summary
 from mesastrain.derived.relaxation import edge_relaxation
 from mesastrain.derived.sampling import etch_floor, locate, sample_inside, stress_sampler
 from mesastrain.errors import MesastrainError
+from mesastrain.fem.discretisation import solved_elements
 from mesastrain.fem.fields import elastic_state
 from mesastrain.fem.parallel import map_threads, thread_count
 from mesastrain.fem.recovery import recover_at
@@ -240,12 +241,8 @@ def energy_norm(res, closed_form: bool = True, use_mirrors: bool = True) -> dict
         nq = W.size
     # a mirrored model: integrate over the solved part only (the images are its
     # reflections, with the same element errors), then copy
-    emap = getattr(res.disc, "elem_map", None) if use_mirrors else None
-    n_own = nel
-    if emap is not None and emap.size == nel:
-        n_own = int(emap.max()) + 1
-        if not np.array_equal(emap[:n_own], np.arange(n_own)):
-            emap, n_own = None, nel
+    n_own = solved_elements(res.disc) if use_mirrors else nel
+    emap = res.disc.elem_map if n_own < nel else None
 
     def integrate(start: int, step: int) -> None:
         """eta_e^2, ||sigma_h||_e^2 and volumes of one block of elements (written in place)."""

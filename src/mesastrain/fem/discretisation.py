@@ -190,6 +190,23 @@ class Discretisation:
 # --------------------------------------------------------------------------
 # discretisation of hexahedral meshes
 # --------------------------------------------------------------------------
+def solved_elements(disc) -> int:
+    """Elements at the start of ``disc`` that are the solved part of an unfolded model.
+
+    A mirrored discretisation (:class:`mesastrain.mesh.unfold.MirroredDiscretisation`)
+    lists the solved part's elements first, in order (``elem_map[e] == e``), and every
+    other element is the reflection of one of them: work that reflects exactly is done on
+    those and copied. Every element for any other discretisation (or an ``elem_map`` in
+    another order).
+    """
+    nel = disc.element_dofs.shape[1]
+    emap = getattr(disc, "elem_map", None)
+    if emap is None or emap.size != nel:
+        return nel
+    n_own = int(emap.max()) + 1
+    return n_own if np.array_equal(emap[:n_own], np.arange(n_own)) else nel
+
+
 def brick_maps(mesh) -> tuple[np.ndarray, np.ndarray, np.ndarray] | None:
     """The affine map of every hexahedron, if each is an axis-aligned brick.
 

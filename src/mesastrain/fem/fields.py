@@ -29,7 +29,7 @@ import numpy as np
 import scipy.sparse as sp
 
 from mesastrain.fem.assembly import CHUNK
-from mesastrain.fem.discretisation import Discretisation
+from mesastrain.fem.discretisation import Discretisation, solved_elements
 from mesastrain.fem.mapping import as_fast, fast_mapping
 from mesastrain.physics.crystal import voigt_to_full
 
@@ -154,12 +154,7 @@ def recover(disc: Discretisation, u: np.ndarray, region: np.ndarray,
     # an unfolded model: its first elements are the solved part, in order, and every other
     # element is the reflection S (.) S of one of them (the same products with signs
     # flipped, so the same numbers): only the solved part is computed
-    emap, signs = getattr(disc, "elem_map", None), getattr(disc, "signs", None)
-    n_own = nel
-    if emap is not None and emap.size == nel:
-        n_own = int(emap.max()) + 1
-        if not np.array_equal(emap[:n_own], np.arange(n_own)):
-            n_own = nel
+    n_own = solved_elements(disc)
     for start in range(0, n_own, CHUNK):
         sl = slice(start, min(start + CHUNK, n_own))
         gbar, v = disc.mean_gradients(sl)                # (n,a,3), (n,)
@@ -168,8 +163,8 @@ def recover(disc: Discretisation, u: np.ndarray, region: np.ndarray,
         tot[sl] = _sym(grad)
         vol[sl] = v
     if n_own < nel:
-        img = emap[n_own:]
-        sg = signs[n_own:]
+        img = disc.elem_map[n_own:]
+        sg = disc.signs[n_own:]
         tot[n_own:] = tot[img] * sg[:, :, None] * sg[:, None, :]
         vol[n_own:] = vol[img]
     el = tot - eig[region]
