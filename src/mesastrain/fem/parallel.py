@@ -100,6 +100,16 @@ def _shared_pool() -> ThreadPoolExecutor:
         return _pool
 
 
+def _forget_pool() -> None:
+    """In a forked child: the parent's pool threads do not exist there; make a new one."""
+    global _pool, _pool_lock
+    _pool, _pool_lock = None, threading.Lock()
+
+
+if hasattr(os, "register_at_fork"):
+    os.register_at_fork(after_in_child=_forget_pool)
+
+
 class RowSplit:
     """A CSR matrix whose products with a vector run in row blocks on threads.
 

@@ -136,3 +136,26 @@ def test_row_split_product_is_bitwise_the_plain_one(dtype, threads, monkeypatch)
     assert all(a[1] == b[0] for a, b in zip(parts[:-1], parts[1:]))
     for _, _, view in parts:
         assert np.shares_memory(view.data, M.data) and np.shares_memory(view.indices, M.indices)
+
+
+@pytest.mark.skipif(not hasattr(__import__("os"), "fork"), reason="no fork on this platform")
+@pytest.mark.timeout(60)                                  # without the fix the child hangs
+def test_row_split_works_in_a_forked_child(monkeypatch):
+    # the process-wide pool of the split products is made again in a forked child (its
+    # parent's threads do not exist there): a product in the child neither hangs nor errs
+    import os
+
+    import scipy.sparse as sp
+
+    monkeypatch.setenv("MESASTRAIN_THREADS", "2")
+    monkeypatch.setattr(parallel, "SPLIT_NNZ", 10)
+    M = sp.random(400, 400, density=0.05, format="csr", random_state=1)
+    x = np.arange(400.0)
+    want = M @ x
+    np.testing.assert_array_equal(parallel.RowSplit(M) @ x, want)   # the pool exists now
+    pid = os.fork()
+    if pid == 0:                                                     # the child
+        ok = np.array_equal(parallel.RowSplit(M) @ x, want)
+        os._exit(0 if ok else 1)
+    _, status = os.waitpid(pid, 0)
+    assert os.WIFEXITED(status) and os.WEXITSTATUS(status) == 0
