@@ -187,9 +187,6 @@ class Discretisation:
         return np.einsum("nq,nqaj->naj", w, g) / v[:, None, None], v
 
 
-# --------------------------------------------------------------------------
-# discretisation of hexahedral meshes
-# --------------------------------------------------------------------------
 def solved_elements(disc) -> int:
     """Elements at the start of ``disc`` that are the solved part of an unfolded model.
 
@@ -207,6 +204,9 @@ def solved_elements(disc) -> int:
     return n_own if np.array_equal(emap[:n_own], np.arange(n_own)) else nel
 
 
+# --------------------------------------------------------------------------
+# discretisation of hexahedral meshes
+# --------------------------------------------------------------------------
 def brick_maps(mesh) -> tuple[np.ndarray, np.ndarray, np.ndarray] | None:
     """The affine map of every hexahedron, if each is an axis-aligned brick.
 
