@@ -312,6 +312,13 @@ def _brick_reference(b: Bricks) -> tuple[np.ndarray, np.ndarray]:
     return Q, r
 
 
+def _brick_scale(h: np.ndarray) -> np.ndarray:
+    """(n, 3, 3) |det| / (h_j h_l) of bricks with edge lengths h (n, 3): the factor that
+    turns the reference integrals Q[(a,b), (j,l)] into the brick's."""
+    det = np.abs(h[:, 0] * h[:, 1] * h[:, 2])
+    return det[:, None, None] / (h[:, :, None] * h[:, None, :])
+
+
 def _element_matrices(disc: Discretisation, sl: slice, reg: np.ndarray, Cm: np.ndarray,
                       Qref: np.ndarray | None) -> tuple[np.ndarray, bool]:
     """Element stiffness matrices of a chunk (GPa nm).
@@ -327,9 +334,7 @@ def _element_matrices(disc: Discretisation, sl: slice, reg: np.ndarray, Cm: np.n
     if Qref is not None:
         h = disc.bricks.h[sl]                                        # (n,3)
         n = h.shape[0]
-        det = np.abs(h[:, 0] * h[:, 1] * h[:, 2])
-        s = det[:, None, None] / (h[:, :, None] * h[:, None, :])     # (n,3,3) = |det|/(h_j h_l)
-        coef = s.reshape(n, 9, 1) * Cm[reg]                          # (n, jl, ik)
+        coef = _brick_scale(h).reshape(n, 9, 1) * Cm[reg]            # (n, jl, ik)
         Ke = Qref @ coef.transpose(1, 0, 2).reshape(9, n * 9)        # (ab, n*ik)
         return Ke.reshape(nloc * nloc, n, 3, 3), True
     g = disc.gradients(sl)                                           # (n,q,a,3)
@@ -460,9 +465,7 @@ def apply_stiffness(disc: Discretisation, region: np.ndarray, stiffness: np.ndar
         ue = U[nodes]                                                    # (n, b, k)
         if Qref is not None:
             n = ue.shape[0]
-            h = disc.bricks.h[sl]
-            s = (np.abs(h[:, 0] * h[:, 1] * h[:, 2])[:, None, None]
-                 / (h[:, :, None] * h[:, None, :])).reshape(n, 1, 9, 1)   # |det| / (h_j h_l)
+            s = _brick_scale(disc.bricks.h[sl]).reshape(n, 1, 9, 1)
             Y = Qb @ ue.transpose(1, 0, 2).reshape(nloc, n * 3)          # (a jl, n k)
             Z = Y.reshape(nloc, 9, n, 3).transpose(2, 0, 1, 3) * s       # (n, a, jl, k)
             reg = region[sl]

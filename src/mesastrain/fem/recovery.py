@@ -111,17 +111,16 @@ def _shifted(coef: np.ndarray, delta: np.ndarray, sigma: np.ndarray) -> np.ndarr
     -------
     ndarray (n, m, c)
     """
-    n, m, _ = coef.shape
+    m = coef.shape[1]
     dim = delta.shape[1]
     C = coef
     D = np.empty_like(C)
     D[:, 0] = C[:, 0]
     if m == 1:
         return D
-    lin = C[:, 1:1 + dim] * sigma[:, None, None]                       # sigma C_i
+    D[:, 1:1 + dim] = C[:, 1:1 + dim] * sigma[:, None, None]            # sigma C_i
     for i in range(dim):
         D[:, 0] += delta[:, i, None] * C[:, 1 + i]
-    D[:, 1:1 + dim] = lin
     if m > 1 + dim:
         s2 = (sigma * sigma)[:, None]
         k = 1 + dim

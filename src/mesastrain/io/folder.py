@@ -9,6 +9,7 @@ from pathlib import Path
 import numpy as np
 
 from mesastrain import __version__
+from mesastrain.derived.sampling import cell_centres
 from mesastrain.fem.fields import hydrostatic, von_mises
 from mesastrain.fem.parallel import thread_count
 from mesastrain.io.destination import Destination, claim_output, write_failure
@@ -66,7 +67,7 @@ def layer_figures(res: Result) -> dict:
         mean = np.einsum("n,nij->ij", vol, sig) / vol.sum()
         vm = von_mises(sig)
         k = int(np.argmax(vm))
-        at = res.mesh.mesh.p[:, res.mesh.mesh.t[:, np.flatnonzero(m)[k]]].mean(axis=1)
+        at = cell_centres(res, np.flatnonzero(m)[[k]])[0]
         out[lm.name] = {"region": lm.index, "label": lm.material.label,
                         "volume": float(vol.sum()),
                         "mean_stress": mean, "max_von_mises": float(vm[k]),

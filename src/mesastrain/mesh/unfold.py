@@ -114,11 +114,23 @@ class MirroredDiscretisation(Discretisation):
         Element of the solved part each element is an image of.
     signs : ndarray (nelems, 3)
         Reflection of each element (+1 or -1 per axis).
+    dof_source : ndarray of int (ndofs / 3,)
+        Node (scalar dof) of the solved part each node is an image of.
+    dof_sign : ndarray (ndofs / 3, 3)
+        The reflection's sign per component of that image (see :meth:`unfold_vector`).
     """
 
     parent: Discretisation = None
     elem_map: np.ndarray = None
     signs: np.ndarray = None
+    dof_source: np.ndarray = None
+    dof_sign: np.ndarray = None
+
+    def unfold_vector(self, v: np.ndarray) -> np.ndarray:
+        """A node-major vector field of the solved part (ndofs of ``parent``), reflected
+        onto the whole body like the displacement: component i of node g is component i
+        of its source node times the reflection's sign on axis i."""
+        return (np.asarray(v).reshape(-1, 3)[self.dof_source] * self.dof_sign).ravel()
 
     def gradients(self, elements=slice(None)) -> np.ndarray:
         e = np.arange(self.elem_map.size)[elements]
@@ -195,11 +207,12 @@ def unfold(p: np.ndarray, t: np.ndarray, region: np.ndarray, disc: Discretisatio
     dmaps = [np.concatenate([vm, vcount + em]) for vm, em in zip(vmaps, emaps)]
     nfull = vcount + ecount
     doflocs = np.empty((3, nfull))
-    U = u.reshape(-1, 3)
-    Ufull = np.empty((nfull, 3))
+    source = np.empty(nfull, dtype=np.int64)
+    sign = np.empty((nfull, 3))
     for s, dm in zip(imgs, dmaps):
         doflocs[:, dm] = disc.doflocs * s[:, None]
-        Ufull[dm] = U * s
+        source[dm] = np.arange(dm.size)
+        sign[dm] = s
     pfull = np.empty((dim, vcount))
     for s, vm in zip(sp_, vmaps):
         pfull[:, vm] = p * s[:, None]
@@ -221,9 +234,11 @@ def unfold(p: np.ndarray, t: np.ndarray, region: np.ndarray, disc: Discretisatio
     basis = SimpleNamespace(mesh=solve_mesh, elem=disc.basis.elem)
     full = MirroredDiscretisation(basis=basis, order=disc.order,
                                   element_dofs=np.ascontiguousarray(edofs), ndofs=3 * nfull,
-                                  doflocs=doflocs, parent=disc, elem_map=elem_map, signs=signs)
+                                  doflocs=doflocs, parent=disc, elem_map=elem_map, signs=signs,
+                                  dof_source=source, dof_sign=sign)
     return Unfolded(p=pfull, t_solve=t_solve, t_export=t_export, region=np.tile(region, k),
-                    disc=full, u=Ufull.ravel(), image_of_element=np.repeat(np.arange(k), nel),
+                    disc=full, u=full.unfold_vector(u),
+                    image_of_element=np.repeat(np.arange(k), nel),
                     images=imgs)
 
 

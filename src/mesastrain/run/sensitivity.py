@@ -215,29 +215,10 @@ class Sensitivities:
 
 
 def unfold_sensitivities(full, du: dict) -> dict:
-    """Reflect each du of a half/quarter model like the displacement itself.
-
-    Parameters
-    ----------
-    full : mesastrain.mesh.unfold.MirroredDiscretisation
-        The unfolded model's discretisation (its ``parent`` the solved part's).
-    du : dict of str -> ndarray (ndofs of the solved part,)
-
-    Returns
-    -------
-    dict of str -> ndarray (``full.ndofs``,)
-        Dof g of an image element e takes component i of the solved dof it is an image
-        of, times the reflection's sign on axis i (read from the element connectivity
-        of both discretisations once, for every du).
-    """
-    if not du:
-        return {}
-    nscalar = full.ndofs // 3
-    src = np.empty(nscalar, dtype=np.int64)
-    sign = np.empty((nscalar, 3))
-    src[full.element_dofs.T] = full.parent.element_dofs[:, full.elem_map].T
-    sign[full.element_dofs.T] = full.signs[:, None, :]
-    return {k: (np.asarray(v).reshape(-1, 3)[src] * sign).ravel() for k, v in du.items()}
+    """Reflect each du of a half/quarter model like the displacement itself
+    (``full.unfold_vector``, ``full`` the unfolded model's
+    :class:`mesastrain.mesh.unfold.MirroredDiscretisation`)."""
+    return {k: full.unfold_vector(v) for k, v in du.items()}
 
 
 def varied_result(res: Result, group: Group, t: float) -> Result:
